@@ -8,7 +8,7 @@ from typing import Mapping
 
 import numpy as np
 
-__all__ = ["Found"]
+__all__ = ["Found", "mark_incomplete", "pool"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -68,3 +68,38 @@ class Found:
 
     def __len__(self) -> int:
         return len(self.subsets)
+
+
+def mark_incomplete(found: Found, reason: str) -> Found:
+    """A copy of ``found`` marked as not proven exact, with ``reason`` in ``stopped_by``."""
+    from dataclasses import replace
+
+    stopped = reason if found.stopped_by in ("", "completed") else f"{found.stopped_by}; {reason}"
+    return replace(found, exact=False, stopped_by=stopped)
+
+
+def pool(founds) -> Found:
+    """Pool several ``Found`` into one (duplicates removed, first occurrence kept).
+
+    The pooled value is exact only if every part is; counts are summed.
+    """
+    founds = list(founds)
+    if not founds:
+        raise ValueError("pool() needs at least one Found")
+    seen: dict[tuple[int, ...], tuple[float, int]] = {}
+    for f in founds:
+        for sub, rss, k in zip(f.subsets, f.rss, f.k):
+            seen.setdefault(sub, (float(rss), int(k)))
+    subsets = tuple(seen)
+    return Found(
+        method="+".join(dict.fromkeys(f.method for f in founds)),
+        subsets=subsets,
+        rss=np.array([seen[s][0] for s in subsets]),
+        k=np.array([seen[s][1] for s in subsets], dtype=np.int64),
+        n=founds[0].n,
+        evaluated=sum(f.evaluated for f in founds),
+        pruned=sum(f.pruned for f in founds),
+        singular=sum(f.singular for f in founds),
+        exact=all(f.exact for f in founds),
+        stopped_by="; ".join(dict.fromkeys(f.stopped_by for f in founds)),
+    )

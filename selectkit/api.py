@@ -1,0 +1,649 @@
+"""The notebook face: ``selectkit.search(...)`` and its :class:`Result`.
+
+The pipeline is composed here and nowhere else::
+
+    prepare_search  : table → Dataset → CandidateSet → Moments, the methods to run
+    run_methods     : every method's work units (resumable, parallel) → list of Found
+    finish          : ranking, checks of the best models → Result
+
+The job runner (:mod:`selectkit.jobs`) drives the same three steps with a run
+store between them, so an overnight job and a notebook call give the same
+shortlist for the same options and seed.
+"""
+
+from __future__ import annotations
+
+import html
+import importlib
+import os
+import pickle
+import tempfile
+from dataclasses import dataclass, field
+from functools import cached_property
+from pathlib import Path
+from typing import Any, Callable, Mapping, Sequence
+
+import numpy as np
+import pandas as pd
+
+from . import __version__
+from ._io import atomic_write_bytes
+from .errors import OptionError, SelectkitError
+from .parallel import WorkUnit, check_n_jobs, run_units
+
+__all__ = [
+    "METHODS",
+    "AIMS",
+    "SearchSetup",
+    "Result",
+    "prepare_search",
+    "run_methods",
+    "finish",
+    "search",
+    "load",
+]
+
+#: Search methods by name.  "auto" runs an exact search when the terms fit
+#: (≤ ``exact_limit``) and the screening pipeline otherwise.
+METHODS = ("auto", "exhaustive", "forward", "backward", "both", "crossval", "screen")
+AIMS = ("explain", "predict")
+_EXACT_LIMIT = 40
+_SAVE_FORMAT = "selectkit-result"
+_SAVE_VERSION = 1
+
+
+def _check_choice(value, valid, what):
+    if value not in valid:
+        raise OptionError(f"unknown {what} {value!r}; choose one of {', '.join(map(str, valid))}")
+    return value
+
+
+@dataclass(frozen=True, eq=False)
+class MethodRun:
+    """One search method to run: its name, the module that implements it and its options.
+
+    The module is held by name so that a run pickles to worker processes.
+    """
+
+    name: str
+    module_name: str
+    options: Any
+
+    @property
+    def module(self):
+        return importlib.import_module(self.module_name)
+
+
+@dataclass(frozen=True, eq=False)
+class SearchSetup:
+    """Everything decided before the searches start.
+
+    Attributes
+    ----------
+    dataset : Dataset
+    candidates : CandidateSet
+    moments : Moments
+    runs : tuple of MethodRun
+        The searches, in the order they run.
+    settings : dict
+        The options as given (plain values), for reports and run stores.
+    """
+
+    dataset: Any
+    candidates: Any
+    moments: Any
+    runs: tuple
+    settings: Mapping
+
+
+# ----------------------------------------------------------------------------------------------------
+# stage 1: prepare
+# ----------------------------------------------------------------------------------------------------
+
+
+def prepare_search(
+    data,
+    *,
+    response: str,
+    predictors: Sequence[str] | None = None,
+    forced: Sequence[str] = (),
+    exclude: Sequence[str] = (),
+    weights: str | None = None,
+    missing: str = "refuse",
+    keep_identifiers: Sequence[str] = (),
+    forms: Sequence[str] | None = None,
+    fractional_polynomials: bool = False,
+    shifts: Mapping[str, Any] | None = None,
+    interactions: bool | Sequence[tuple[str, str]] = False,
+    response_transform=None,
+    methods: Sequence[str] | str = ("auto",),
+    method_options: Mapping[str, Mapping[str, Any]] | None = None,
+    exact_limit: int = _EXACT_LIMIT,
+    criterion: str | None = None,
+    aim: str = "explain",
+    convention: str = "selectkit",
+    shortlist_size: int = 10,
+    max_delta: float | None = None,
+    folds: int = 5,
+    time_ordered: bool = False,
+    stability: int = 0,
+    seed: int = 0,
+    time_budget: float | None = None,
+) -> SearchSetup:
+    """Read and check the data, build the candidates and their moments, choose the searches.
+
+    Parameters are those of :func:`search` (minus the parallel ones).
+
+    Returns
+    -------
+    SearchSetup
+    """
+    from . import candidates as _candidates
+    from . import criteria
+    from . import data as _data
+    from .moments import compute_moments
+
+    if isinstance(methods, str):
+        methods = (methods,)
+    methods = tuple(methods)
+    if not methods:
+        raise OptionError("methods is empty; name at least one of " + ", ".join(METHODS))
+    for name in methods:
+        _check_choice(name, METHODS, "search method")
+    _check_choice(aim, AIMS, "aim")
+    _check_choice(convention, criteria.CONVENTIONS, "criterion convention")
+    if criterion is not None:
+        criterion = criteria.check_criterion(criterion)
+    if int(shortlist_size) < 1:
+        raise OptionError(f"shortlist_size must be at least 1 (got {shortlist_size})")
+    if time_budget is not None and not float(time_budget) > 0:
+        raise OptionError(f"time_budget must be a positive number of seconds (got {time_budget})")
+    method_options = {k: dict(v) for k, v in (method_options or {}).items()}
+    for name in method_options:
+        _check_choice(name, METHODS[1:], "search method in method_options")
+
+    dataset = _data.prepare(
+        data,
+        response=response,
+        predictors=predictors,
+        forced=forced,
+        exclude=exclude,
+        weights=weights,
+        missing=missing,
+        keep_identifiers=keep_identifiers,
+    )
+    build_options: dict[str, Any] = dict(
+        fractional_polynomials=fractional_polynomials,
+        shifts=shifts,
+        interactions=interactions,
+        response_transform=response_transform,
+    )
+    if forms is not None:
+        build_options["forms"] = tuple(forms)
+    cands = _candidates.build_candidates(dataset, **build_options)
+    moments = compute_moments(cands.matrix, cands.y, cands.weights)
+
+    n_terms = len(cands.terms)
+    resolved = []
+    for name in methods:
+        if name == "auto":
+            name = "exhaustive" if n_terms <= exact_limit else "screen"
+        if name not in resolved:
+            resolved.append(name)
+    runs = tuple(
+        _make_run(name, method_options.get(name, {}), seed=seed, time_budget=time_budget,
+                  exact_limit=exact_limit, folds=folds, criterion=criterion, aim=aim)
+        for name in resolved
+    )
+    settings = {
+        "selectkit_version": __version__,
+        "data": data if isinstance(data, (str, os.PathLike)) else "<DataFrame>",
+        "response": response,
+        "predictors": None if predictors is None else list(predictors),
+        "forced": list(forced),
+        "exclude": list(exclude),
+        "weights": weights,
+        "missing": missing,
+        "forms": None if forms is None else list(forms),
+        "fractional_polynomials": bool(fractional_polynomials),
+        "shifts": dict(shifts or {}),
+        "interactions": interactions if isinstance(interactions, bool) else [list(p) for p in interactions],
+        "response_transform": response_transform,
+        "methods": list(methods),
+        "methods_run": [r.name for r in runs],
+        "method_options": method_options,
+        "criterion": criterion,
+        "aim": aim,
+        "convention": convention,
+        "shortlist_size": int(shortlist_size),
+        "max_delta": max_delta,
+        "folds": int(folds),
+        "time_ordered": bool(time_ordered),
+        "stability": int(stability),
+        "seed": int(seed),
+        "time_budget": time_budget,
+        "n_rows": dataset.n,
+        "n_terms": n_terms,
+    }
+    if isinstance(settings["data"], os.PathLike):
+        settings["data"] = os.fspath(settings["data"])
+    return SearchSetup(dataset=dataset, candidates=cands, moments=moments, runs=runs, settings=settings)
+
+
+def _make_run(name, user_options, *, seed, time_budget, exact_limit, folds, criterion, aim) -> MethodRun:
+    """Resolve a method name and its user options to a module and its options object."""
+    from .search import _adapters
+
+    module_name, options = _adapters.make_options(
+        name, dict(user_options), seed=seed, time_budget=time_budget, exact_limit=exact_limit,
+        folds=folds, criterion=criterion, aim=aim,
+    )
+    return MethodRun(name=name, module_name=module_name, options=options)
+
+
+# ----------------------------------------------------------------------------------------------------
+# stage 2: run
+# ----------------------------------------------------------------------------------------------------
+
+
+def _call_unit(args):
+    module_name, unit = args
+    return importlib.import_module(module_name).run_unit(unit)
+
+
+def run_methods(
+    setup: SearchSetup,
+    *,
+    done: Mapping[str, Any] | None = None,
+    on_unit: Callable[[str, Any], None] | None = None,
+    n_jobs: int = 1,
+    backend: str = "loky",
+    scheduler: str | None = None,
+    should_stop: Callable[[], bool] | None = None,
+) -> list:
+    """Run every planned search, unit by unit, and merge each into a ``Found``.
+
+    Parameters
+    ----------
+    setup : SearchSetup
+    done : mapping, optional
+        Unit key → result of units already finished (a resumed job); they are
+        not run again.
+    on_unit : callable, optional
+        ``on_unit(key, result)`` in this process as each new unit finishes.
+    n_jobs, backend, scheduler
+        See :func:`selectkit.parallel.run_units`.
+    should_stop : callable, optional
+        Polled between batches of units; when it returns True no new unit
+        starts and each search is merged from the units that finished (and
+        marked not proven exact).
+
+    Returns
+    -------
+    list of Found
+        One per method, in the order of ``setup.runs`` (a method may return
+        several, e.g. the screening pipeline).
+    """
+    check_n_jobs(n_jobs)
+    done = dict(done or {})
+    founds = []
+    for run in setup.runs:
+        units = run.module.plan(setup.candidates, setup.moments, run.options)
+        keys = [f"{run.name}/{u.key}" for u in units]
+        if len(set(keys)) != len(keys):
+            raise SelectkitError(f"search {run.name!r} planned two work units with one key")
+        results: dict[int, Any] = {i: done[k] for i, k in enumerate(keys) if k in done}
+        todo = [i for i in range(len(units)) if i not in results]
+        # Run in batches so that should_stop is honoured between them while
+        # keeping every worker busy inside a batch.
+        batch = max(1, check_n_jobs(n_jobs) if n_jobs > 0 else os.cpu_count() or 1)
+        stopped = False
+        for start in range(0, len(todo), batch):
+            if should_stop is not None and should_stop():
+                stopped = True
+                break
+            chunk = todo[start:start + batch]
+
+            def _record(j, result, chunk=chunk):
+                index = chunk[j]
+                results[index] = result
+                if on_unit is not None:
+                    on_unit(keys[index], result)
+
+            run_units(_call_unit, [(run.module_name, units[i]) for i in chunk], n_jobs=n_jobs,
+                      backend=backend, scheduler=scheduler, on_result=_record)
+        ordered = [results.get(i) for i in range(len(units))]
+        merged = run.module.merge(setup.candidates, setup.moments, run.options, ordered)
+        merged = merged if isinstance(merged, (list, tuple)) else [merged]
+        if stopped or any(r is None for r in ordered):
+            from .search._found import mark_incomplete
+
+            merged = [mark_incomplete(f, "stopped before every work unit finished") for f in merged]
+        founds.extend(merged)
+    return founds
+
+
+# ----------------------------------------------------------------------------------------------------
+# stage 3: finish
+# ----------------------------------------------------------------------------------------------------
+
+
+def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: str = "loky",
+           scheduler: str | None = None) -> "Result":
+    """Rank the pooled models, check the best ones and return a :class:`Result`."""
+    from . import rank as _rank
+
+    s = setup.settings
+    scores = None
+    try:
+        from .search.crossval import score_subsets
+    except ImportError:  # pragma: no cover - the module is part of the package
+        score_subsets = None
+    pooled = sorted({sub for f in founds for sub in f.subsets})
+    if score_subsets is not None and pooled:
+        scores = score_subsets(setup.candidates, pooled, folds=s["folds"], seed=s["seed"], moments=setup.moments)
+    shortlist = _rank.rank(
+        founds,
+        setup.candidates,
+        setup.moments,
+        criterion=s["criterion"],
+        aim=s["aim"],
+        convention=s["convention"],
+        size=s["shortlist_size"],
+        max_delta=s["max_delta"],
+        scores=scores,
+    )
+    stability = None
+    if s["stability"] > 0:
+        stability = _rank.stability(
+            setup.candidates,
+            _StabilityRunner(tuple(setup.runs)),
+            n_boot=s["stability"],
+            seed=s["seed"],
+            n_jobs=n_jobs,
+            backend=backend,
+            criterion=shortlist.criterion,
+        )
+    return Result(setup=setup, founds=tuple(founds), ranked=shortlist, stability=stability)
+
+
+@dataclass(frozen=True)
+class _StabilityRunner:
+    """Picklable callable that repeats the searches of a setup on resampled candidates."""
+
+    runs: tuple
+
+    def __call__(self, candidates):
+        from .moments import compute_moments
+        from .search._found import pool
+
+        moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+        found = []
+        for run in self.runs:
+            units = run.module.plan(candidates, moments, run.options)
+            merged = run.module.merge(candidates, moments, run.options, [run.module.run_unit(u) for u in units])
+            found.extend(merged if isinstance(merged, (list, tuple)) else [merged])
+        return pool(found)
+
+
+# ----------------------------------------------------------------------------------------------------
+# the facade
+# ----------------------------------------------------------------------------------------------------
+
+
+def search(
+    data,
+    *,
+    response: str,
+    methods: Sequence[str] | str = ("auto",),
+    n_jobs: int = 1,
+    backend: str = "loky",
+    scheduler: str | None = None,
+    seed: int = 0,
+    **options,
+) -> "Result":
+    """Search for the best linear models of ``response`` and return a ranked, checked shortlist.
+
+    Parameters
+    ----------
+    data : str, path or DataFrame
+        A CSV or Parquet file, or a DataFrame (never modified).
+    response : str
+        Name of the response column.
+    methods : str or sequence of str, default ("auto",)
+        Searches to run and pool: ``"exhaustive"`` (exact best subsets by
+        branch and bound), ``"forward"``, ``"backward"``, ``"both"``
+        (stepwise), ``"crossval"`` (model size chosen by cross-validation),
+        ``"screen"`` (screen → exact search on the survivors → stepwise
+        polish) and ``"auto"`` (exhaustive when the candidate terms are few
+        enough, else screen).
+    n_jobs : int, default 1
+        Worker processes (−1: every core).  The result does not depend on it.
+    backend : str, default "loky"
+        joblib backend: loky, threading, multiprocessing, sequential or dask.
+    scheduler : str, optional
+        Dask scheduler address with ``backend="dask"``.
+    seed : int, default 0
+        Seed of every random draw (folds, bootstrap).
+    **options
+        Roles of columns (``predictors``, ``forced``, ``exclude``,
+        ``weights``, ``missing``, ``keep_identifiers``), candidate forms
+        (``forms``, ``fractional_polynomials``, ``shifts``, ``interactions``,
+        ``response_transform``), ranking (``criterion``, ``aim`` — "explain"
+        ranks by BIC, "predict" by AICc —, ``convention``, ``shortlist_size``,
+        ``max_delta``, ``folds``, ``stability``), ``method_options`` (a dict
+        per method name), ``time_ordered`` and ``time_budget`` (seconds).
+
+    Returns
+    -------
+    Result
+
+    Notes
+    -----
+    The p-values and intervals of a model chosen by a search are optimistic:
+    the same data chose the model and estimated it.  Prefer the honest
+    cross-validated error, and check the chosen model on data it has not seen.
+    Association is not causation, and the decision rests with the
+    practitioner and local professional standards.
+
+    Examples
+    --------
+    >>> import selectkit
+    >>> from selectkit.demo import make_greenhouse
+    >>> result = selectkit.search(make_greenhouse(), response="yield_kg_m2", seed=0)  # doctest: +SKIP
+    >>> result.terms(0)  # doctest: +SKIP
+    ('log(light_mol_m2_day)', 'sqrt(co2_above_ambient_ppm)', ...)
+    """
+    setup = prepare_search(data, response=response, methods=methods, seed=seed, **options)
+    founds = run_methods(setup, n_jobs=n_jobs, backend=backend, scheduler=scheduler)
+    return finish(setup, founds, n_jobs=n_jobs, backend=backend, scheduler=scheduler)
+
+
+class Result:
+    """What a search found: the shortlist, its evidence, and access to every model.
+
+    Attributes
+    ----------
+    shortlist : DataFrame
+        One row per shortlisted model, best first.
+    candidates : CandidateSet
+    founds : tuple of Found
+        What each search returned.
+    stability : Stability or None
+    """
+
+    def __init__(self, *, setup: SearchSetup, founds, ranked, stability=None):
+        self._setup = setup
+        self.founds = tuple(founds)
+        self._ranked = ranked
+        self.stability = stability
+        self._checks: dict[int, Any] = {}
+        self._models: dict[int, Any] = {}
+
+    # -- tables -------------------------------------------------------------------------------------
+    @property
+    def shortlist(self) -> pd.DataFrame:
+        """The shortlist as a DataFrame, best model first."""
+        return self._ranked.table
+
+    @property
+    def ranking(self):
+        """The ranker's full :class:`selectkit.rank.Shortlist` (all pooled models, support, fits)."""
+        return self._ranked
+
+    @property
+    def candidates(self):
+        """The :class:`~selectkit.candidates.CandidateSet` searched."""
+        return self._setup.candidates
+
+    @property
+    def dataset(self):
+        return self._setup.dataset
+
+    @property
+    def settings(self) -> dict:
+        return dict(self._setup.settings)
+
+    def _subset(self, i: int) -> tuple[int, ...]:
+        subsets = self._ranked.subsets
+        if not 0 <= int(i) < len(subsets):
+            raise OptionError(f"model {i} is not in the shortlist; it holds models 0 to {len(subsets) - 1}")
+        return subsets[int(i)]
+
+    def terms(self, i: int = 0) -> tuple[str, ...]:
+        """Readable names of the terms of shortlisted model ``i``."""
+        return tuple(self.candidates.terms[j].name for j in self._subset(i))
+
+    def model(self, i: int = 0):
+        """statsmodels results of the QR refit of shortlisted model ``i``."""
+        from .rank import refit
+
+        if i not in self._models:
+            self._models[i] = refit(self.candidates, self._subset(i))
+        return self._models[i]
+
+    def checks(self, i: int = 0):
+        """Assumption checks (:class:`selectkit.diagnostics.Diagnosis`) of model ``i``."""
+        from .diagnostics import diagnose
+
+        if i not in self._checks:
+            self._checks[i] = diagnose(self.candidates, self._subset(i),
+                                       time_ordered=self._setup.settings["time_ordered"])
+        return self._checks[i]
+
+    def predict(self, frame: pd.DataFrame, i: int = 0) -> np.ndarray:
+        """Predictions of model ``i`` for new rows (on the scale of the searched response)."""
+        cols = [c for j in self._subset(i) for c in self.candidates.terms[j].columns]
+        X = self.candidates.transform(frame)[:, cols]
+        params = np.asarray(self.model(i).params)
+        return params[0] + X @ params[1:]
+
+    # -- plots --------------------------------------------------------------------------------------
+    def plot_criterion(self):
+        """Figure: best criterion value against model size."""
+        from .report import plots
+
+        return plots.criterion_by_size(self._ranked)
+
+    def plot_support(self):
+        """Figure: summed Akaike weight of each variable across the pooled models."""
+        from .report import plots
+
+        return plots.variable_support(self._ranked)
+
+    def plot_residuals(self, i: int = 0):
+        """Figure: residual plots of model ``i`` (vs fitted, Q-Q, scale-location, Cook's distance)."""
+        from .report import plots
+
+        return plots.residual_panel(self.checks(i))
+
+    # -- outputs ------------------------------------------------------------------------------------
+    def diagnoses(self, count: int | None = None) -> list:
+        count = len(self._ranked.subsets) if count is None else min(count, len(self._ranked.subsets))
+        return [self.checks(i) for i in range(count)]
+
+    def write(self, folder) -> dict:
+        """Write the shortlist (CSV, JSON) and the HTML report into ``folder``; return their paths."""
+        from . import report
+
+        folder = Path(folder)
+        folder.mkdir(parents=True, exist_ok=True)
+        return report.write_outputs(
+            folder,
+            settings=self.settings,
+            candidates=self.candidates,
+            founds=self.founds,
+            shortlist=self._ranked,
+            diagnoses=self.diagnoses(),
+            stability=self.stability,
+        )
+
+    def to_html(self, path) -> Path:
+        """Write the self-contained HTML report to ``path``."""
+        from .report import html as report_html
+
+        return report_html.write_html(
+            Path(path),
+            settings=self.settings,
+            candidates=self.candidates,
+            founds=self.founds,
+            shortlist=self._ranked,
+            diagnoses=self.diagnoses(),
+            stability=self.stability,
+        )
+
+    def summary(self) -> str:
+        """A short plain-text summary."""
+        from .report import text
+
+        return text.summary(settings=self.settings, founds=self.founds, shortlist=self._ranked,
+                            diagnoses=self.diagnoses(1))
+
+    def __repr__(self) -> str:
+        return (f"<selectkit.Result: {len(self._ranked.subsets)} shortlisted models of "
+                f"{self._setup.settings['response']!r}, best: {' + '.join(self.terms(0)) or '(intercept only)'}>")
+
+    def _repr_html_(self) -> str:
+        table = self.shortlist.head(10).to_html(index=False, escape=True, float_format=lambda v: f"{v:.4g}")
+        head = html.escape(f"selectkit: {len(self._ranked.subsets)} shortlisted models of "
+                           f"{self._setup.settings['response']}")
+        caution = ("p-values of a selected model are optimistic; association is not causation; "
+                   "the decision rests with the practitioner.")
+        return f"<div><strong>{head}</strong>{table}<p><em>{html.escape(caution)}</em></p></div>"
+
+    # -- persistence --------------------------------------------------------------------------------
+    def save(self, path) -> Path:
+        """Save the result to one file (a pickle; load only files you trust), atomically."""
+        path = Path(path)
+        payload = {
+            "format": _SAVE_FORMAT,
+            "version": _SAVE_VERSION,
+            "selectkit_version": __version__,
+            "setup": self._setup,
+            "founds": self.founds,
+            "ranked": self._ranked,
+            "stability": self.stability,
+        }
+        atomic_write_bytes(path, pickle.dumps(payload, protocol=pickle.HIGHEST_PROTOCOL))
+        return path
+
+
+def load(path) -> Result:
+    """Load a :class:`Result` saved with :meth:`Result.save`.
+
+    The file is a pickle: load only files you trust.
+    """
+    path = Path(path)
+    if not path.is_file():
+        from .errors import DataFileError
+
+        raise DataFileError(f"no saved result at {path}; save one with result.save(path)")
+    with open(path, "rb") as handle:
+        payload = pickle.load(handle)
+    if not isinstance(payload, dict) or payload.get("format") != _SAVE_FORMAT:
+        raise SelectkitError(f"{path} is not a saved selectkit result")
+    if payload.get("version") != _SAVE_VERSION:
+        raise SelectkitError(f"{path} was saved in format version {payload.get('version')}; "
+                             f"this selectkit reads version {_SAVE_VERSION}")
+    return Result(setup=payload["setup"], founds=payload["founds"], ranked=payload["ranked"],
+                  stability=payload["stability"])

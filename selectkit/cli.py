@@ -1,0 +1,350 @@
+"""The command line: the only module that prints for a person or exits.
+
+Commands::
+
+    selectkit search TABLE --response COL [options]   search, rank, check, write the shortlist and report
+    selectkit forms TABLE --response COL              list the candidate terms a table gives
+    selectkit demo [--out FOLDER]                     the whole job on the bundled greenhouse data
+    selectkit job new TABLE -o job.toml               write a commented starter job file
+    selectkit job run job.toml                        run (or continue) an overnight job
+    selectkit job resume FOLDER                       continue an interrupted job from its run store
+    selectkit job status FOLDER                       progress of a job, readable from another shell
+
+Bad input ends with one line on standard error and exit code 2 (no traceback
+unless ``--debug``); an interrupt exits with 130 after the unit in hand.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+from pathlib import Path
+
+from . import __version__
+from .errors import SelectkitError
+
+__all__ = ["main", "build_parser"]
+
+EXIT_BAD_INPUT = 2
+EXIT_INTERNAL = 1
+EXIT_INTERRUPTED = 130
+
+
+def _csv_list(text: str) -> list[str]:
+    return [part.strip() for part in text.split(",") if part.strip()]
+
+
+def _add_table_roles(p: argparse.ArgumentParser) -> None:
+    p.add_argument("table", help="CSV or Parquet file (delimiter, decimal mark and encoding are detected)")
+    p.add_argument("-r", "--response", required=True, help="name of the response column")
+    p.add_argument("--only", type=_csv_list, metavar="COL,COL", default=None,
+                   help="use only these columns as predictors (default: every other column)")
+    p.add_argument("--keep-in", type=_csv_list, metavar="COL,COL", default=[],
+                   help="predictors every model must hold (in some form)")
+    p.add_argument("--leave-out", type=_csv_list, metavar="COL,COL", default=[],
+                   help="columns that are not predictors")
+    p.add_argument("--row-weights", metavar="COL", default=None, help="column of positive row weights")
+    p.add_argument("--drop-incomplete-rows", action="store_true",
+                   help="drop rows with missing values (default: refuse and list them)")
+    p.add_argument("--keep-id-columns", type=_csv_list, metavar="COL,COL", default=[],
+                   help="keep these identifier-like columns as predictors (excluded by default)")
+    p.add_argument("--forms", type=_csv_list, metavar="FORM,FORM", default=None,
+                   help="forms of each numeric predictor: identity, log, sqrt, reciprocal, square, "
+                        "boxcox, boxtidwell (default: all of them)")
+    p.add_argument("--fractional-powers", action="store_true",
+                   help="also try the fractional-polynomial powers -2, -1, -0.5, 0, 0.5, 1, 2, 3")
+    p.add_argument("--shift", action="append", default=[], metavar="COL=C",
+                   help="allow log/sqrt/reciprocal of COL + C (C a number, or 'auto'); repeatable")
+    p.add_argument("--pairwise-products", action="store_true",
+                   help="add every pairwise product x*z of numeric predictors (hierarchy kept)")
+    p.add_argument("--response-form", default=None, metavar="FORM",
+                   help="transform the response: log, sqrt or boxcox:LAMBDA")
+
+
+def _add_search_options(p: argparse.ArgumentParser) -> None:
+    from .api import AIMS, METHODS
+
+    p.add_argument("-m", "--method", action="append", dest="methods", choices=METHODS, default=None,
+                   help="search to run (repeatable; findings are pooled). Default: auto = exact best subset "
+                        "when the terms are few enough, else screen -> exact -> stepwise polish")
+    p.add_argument("--aim", choices=AIMS, default="explain",
+                   help="explain: rank by BIC (find the terms that matter); predict: rank by AICc")
+    p.add_argument("--rank-by", default=None, metavar="CRITERION",
+                   help="rank by this criterion instead: aic, aicc, bic, cp, adj_r2, press, cv_mse")
+    p.add_argument("--statsmodels-convention", action="store_true",
+                   help="count k coefficients (not k+1 parameters) in AIC/BIC, as statsmodels does; "
+                        "rankings are unchanged")
+    p.add_argument("--top", type=int, default=10, metavar="N", help="models in the shortlist (default 10)")
+    p.add_argument("--within-delta", type=float, default=None, metavar="D",
+                   help="keep only models within D of the best by the ranking criterion")
+    p.add_argument("--folds", type=int, default=5, metavar="K", help="folds for cross-validated error (default 5)")
+    p.add_argument("--resamples", type=int, default=0, metavar="B",
+                   help="bootstrap resamples for the stability of the selection (default 0: skip)")
+    p.add_argument("--rows-in-time-order", action="store_true",
+                   help="row order means time or sequence (enables the Durbin-Watson check, blocked folds)")
+    p.add_argument("--workers", type=int, default=1, metavar="N", help="worker processes (-1: all cores)")
+    p.add_argument("--backend", default="loky", help="joblib backend: loky, threading, multiprocessing, dask")
+    p.add_argument("--scheduler", default=None, metavar="ADDRESS", help="Dask scheduler address for --backend dask")
+    p.add_argument("--seed", type=int, default=0, help="seed of every random draw (default 0)")
+    p.add_argument("--time-budget", type=float, default=None, metavar="SECONDS",
+                   help="stop searching after this long and report the best found (marked not proven exact)")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="selectkit",
+        description="Find which predictors, in which forms, give a defensible linear regression model.",
+        epilog="Cautions: p-values of a selected model are optimistic; association is not causation; "
+               "the decision rests with the practitioner.",
+    )
+    parser.add_argument("--version", action="version", version=f"selectkit {__version__}")
+    parser.add_argument("--debug", action="store_true", help="show the full traceback on errors")
+    commands = parser.add_subparsers(dest="command", metavar="COMMAND")
+    # --debug is accepted after the command too; SUPPRESS keeps the top-level value when absent.
+    common = argparse.ArgumentParser(add_help=False)
+    common.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
+                        help="show the full traceback on errors")
+
+    p = commands.add_parser("search", parents=[common], help="search a table, write the shortlist and the report",
+                            description="Search for the best linear models of a response and write the "
+                                        "shortlist (CSV, JSON) and a self-contained HTML report.")
+    _add_table_roles(p)
+    _add_search_options(p)
+    p.add_argument("-o", "--out", default="selectkit-output", metavar="FOLDER",
+                   help="folder for the shortlist and the report (default: selectkit-output)")
+    p.add_argument("--quiet", action="store_true", help="print nothing but errors")
+
+    p = commands.add_parser("forms", parents=[common], help="list the candidate terms a table gives",
+                            description="Read a table and list every candidate term (and every refused form, "
+                                        "with the reason) without searching.")
+    _add_table_roles(p)
+    p.add_argument("--save", default=None, metavar="CSV", help="also write the list as CSV")
+
+    p = commands.add_parser("demo", parents=[common], help="run the whole job on the bundled greenhouse data",
+                            description="Run intake, candidates, search, ranking, checks and the report on "
+                                        "the bundled invented greenhouse data.")
+    p.add_argument("-o", "--out", default="selectkit-demo", metavar="FOLDER",
+                   help="folder for the outputs (default: selectkit-demo)")
+    p.add_argument("--workers", type=int, default=1, metavar="N", help="worker processes")
+    p.add_argument("--seed", type=int, default=0)
+
+    job = commands.add_parser("job", parents=[common], help="overnight jobs: job files, run stores, resume, status",
+                              description="Run long searches from a job file with a run store that survives "
+                                          "interruptions.")
+    jobs = job.add_subparsers(dest="job_command", metavar="JOB_COMMAND")
+    j = jobs.add_parser("new", parents=[common], help="write a commented starter job file for a table")
+    j.add_argument("table")
+    j.add_argument("-o", "--out", default="job.toml", metavar="JOB_FILE")
+    j.add_argument("-r", "--response", default=None)
+    j.add_argument("--force", action="store_true", help="overwrite an existing job file")
+    j = jobs.add_parser("run", parents=[common], help="run a job file (continues its run store if one exists)")
+    j.add_argument("job_file")
+    j.add_argument("--fresh", action="store_true", help="refuse to continue an existing run store")
+    j = jobs.add_parser("resume", parents=[common], help="continue an interrupted job from its output folder or run store")
+    j.add_argument("folder")
+    j = jobs.add_parser("status", parents=[common], help="show the progress of a job (safe while it runs)")
+    j.add_argument("folder")
+    return parser
+
+
+# ---------------------------------------------------------------------------------------------------
+
+
+def _response_form(text):
+    if text is None:
+        return None
+    text = text.strip().lower()
+    if text.startswith("boxcox:"):
+        try:
+            return ("boxcox", float(text.split(":", 1)[1]))
+        except ValueError:
+            raise SelectkitError(f"--response-form {text!r}: write boxcox:LAMBDA with a number, e.g. boxcox:0.5")
+    return text
+
+
+def _shifts(items):
+    shifts = {}
+    for item in items:
+        if "=" not in item:
+            raise SelectkitError(f"--shift {item!r}: write COL=C, e.g. --shift bay_age_years=1 or COL=auto")
+        col, value = item.split("=", 1)
+        value = value.strip()
+        if value != "auto":
+            try:
+                value = float(value)
+            except ValueError:
+                raise SelectkitError(f"--shift {item!r}: C must be a number or 'auto'")
+        shifts[col.strip()] = value
+    return shifts
+
+
+def _table_options(args) -> dict:
+    return dict(
+        response=args.response,
+        predictors=args.only,
+        forced=args.keep_in,
+        exclude=args.leave_out,
+        weights=args.row_weights,
+        missing="drop" if args.drop_incomplete_rows else "refuse",
+        keep_identifiers=args.keep_id_columns,
+        forms=args.forms,
+        fractional_polynomials=args.fractional_powers,
+        shifts=_shifts(args.shift),
+        interactions=args.pairwise_products,
+        response_transform=_response_form(args.response_form),
+    )
+
+
+def _search_options(args) -> dict:
+    return dict(
+        methods=tuple(args.methods or ("auto",)),
+        aim=args.aim,
+        criterion=args.rank_by,
+        convention="statsmodels" if args.statsmodels_convention else "selectkit",
+        shortlist_size=args.top,
+        max_delta=args.within_delta,
+        folds=args.folds,
+        stability=args.resamples,
+        time_ordered=args.rows_in_time_order,
+        seed=args.seed,
+        time_budget=args.time_budget,
+    )
+
+
+def _say(text: str = "", *, quiet: bool = False) -> None:
+    if not quiet:
+        print(text, flush=True)
+
+
+def _run_search(args) -> int:
+    from . import api
+
+    started = time.perf_counter()
+    setup = api.prepare_search(args.table, **_table_options(args), **_search_options(args))
+    _say(f"read {setup.dataset.n} rows; {len(setup.candidates.terms)} candidate terms from "
+         f"{len(setup.candidates.families)} variables; running: {', '.join(r.name for r in setup.runs)}",
+         quiet=args.quiet)
+    founds = api.run_methods(setup, n_jobs=args.workers, backend=args.backend, scheduler=args.scheduler)
+    result = api.finish(setup, founds, n_jobs=args.workers, backend=args.backend, scheduler=args.scheduler)
+    paths = result.write(args.out)
+    _say(result.summary(), quiet=args.quiet)
+    for label, path in paths.items():
+        _say(f"  {label}: {path}", quiet=args.quiet)
+    _say(f"done in {time.perf_counter() - started:.1f} s", quiet=args.quiet)
+    return 0
+
+
+def _run_forms(args) -> int:
+    from . import candidates as _candidates
+    from . import data as _data
+
+    opts = _table_options(args)
+    build = {k: opts.pop(k) for k in ("fractional_polynomials", "shifts", "interactions", "response_transform")}
+    forms = opts.pop("forms")
+    if forms is not None:
+        build["forms"] = tuple(forms)
+    dataset = _data.prepare(args.table, **opts)
+    cands = _candidates.build_candidates(dataset, **build)
+    for note in dataset.report.notes:
+        print(f"note: {note.message}")
+    table = cands.describe()
+    import pandas as pd
+
+    with pd.option_context("display.max_rows", None, "display.width", 160, "display.max_colwidth", 60):
+        print(table.to_string(index=False))
+    print(f"{len(cands.terms)} terms in {len(cands.families)} families, {cands.matrix.shape[1]} columns, "
+          f"{dataset.n} rows")
+    if args.save:
+        from ._io import atomic_write_text
+
+        atomic_write_text(Path(args.save), table.to_csv(index=False))
+        print(f"wrote {args.save}")
+    return 0
+
+
+def _run_demo(args) -> int:
+    import pandas as pd
+
+    from . import api
+    from .demo import RESPONSE, TRUE_TERMS, demo_csv_path, make_greenhouse
+
+    path = demo_csv_path()
+    data = pd.read_csv(path) if path is not None else make_greenhouse()
+    where = str(path) if path is not None else "generated in memory (fixed seed)"
+    print(f"demo: invented greenhouse data, {len(data)} bay-seasons, {data.shape[1] - 1} measurements ({where})")
+    print(f"demo: the data were generated from: {RESPONSE} ~ {' + '.join(TRUE_TERMS)}")
+    started = time.perf_counter()
+    setup = api.prepare_search(data, response=RESPONSE, seed=args.seed)
+    print(f"demo: {len(setup.candidates.terms)} candidate terms; running {', '.join(r.name for r in setup.runs)}")
+    founds = api.run_methods(setup, n_jobs=args.workers)
+    result = api.finish(setup, founds, n_jobs=args.workers)
+    paths = result.write(args.out)
+    print(result.summary())
+    found_terms = set(result.terms(0))
+    truth = set(TRUE_TERMS)
+    if found_terms == truth:
+        print("demo: the best model is exactly the generating model.")
+    else:
+        missing = sorted(truth - found_terms)
+        extra = sorted(found_terms - truth)
+        print(f"demo: best model differs from the generating model: missing {missing or 'none'}, "
+              f"extra {extra or 'none'}")
+        ranks = [i for i in range(len(result.ranking.subsets)) if set(result.terms(i)) == truth]
+        print(f"demo: the generating model is shortlisted at position {ranks[0] + 1}" if ranks
+              else "demo: the generating model is not in the shortlist")
+    for label, p in paths.items():
+        print(f"  {label}: {p}")
+    print(f"demo: done in {time.perf_counter() - started:.1f} s")
+    return 0
+
+
+def _run_job(args) -> int:
+    from . import jobs
+
+    if args.job_command == "new":
+        out = Path(args.out)
+        if out.exists() and not args.force:
+            raise SelectkitError(f"{out} exists; choose another name with -o or pass --force to overwrite")
+        from ._io import atomic_write_text
+
+        atomic_write_text(out, jobs.starter_job(args.table, response=args.response))
+        print(f"wrote {out}; fill in what it asks, then: selectkit job run {out}")
+        return 0
+    if args.job_command == "run":
+        outcome = jobs.run_job(args.job_file, resume=not args.fresh)
+    elif args.job_command == "resume":
+        outcome = jobs.resume_job(args.folder)
+    elif args.job_command == "status":
+        print(jobs.store_status(args.folder).render())
+        return 0
+    else:
+        raise SelectkitError("name a job command: new, run, resume or status (see selectkit job --help)")
+    print(outcome.render())
+    return 0 if outcome.complete else 3
+
+
+def main(argv=None) -> int:
+    """Run the command line; return the exit code."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if args.command is None:
+        parser.print_help()
+        return EXIT_BAD_INPUT
+    handlers = {"search": _run_search, "forms": _run_forms, "demo": _run_demo, "job": _run_job}
+    try:
+        return handlers[args.command](args)
+    except SelectkitError as err:
+        if args.debug:
+            raise
+        print(f"selectkit: error: {err}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        print("selectkit: interrupted", file=sys.stderr)
+        return EXIT_INTERRUPTED
+    except Exception as err:  # an internal fault: one line, and how to see more
+        if args.debug:
+            raise
+        print(f"selectkit: internal error ({type(err).__name__}: {err}); rerun with --debug for the traceback",
+              file=sys.stderr)
+        return EXIT_INTERNAL

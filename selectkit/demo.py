@@ -1,0 +1,115 @@
+"""The bundled demo: invented greenhouse data generated from a known model.
+
+A greenhouse operator records, for each growing bay and season, the tomato
+yield (kg/m²) and about thirty bay measurements.  The data are **invented**:
+they are drawn from the model below with a fixed seed, so the demo can show
+whether a search recovers the truth and how sure it is.
+
+True model (``TRUE_TERMS``)::
+
+    yield_kg_m2 = 6 + 5.5·log(light_mol_m2_day) + 0.15·sqrt(co2_above_ambient_ppm)
+                  + 0.45·night_temp_c − 10/plant_density_m2
+                  + cultivar effect (Ruby 0, Amber +1.6, Garnet −1.1) + ε,   ε ~ N(0, 1.1²)
+
+Everything else is a decoy: a second light sensor that tracks the first
+(r ≈ 0.97), day temperature that follows night temperature, irrigation that
+follows light, a CO₂ set-point that is an exact shift of the CO₂ excess (intake
+reports it as collinear), bay and sensor identifiers, and a dozen auxiliary
+probe readings of pure noise.  Four bays carry outlying yields (a pest
+outbreak in the story), which the influence checks should flag.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+__all__ = ["RESPONSE", "TRUE_TERMS", "SEED", "make_greenhouse", "demo_csv_path"]
+
+RESPONSE = "yield_kg_m2"
+#: Readable names of the terms of the generating model.
+TRUE_TERMS = (
+    "log(light_mol_m2_day)",
+    "sqrt(co2_above_ambient_ppm)",
+    "night_temp_c",
+    "1/plant_density_m2",
+    "cultivar",
+)
+SEED = 20261202
+N_ROWS = 240
+
+
+def make_greenhouse(n_rows: int = N_ROWS, seed: int = SEED) -> pd.DataFrame:
+    """Generate the invented greenhouse table.
+
+    Parameters
+    ----------
+    n_rows : int, default 240
+        Number of bay-seasons.
+    seed : int
+        Seed of the numpy Generator; the bundled CSV uses the default.
+
+    Returns
+    -------
+    DataFrame
+        One row per bay-season, the response ``yield_kg_m2`` first.
+
+    Examples
+    --------
+    >>> frame = make_greenhouse(50)
+    >>> frame.shape[0]
+    50
+    """
+    rng = np.random.default_rng(seed)
+    n = int(n_rows)
+    light = rng.uniform(8.0, 30.0, n)
+    co2_above = np.round(rng.uniform(0.0, 700.0, n) * (rng.random(n) > 0.08), 0)  # some bays unenriched: zeros
+    night_temp = rng.uniform(14.0, 20.0, n)
+    density = rng.uniform(2.0, 4.0, n)
+    cultivar = rng.choice(np.array(["Ruby", "Amber", "Garnet"]), size=n, p=[0.45, 0.35, 0.20])
+    cultivar_effect = np.select([cultivar == "Amber", cultivar == "Garnet"], [1.6, -1.1], 0.0)
+
+    noise = rng.normal(0.0, 1.1, n)
+    y = (
+        6.0
+        + 5.5 * np.log(light)
+        + 0.15 * np.sqrt(co2_above)
+        + 0.45 * night_temp
+        - 10.0 / density
+        + cultivar_effect
+        + noise
+    )
+    outliers = rng.choice(n, size=4, replace=False)
+    y[outliers] -= rng.uniform(6.0, 9.0, 4)  # pest outbreak in four bays
+
+    frame = pd.DataFrame(
+        {
+            RESPONSE: np.round(y, 3),
+            "bay_id": [f"bay-{i + 1:03d}" for i in range(n)],
+            "light_mol_m2_day": np.round(light, 3),
+            "light_backup_sensor": np.round(light * rng.normal(1.0, 0.05, n) + rng.normal(0, 0.5, n), 3),
+            "co2_above_ambient_ppm": co2_above,
+            "co2_setpoint_ppm": co2_above + 420.0,
+            "night_temp_c": np.round(night_temp, 2),
+            "day_temp_c": np.round(night_temp + 6.0 + rng.normal(0.0, 0.8, n), 2),
+            "vapour_deficit_kpa": np.round(rng.uniform(0.3, 1.5, n), 3),
+            "irrigation_l_m2_day": np.round(1.0 + 0.15 * light + rng.normal(0.0, 0.6, n), 3),
+            "nutrient_ec_ms_cm": np.round(rng.uniform(2.0, 5.0, n), 2),
+            "plant_density_m2": np.round(density, 3),
+            "bay_age_years": rng.integers(1, 26, n).astype(float),
+            "heating_pipe_distance_m": np.round(rng.uniform(0.5, 6.0, n), 2),
+            "cultivar": cultivar,
+            "sensor_serial": rng.permutation(np.arange(10_000, 10_000 + n)),
+        }
+    )
+    for j in range(1, 13):
+        frame[f"aux_probe_{j:02d}"] = np.round(rng.normal(50.0, 10.0, n), 3)
+    return frame
+
+
+def demo_csv_path() -> Path | None:
+    """Path of the bundled CSV when running from a source checkout, else None."""
+    path = Path(__file__).resolve().parent.parent / "demo" / "greenhouse.csv"
+    return path if path.is_file() else None
