@@ -1,16 +1,56 @@
 """Moments: centred cross-products of candidates and response from one pass.
 
-(Contract stub with a plain implementation; the chunked, numerically careful
-pass replaces ``compute_moments``.)
+Every search works from the sufficient statistics of least squares — the
+weighted means and the centred cross-product matrix of the candidate columns
+and the response — never from the n×p data again, so its cost does not depend
+on the number of rows.
+
+The pass is chunked: each chunk's moments are computed by the two-pass centred
+formula (mean first, then Σ w (x − x̄)(z − z̄)ᵀ), and chunks are merged with the
+exact pairwise update of Chan, Golub & LeVeque (1979, 1983)::
+
+    W = W_A + W_B,   δ = x̄_B − x̄_A,
+    x̄ = x̄_A + δ · W_B / W,
+    C = C_A + C_B + δ δᵀ · W_A W_B / W
+
+which is also run backwards to remove rows: ``Moments(all) − Moments(fold)``
+gives the moments of the training rows of a cross-validation fold without a
+second pass over the data.
+
+References
+----------
+Chan, T. F., Golub, G. H. and LeVeque, R. J. (1979). Updating formulae and a
+    pairwise algorithm for computing sample variances. Stanford CS report
+    STAN-CS-79-773; (1983) Algorithms for computing the sample variance:
+    analysis and recommendations. Amer. Statist. 37(3), 242-247.
+Welford, B. P. (1962). Note on a method for calculating corrected sums of
+    squares and products. Technometrics 4(3), 419-420.
 """
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
+from typing import Callable, Iterable
 
 import numpy as np
 
-__all__ = ["Moments", "compute_moments"]
+from .errors import DataFileError, InputError, SearchError
+from .kernels import PIVOT_TOLERANCE
+
+__all__ = [
+    "Moments",
+    "Solution",
+    "compute_moments",
+    "moments_from_chunks",
+    "moments_from_file",
+    "solve",
+    "heldout_sse",
+    "DEFAULT_CHUNK_ROWS",
+]
+
+#: Rows per chunk of the moment pass (about 8 MB per 16 columns of float64).
+DEFAULT_CHUNK_ROWS = 65_536
 
 
 @dataclass(frozen=True, eq=False)
@@ -30,6 +70,22 @@ class Moments:
         Weighted means of the m candidate columns and the response.
     cross : ndarray, shape (m + 1, m + 1)
         Weighted centred cross-products Σ wᵢ (xᵢ − x̄)(zᵢ − z̄)ᵀ.
+
+    Notes
+    -----
+    ``a + b`` merges the moments of two disjoint sets of rows and ``a − b``
+    removes the rows of ``b`` (which must be a subset of the rows of ``a``);
+    both are exact up to rounding (Chan, Golub & LeVeque 1979).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> X = np.arange(12.0).reshape(6, 2); y = np.array([1., 3, 2, 5, 4, 6])
+    >>> whole = compute_moments(X, y)
+    >>> part = compute_moments(X[:2], y[:2])
+    >>> rest = whole - part
+    >>> bool(np.allclose(rest.cross, compute_moments(X[2:], y[2:]).cross))
+    True
     """
 
     n: int
@@ -47,10 +103,426 @@ class Moments:
         """Total (weighted) sum of squares of the response about its mean."""
         return float(self.cross[-1, -1])
 
+    @property
+    def scales(self) -> np.ndarray:
+        """Square roots of the diagonal of ``cross`` (root centred sums of squares), response last."""
+        return np.sqrt(np.maximum(np.diag(self.cross), 0.0))
 
-def compute_moments(matrix, y, weights=None):
-    x = np.column_stack([np.asarray(matrix, dtype=float), np.asarray(y, dtype=float)])
-    w = np.ones(x.shape[0]) if weights is None else np.asarray(weights, dtype=float)
-    mean = w @ x / w.sum()
-    d = x - mean
-    return Moments(n=x.shape[0], weight_sum=float(w.sum()), mean=mean, cross=(d * w[:, None]).T @ d)
+    def uncentred(self) -> np.ndarray:
+        """Uncentred weighted cross-products Σ wᵢ xᵢ zᵢᵀ = C + W x̄ x̄ᵀ (response last)."""
+        return self.cross + self.weight_sum * np.outer(self.mean, self.mean)
+
+    def __add__(self, other: "Moments") -> "Moments":
+        if not isinstance(other, Moments):
+            return NotImplemented
+        _check_same_width(self, other)
+        if other.weight_sum == 0:
+            return Moments(self.n + other.n, self.weight_sum, self.mean.copy(), self.cross.copy())
+        if self.weight_sum == 0:
+            return Moments(self.n + other.n, other.weight_sum, other.mean.copy(), other.cross.copy())
+        total = self.weight_sum + other.weight_sum
+        delta = other.mean - self.mean
+        mean = self.mean + delta * (other.weight_sum / total)
+        cross = self.cross + other.cross + np.outer(delta, delta) * (self.weight_sum * other.weight_sum / total)
+        return Moments(self.n + other.n, float(total), mean, _symmetric(cross))
+
+    def __sub__(self, other: "Moments") -> "Moments":
+        if not isinstance(other, Moments):
+            return NotImplemented
+        _check_same_width(self, other)
+        n = self.n - other.n
+        rest = self.weight_sum - other.weight_sum
+        if n <= 0 or not rest > 0:
+            raise InputError(
+                f"cannot remove {other.n} rows (weight {other.weight_sum:g}) from moments of {self.n} rows "
+                f"(weight {self.weight_sum:g}): nothing would be left; a fold must be a strict subset of the rows"
+            )
+        if other.weight_sum == 0:
+            return Moments(n, self.weight_sum, self.mean.copy(), self.cross.copy())
+        mean = self.mean + (self.mean - other.mean) * (other.weight_sum / rest)
+        delta = other.mean - mean
+        cross = self.cross - other.cross - np.outer(delta, delta) * (rest * other.weight_sum / self.weight_sum)
+        return Moments(n, float(rest), mean, _symmetric(cross))
+
+
+@dataclass(frozen=True)
+class Solution:
+    """Least-squares fit computed from moments.
+
+    Attributes
+    ----------
+    columns : tuple of int
+        Candidate columns of the model, in the order of ``coef``.
+    intercept : float
+        Fitted intercept (0.0 when fitted without one).
+    coef : ndarray
+        Coefficients of ``columns``.
+    rss : float
+        Weighted residual sum of squares Σ wᵢ eᵢ².
+    """
+
+    columns: tuple[int, ...]
+    intercept: float
+    coef: np.ndarray
+    rss: float
+
+
+def _symmetric(a: np.ndarray) -> np.ndarray:
+    return 0.5 * (a + a.T)
+
+
+def _check_same_width(a: Moments, b: Moments) -> None:
+    if a.mean.shape != b.mean.shape:
+        raise InputError(
+            f"moments of {a.m} and {b.m} candidate columns cannot be combined; "
+            "both must come from the same candidate set"
+        )
+
+
+def _empty(width: int) -> Moments:
+    return Moments(0, 0.0, np.zeros(width), np.zeros((width, width)))
+
+
+def _chunk_moments(X: np.ndarray, y: np.ndarray, w: np.ndarray | None, first_row: int) -> Moments:
+    """Two-pass centred moments of one chunk (response appended last)."""
+    if X.ndim == 1:
+        X = X[:, None]
+    if X.shape[0] != y.shape[0]:
+        raise InputError(
+            f"the candidate matrix has {X.shape[0]} rows but the response has {y.shape[0]} "
+            f"(chunk starting at row {first_row}); pass them with the same rows"
+        )
+    Z = np.column_stack([X, y]).astype(np.float64, copy=False)
+    bad = ~np.isfinite(Z)
+    if bad.any():
+        counts = bad.sum(axis=0)
+        j = int(np.flatnonzero(counts)[0])
+        what = "the response" if j == Z.shape[1] - 1 else f"candidate column {j}"
+        raise InputError(
+            f"{what} has {int(counts[j])} missing or infinite values in rows {first_row}.."
+            f"{first_row + Z.shape[0] - 1}; drop or impute those rows before computing moments",
+        )
+    rows = Z.shape[0]
+    if w is None:
+        if rows == 0:
+            return _empty(Z.shape[1])
+        mean = Z.mean(axis=0)
+        D = Z - mean
+        return Moments(rows, float(rows), mean, _symmetric(D.T @ D))
+    w = np.asarray(w, dtype=np.float64).reshape(-1)
+    if w.shape[0] != rows:
+        raise InputError(f"the weights have {w.shape[0]} rows but the data have {rows} (chunk at row {first_row})")
+    if not np.all(np.isfinite(w)) or np.any(w < 0):
+        n_bad = int(np.sum(~np.isfinite(w) | (w < 0)))
+        raise InputError(
+            f"{n_bad} weights are negative, missing or infinite (rows {first_row}..{first_row + rows - 1}); "
+            "weights must be finite and non-negative"
+        )
+    total = float(w.sum())
+    if total == 0:
+        return Moments(rows, 0.0, np.zeros(Z.shape[1]), np.zeros((Z.shape[1], Z.shape[1])))
+    mean = w @ Z / total
+    D = Z - mean
+    return Moments(rows, total, mean, _symmetric((D * w[:, None]).T @ D))
+
+
+def compute_moments(matrix, y, weights=None, *, chunk_rows: int = DEFAULT_CHUNK_ROWS) -> Moments:
+    """Weighted means and centred cross-products of ``[matrix, y]`` in one chunked pass.
+
+    Parameters
+    ----------
+    matrix : array_like, shape (n, m)
+        Candidate columns.
+    y : array_like, shape (n,)
+        Response.
+    weights : array_like, shape (n,), optional
+        Non-negative case weights wᵢ (weighted least squares minimises Σ wᵢ eᵢ²).
+    chunk_rows : int
+        Rows per chunk; each chunk is centred on its own mean (two-pass) and
+        merged pairwise (Chan, Golub & LeVeque 1979).
+
+    Returns
+    -------
+    Moments
+
+    Raises
+    ------
+    InputError
+        On mismatched lengths, missing/infinite values or invalid weights.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> mom = compute_moments(np.array([[1.0], [2.0], [3.0]]), np.array([2.0, 4.0, 6.5]))
+    >>> float(mom.cross[0, 1])   # Σ (x − x̄)(y − ȳ)
+    4.5
+    """
+    X = np.asarray(matrix, dtype=np.float64)
+    if X.ndim == 1:
+        X = X[:, None]
+    yv = np.asarray(y, dtype=np.float64).reshape(-1)
+    w = None if weights is None else np.asarray(weights, dtype=np.float64).reshape(-1)
+    if X.shape[0] != yv.shape[0]:
+        raise InputError(
+            f"the candidate matrix has {X.shape[0]} rows but the response has {yv.shape[0]}; "
+            "pass them with the same rows"
+        )
+    if w is not None and w.shape[0] != yv.shape[0]:
+        raise InputError(f"the weights have {w.shape[0]} rows but the data have {yv.shape[0]}; pass one weight per row")
+    step = _check_chunk_rows(chunk_rows)
+    return moments_from_chunks(
+        (X[s:s + step], yv[s:s + step], None if w is None else w[s:s + step])
+        for s in range(0, max(X.shape[0], 1), step)
+    )
+
+
+def _check_chunk_rows(chunk_rows) -> int:
+    if isinstance(chunk_rows, bool) or not isinstance(chunk_rows, (int, np.integer)) or chunk_rows < 1:
+        raise InputError(f"chunk_rows must be a positive whole number of rows (got {chunk_rows!r})")
+    return int(chunk_rows)
+
+
+def moments_from_chunks(chunks: Iterable) -> Moments:
+    """Merge the moments of chunks of rows given as ``(X, y, w_or_None)`` triples.
+
+    Parameters
+    ----------
+    chunks : iterable of tuple
+        ``(X, y)`` or ``(X, y, w)``; every ``X`` must have the same columns.
+
+    Returns
+    -------
+    Moments
+        Moments of all rows; only one chunk is held at a time.
+    """
+    total = None
+    first_row = 0
+    for chunk in chunks:
+        if len(chunk) == 2:
+            X, y = chunk
+            w = None
+        elif len(chunk) == 3:
+            X, y, w = chunk
+        else:
+            raise InputError(f"each chunk must be (X, y) or (X, y, weights); got a tuple of {len(chunk)} items")
+        X = np.asarray(X, dtype=np.float64)
+        yv = np.asarray(y, dtype=np.float64).reshape(-1)
+        part = _chunk_moments(X, yv, w, first_row)
+        first_row += yv.shape[0]
+        if total is None:
+            total = part
+        else:
+            if part.mean.shape != total.mean.shape:
+                raise InputError(
+                    f"the chunk starting at row {first_row - yv.shape[0]} has {part.m} candidate columns "
+                    f"but earlier chunks had {total.m}; every chunk needs the same columns"
+                )
+            total = total + part
+    if total is None or total.n == 0:
+        raise InputError("no rows to compute moments from; the data are empty")
+    if not total.weight_sum > 0:
+        raise InputError(f"all {total.n} weights are zero; at least one row needs a positive weight")
+    return total
+
+
+def moments_from_file(
+    path,
+    candidates=None,
+    *,
+    transform: Callable | None = None,
+    chunk_rows: int = DEFAULT_CHUNK_ROWS,
+    columns: list | None = None,
+) -> Moments:
+    """Moments of a CSV or Parquet file read in chunks, so memory does not grow with n.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        A ``.csv`` (optionally compressed, read with ``pandas.read_csv(chunksize=...)``)
+        or ``.parquet``/``.pq`` file (read with ``pyarrow`` ``iter_batches``).
+    candidates : CandidateSet, optional
+        Whose ``transform(frame)`` maps a chunk of the raw table to
+        ``(X, y)`` or ``(X, y, w)``.
+    transform : callable, optional
+        Used instead of ``candidates.transform``: ``frame -> (X, y)`` or ``(X, y, w)``.
+    chunk_rows : int
+        Rows per chunk.
+    columns : list of str, optional
+        Only these columns are read from the file.
+
+    Returns
+    -------
+    Moments
+
+    Raises
+    ------
+    DataFileError
+        When the file is missing or of an unknown kind.
+    InputError
+        When neither ``candidates`` with a ``transform`` method nor ``transform`` is given.
+    """
+    step = _check_chunk_rows(chunk_rows)
+    if transform is None:
+        transform = getattr(candidates, "transform", None)
+    if transform is None or not callable(transform):
+        raise InputError(
+            "moments_from_file needs a way to turn a chunk of the table into (X, y): pass a candidate set "
+            "with a transform method, or transform=callable"
+        )
+    path = os.fspath(path)
+    if not os.path.isfile(path):
+        raise DataFileError(f"data file {path!r} does not exist; check the path")
+    lower = path.lower()
+    if lower.endswith((".parquet", ".pq")):
+        try:
+            import pyarrow.parquet as pq
+        except ImportError as err:  # pragma: no cover - depends on the environment
+            raise DataFileError("reading Parquet needs pyarrow; install it with: pip install pyarrow") from err
+
+        def frames():
+            handle = pq.ParquetFile(path)
+            for batch in handle.iter_batches(batch_size=step, columns=columns):
+                yield batch.to_pandas()
+    elif lower.endswith((".csv", ".csv.gz", ".csv.bz2", ".csv.xz", ".txt", ".tsv")):
+        import pandas as pd
+
+        def frames():
+            sep = "\t" if lower.endswith(".tsv") else ","
+            with pd.read_csv(path, chunksize=step, usecols=columns, sep=sep) as reader:
+                yield from reader
+    else:
+        raise DataFileError(
+            f"cannot tell the kind of {path!r} from its name; use a .csv or .parquet file"
+        )
+
+    def chunks():
+        for frame in frames():
+            out = transform(frame)
+            if not isinstance(out, tuple) or len(out) not in (2, 3):
+                raise InputError("the transform must return (X, y) or (X, y, weights) for each chunk")
+            yield out
+
+    return moments_from_chunks(chunks())
+
+
+def _pivoted_factor(A: np.ndarray, tolerance: float):
+    """Cholesky factor of a scaled Gram matrix with a unit-diagonal pivot test.
+
+    ``A`` has unit diagonal (or zero for a constant column).  Returns the upper
+    factor and the index of the first column whose pivot falls below
+    ``tolerance`` (−1 when none does).
+    """
+    size = A.shape[0]
+    R = np.zeros_like(A)
+    for j in range(size):
+        d = A[j, j] - R[:j, j] @ R[:j, j]
+        if A[j, j] <= 0 or d <= tolerance * A[j, j]:
+            return R, j
+        R[j, j] = np.sqrt(d)
+        R[j, j + 1:] = (A[j, j + 1:] - R[:j, j] @ R[:j, j + 1:]) / R[j, j]
+    return R, -1
+
+
+def solve(moments: Moments, columns, *, intercept: bool = True) -> Solution:
+    """Least-squares coefficients and rss of a model from moments only.
+
+    With an intercept the fit uses the centred cross-products ``C``:
+    β = C_XX⁻¹ C_Xy, a = ȳ − x̄ᵀβ, rss = C_yy − C_yXβ.  Without one, the
+    uncentred products C + W x̄x̄ᵀ.  The Gram matrix is scaled to unit diagonal
+    and factored by Cholesky; a pivot below ``PIVOT_TOLERANCE`` times the
+    column's own (scaled, hence unit) sum of squares — i.e. R² of the column on
+    the earlier ones above 1 − tolerance — means rank deficiency.
+
+    Parameters
+    ----------
+    moments : Moments
+    columns : sequence of int
+        Candidate columns of the model (may be empty).
+    intercept : bool, default True
+
+    Returns
+    -------
+    Solution
+
+    Raises
+    ------
+    SearchError
+        When the columns are rank-deficient (collinear, or a constant column).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> X = np.array([[0.0], [1.0], [2.0], [3.0]]); y = 1.0 + 2.0 * X[:, 0]
+    >>> fit = solve(compute_moments(X, y), [0])
+    >>> round(fit.intercept, 12), round(float(fit.coef[0]), 12), round(fit.rss, 12)
+    (1.0, 2.0, 0.0)
+    """
+    cols = tuple(int(c) for c in columns)
+    m = moments.m
+    for c in cols:
+        if not 0 <= c < m:
+            raise InputError(f"column index {c} is out of range; the moments hold {m} candidate columns")
+    if len(set(cols)) != len(cols):
+        raise SearchError(f"the columns {cols} repeat a column; a model cannot hold a column twice")
+    G = moments.cross if intercept else moments.uncentred()
+    idx = list(cols) + [m]
+    A = G[np.ix_(idx, idx)]
+    scale = np.sqrt(np.maximum(np.diag(A), 0.0))
+    safe = np.where(scale > 0, scale, 1.0)
+    S = A / np.outer(safe, safe)
+    R, bad = _pivoted_factor(S[:-1, :-1], PIVOT_TOLERANCE)
+    if bad >= 0:
+        raise SearchError(
+            f"candidate column {cols[bad]} is (numerically) a linear combination of "
+            f"{'the constant' if scale[bad] == 0 else 'the columns before it'} in the model {cols}; "
+            "drop it or one of the columns it depends on",
+            column=None, columns=cols, singular_column=cols[bad],
+        )
+    k = len(cols)
+    z = np.linalg.solve(R.T, S[:-1, -1]) if k else np.zeros(0)
+    beta_scaled = np.linalg.solve(R, z) if k else np.zeros(0)
+    coef = beta_scaled * safe[-1] / safe[:-1]
+    rss_scaled = max(1.0 - float(z @ z), 0.0)
+    rss = rss_scaled * A[-1, -1]
+    a = float(moments.mean[-1] - moments.mean[:-1][list(cols)] @ coef) if intercept else 0.0
+    return Solution(cols, a, coef, float(rss))
+
+
+def heldout_sse(train: Moments, test: Moments, columns, *, intercept: bool = True) -> float:
+    """Sum of squared prediction errors on the test rows of the model fitted on the training rows.
+
+    Computed from moments only (no data pass).  With the fit (a, β) from
+    ``train`` and the test rows' weighted means and centred cross-products::
+
+        Σ w (y − a − xᵀβ)² = C_yy − 2βᵀC_Xy + βᵀC_XXβ + W_test (ȳ − a − x̄ᵀβ)²
+
+    (centred form of the uncentred expansion, which loses fewer digits).
+
+    Parameters
+    ----------
+    train, test : Moments
+        Of disjoint rows, e.g. ``all − fold`` and ``fold``.
+    columns : sequence of int
+    intercept : bool, default True
+
+    Returns
+    -------
+    float
+        Weighted by the test rows' weights when there are weights.
+
+    Raises
+    ------
+    SearchError
+        When the columns are rank-deficient on the training rows.
+    """
+    _check_same_width(train, test)
+    fit = solve(train, columns, intercept=intercept)
+    cols = list(fit.columns)
+    m = test.m
+    b = fit.coef
+    C = test.cross
+    spread = C[m, m]
+    if cols:
+        spread = spread - 2.0 * b @ C[cols, m] + b @ C[np.ix_(cols, cols)] @ b
+    offset = test.mean[m] - fit.intercept - (test.mean[cols] @ b if cols else 0.0)
+    return float(max(spread, 0.0) + test.weight_sum * offset * offset)
