@@ -1,15 +1,44 @@
 """Candidate terms: every allowed form of every predictor, grouped in families.
 
-(Contract stub: the dataclasses below are the interface other stages rely on.)
+:func:`build_candidates` applies the catalogue of :mod:`selectkit.transforms`
+to a checked :class:`~selectkit.data.Dataset` and returns a
+:class:`CandidateSet`: the candidate matrix, the terms a search adds and drops,
+the family of each (a model holds at most one form of a variable), the
+hierarchy of interactions, and the forms that were not produced with the reason
+why.  Every column is float64 and finite.
+
+Examples
+--------
+>>> import numpy as np, pandas as pd
+>>> from selectkit.data import Dataset
+>>> rng = np.random.default_rng(0)
+>>> frame = pd.DataFrame({"light": rng.uniform(5, 30, 40), "age": rng.integers(0, 5, 40).astype(float)})
+>>> ds = Dataset(response="yield_kg_m2", y=10 + np.log(frame["light"].to_numpy()), frame=frame,
+...              numeric=("light", "age"), categorical=())
+>>> cands = build_candidates(ds, forms=("identity", "log", "sqrt"))
+>>> [t.name for t in cands.terms]
+['light', 'log(light)', 'sqrt(light)', 'age', 'sqrt(age)']
+>>> cands.refused[0].reason.split(";")[0]
+'9 of 40 values are zero'
 """
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 
 import numpy as np
+import pandas as pd
 
-__all__ = ["Term", "Refusal", "ResponseTransform", "CandidateSet", "build_candidates"]
+from . import transforms as tf
+from .errors import InputError, OptionError
+
+__all__ = ["Term", "Refusal", "ResponseTransform", "CandidateSet", "build_candidates", "DEFAULT_FORMS"]
+
+#: Forms built by default (Yeo-Johnson stands in for Box-Cox on a predictor with values ≤ 0).
+DEFAULT_FORMS = ("identity", "log", "sqrt", "reciprocal", "square", "boxcox", "boxtidwell")
+#: Fractional-polynomial powers with a named form of their own.
+_NAMED_POWERS = {1.0: "identity", 0.0: "log", 0.5: "sqrt", -1.0: "reciprocal", 2.0: "square"}
 
 
 @dataclass(frozen=True)
@@ -40,6 +69,10 @@ class Term:
         Families that must also be in any model holding this term (hierarchy).
     forced : bool
         Whether every model must hold this term's family.
+    levels : tuple
+        For a block: the levels whose dummy columns the term holds, in column order.
+    reference : object
+        For a block: the reference level (no column of its own).
     """
 
     name: str
@@ -51,20 +84,40 @@ class Term:
     columns: tuple[int, ...]
     requires: tuple[str, ...] = ()
     forced: bool = False
+    levels: tuple = ()
+    reference: object = None
 
     @property
     def width(self) -> int:
         """Number of columns (regression coefficients) the term adds."""
         return len(self.columns)
 
+    def expression(self) -> str:
+        """The term as an expression of the original variables (for an equation)."""
+        if self.kind == "block":
+            return " + ".join(f"[{self.family} = {level}]" for level in self.levels)
+        return tf.term_expression(self.transform, self.source, self.params)
+
 
 @dataclass(frozen=True)
 class Refusal:
-    """A form that was not produced, and why (domain, near-duplicate...)."""
+    """A form that was not produced, and why (domain, near-duplicate...).
+
+    Attributes
+    ----------
+    family : str
+    form : str
+        The kind of form (``log``, ``boxcox``...).
+    reason : str
+        A sentence naming the count and the fix.
+    name : str
+        The readable name the term would have had, when known.
+    """
 
     family: str
     form: str
     reason: str
+    name: str = ""
 
 
 @dataclass(frozen=True)
@@ -97,6 +150,8 @@ class CandidateSet:
     notes : tuple of str
     dataset : Dataset
         The intake result the candidates were built from.
+    y_original : ndarray or None
+        The response on its original scale (to apply another response transform).
     """
 
     matrix: np.ndarray
@@ -109,7 +164,737 @@ class CandidateSet:
     refused: tuple[Refusal, ...] = ()
     notes: tuple[str, ...] = ()
     dataset: object = None
+    y_original: np.ndarray | None = None
+
+    # ------------------------------------------------------------ structure
+
+    @property
+    def families(self) -> tuple[str, ...]:
+        """Family names in the order of their first term."""
+        return tuple(dict.fromkeys(t.family for t in self.terms))
+
+    @property
+    def family_index(self) -> np.ndarray:
+        """For each term, the index of its family in :attr:`families` (int array)."""
+        position = {f: i for i, f in enumerate(self.families)}
+        return np.array([position[t.family] for t in self.terms], dtype=np.int64)
+
+    @property
+    def names(self) -> tuple[str, ...]:
+        """Readable names of the terms, in order."""
+        return tuple(t.name for t in self.terms)
+
+    def term_index(self, name: str) -> int:
+        """Index of the term with this readable name.
+
+        Raises
+        ------
+        OptionError
+            When no term has that name (the message lists the names).
+        """
+        for i, t in enumerate(self.terms):
+            if t.name == name:
+                return i
+        shown = ", ".join(repr(t.name) for t in self.terms[:30])
+        more = f" and {len(self.terms) - 30} more" if len(self.terms) > 30 else ""
+        raise OptionError(f"no candidate term is named {name!r}; the terms are {shown}{more}")
+
+    # ------------------------------------------------------------ new data
+
+    def transform(self, frame) -> np.ndarray:
+        """Re-apply every stored form, with its stored parameters, to new data.
+
+        Box-Cox λ, Box-Tidwell powers, shifts and categorical levels are those
+        estimated when the candidates were built; nothing is re-estimated.
+        Applied to the data the candidates were built from it reproduces
+        :attr:`matrix` exactly.
+
+        Parameters
+        ----------
+        frame : pandas.DataFrame
+            Must hold every source column.
+
+        Returns
+        -------
+        ndarray, shape (len(frame), m)
+
+        Raises
+        ------
+        InputError
+            A source column is missing, holds missing or non-numeric values, a
+            categorical value is a level not seen when the candidates were built,
+            or a value lies outside a form's domain (log of a zero...).
+        """
+        if not isinstance(frame, pd.DataFrame):
+            raise InputError(f"transform needs a pandas DataFrame, got {type(frame).__name__}")
+        needed = list(dict.fromkeys(s for t in self.terms for s in t.source))
+        missing = [c for c in needed if c not in frame.columns]
+        if missing:
+            raise InputError(
+                f"the new data lack {len(missing)} column(s) the candidates use: "
+                + ", ".join(repr(c) for c in missing) + "; add them to the table",
+                column=missing[0],
+            )
+        n = len(frame)
+        out = np.empty((n, len(self.column_names)), dtype=np.float64)
+        numeric_cache: dict[str, np.ndarray] = {}
+        for term in self.terms:
+            if term.kind == "block":
+                out[:, list(term.columns)] = _dummies_for_new_data(frame[term.family], term)
+                continue
+            values = [_numeric_for_new_data(frame, c, numeric_cache) for c in term.source]
+            column = _term_values(term, values, new_data=True)
+            out[:, term.columns[0]] = column
+        return out
+
+    # ------------------------------------------------------------ response
+
+    def with_response(self, response_transform) -> "CandidateSet":
+        """A copy whose response is transformed anew from the original scale.
+
+        Parameters
+        ----------
+        response_transform : None, "identity", "log", "sqrt" or ("boxcox", λ)
+
+        Notes
+        -----
+        The predictor forms are kept as they are; Box-Tidwell powers estimated
+        against the former response scale are not re-estimated (build the
+        candidates again for that).
+        """
+        y0 = self.y_original
+        if y0 is None and self.dataset is not None:
+            y0 = getattr(self.dataset, "y", None)
+        if y0 is None:
+            raise InputError("these candidates do not keep the original response; build them from a Dataset")
+        y, rt = _transform_response(np.asarray(y0, dtype=float), self.response, response_transform)
+        return dataclasses.replace(self, y=y, response_transform=rt, y_original=y0)
+
+    # ------------------------------------------------------------ report
+
+    def describe(self) -> pd.DataFrame:
+        """The candidate report: one row per term, then one per refused form.
+
+        Columns: ``term`` (readable name), ``family``, ``form``, ``parameters``
+        (e.g. ``lambda=0.3712, shift=1``), ``columns`` (coefficients the term
+        adds), ``requires`` (families it needs), ``forced``, ``status``
+        (``"kept"`` or ``"refused"``) and ``reason`` (why refused; empty when kept).
+        """
+        rows = []
+        for t in self.terms:
+            rows.append({
+                "term": t.name,
+                "family": t.family,
+                "form": t.transform,
+                "parameters": ", ".join(f"{k}={tf.format_number(v)}" for k, v in t.params),
+                "columns": t.width,
+                "requires": ", ".join(t.requires),
+                "forced": bool(t.forced),
+                "status": "kept",
+                "reason": "",
+            })
+        for r in self.refused:
+            rows.append({
+                "term": r.name,
+                "family": r.family,
+                "form": r.form,
+                "parameters": "",
+                "columns": 0,
+                "requires": "",
+                "forced": False,
+                "status": "refused",
+                "reason": r.reason,
+            })
+        columns = ["term", "family", "form", "parameters", "columns", "requires", "forced", "status", "reason"]
+        return pd.DataFrame(rows, columns=columns)
 
 
-def build_candidates(dataset, **options):  # pragma: no cover - replaced by the full implementation
-    raise NotImplementedError
+# =================================================================== helpers
+
+
+def _numeric_for_new_data(frame, column, cache):
+    if column in cache:
+        return cache[column]
+    series = frame[column]
+    try:
+        values = pd.to_numeric(series, errors="raise").to_numpy(dtype=np.float64, na_value=np.nan)
+    except (ValueError, TypeError) as err:
+        raise InputError(
+            f"column {column!r} of the new data holds values that are not numbers; "
+            "fix them or convert the column to numbers",
+            column=column,
+        ) from err
+    bad = int(np.count_nonzero(~np.isfinite(values)))
+    if bad:
+        raise InputError(
+            f"column {column!r} of the new data has {bad} of {len(values)} values missing or infinite; "
+            "fill or drop those rows first",
+            column=column,
+        )
+    cache[column] = values
+    return values
+
+
+def _dummies_for_new_data(series, term):
+    values = series.astype(object).to_numpy()
+    known = {term.reference, *term.levels}
+    missing = pd.isna(values)
+    if missing.any():
+        raise InputError(
+            f"column {term.family!r} of the new data has {int(missing.sum())} of {len(values)} values missing; "
+            "fill or drop those rows first",
+            column=term.family,
+        )
+    unseen = [v for v in dict.fromkeys(values.tolist()) if v not in known]
+    if unseen:
+        raise InputError(
+            f"column {term.family!r} of the new data holds level(s) "
+            + ", ".join(repr(v) for v in unseen)
+            + f" not seen when the candidates were built (known: "
+            + ", ".join(repr(v) for v in [term.reference, *term.levels])
+            + "); drop those rows or rebuild the candidates with them",
+            column=term.family,
+        )
+    return np.column_stack([(values == level).astype(np.float64) for level in term.levels]) if term.levels else (
+        np.empty((len(values), 0))
+    )
+
+
+def _term_values(term, values, *, new_data=False):
+    """The column of a single-column term from its source values (the one code path)."""
+    if term.transform == "product":
+        with np.errstate(over="ignore", invalid="ignore"):
+            column = values[0] * values[1]
+    else:
+        if new_data:
+            problem = tf.domain_problem(term.transform, values[0], term.params, column=term.source[0])
+            if problem:
+                raise InputError(
+                    f"column {term.source[0]!r} of the new data: {problem} (term {term.name})",
+                    column=term.source[0],
+                )
+        column = tf.apply(term.transform, values[0], term.params)
+    if new_data:
+        bad = int(np.count_nonzero(~np.isfinite(column)))
+        if bad:
+            raise InputError(
+                f"term {term.name} gives {bad} non-finite values on the new data (overflow); "
+                f"check column {term.source[0]!r}",
+                column=term.source[0],
+            )
+    return column
+
+
+def _parse_response_transform(option):
+    """(transform, lam) from None, a name, a (name, λ) pair or a ResponseTransform."""
+    if option is None:
+        return "identity", None
+    if isinstance(option, ResponseTransform):
+        return option.transform, dict(option.params).get("lambda")
+    if isinstance(option, str):
+        key = option.lower()
+        if key == "boxcox":
+            raise OptionError(
+                "response_transform='boxcox' needs a λ: pass ('boxcox', 0.5), or estimate one with "
+                "selectkit.response.boxcox_response(y, X)"
+            )
+        if key not in tf.RESPONSE_TRANSFORMS:
+            raise OptionError(
+                f"unknown response_transform {option!r}; choose one of None, 'identity', 'log', 'sqrt' "
+                "or ('boxcox', λ)"
+            )
+        return key, None
+    if isinstance(option, (tuple, list)) and len(option) == 2 and str(option[0]).lower() == "boxcox":
+        try:
+            lam = float(option[1])
+        except (TypeError, ValueError) as err:
+            raise OptionError(f"the Box-Cox λ of response_transform must be a number, got {option[1]!r}") from err
+        if not np.isfinite(lam):
+            raise OptionError(f"the Box-Cox λ of response_transform must be finite, got {lam}")
+        return "boxcox", lam
+    raise OptionError(
+        f"unknown response_transform {option!r}; choose one of None, 'identity', 'log', 'sqrt' or ('boxcox', λ)"
+    )
+
+
+def _transform_response(y, response, option):
+    transform, lam = _parse_response_transform(option)
+    if transform != "identity":
+        bad = int(np.count_nonzero(y <= 0))
+        if bad:
+            raise InputError(
+                f"response {response!r} has {bad} of {len(y)} values ≤ 0 (smallest {tf.format_number(y.min())}); "
+                f"the {transform} transform of the response needs positive values — keep the response "
+                "untransformed (response_transform=None) or use a positive response",
+                column=response,
+            )
+    z = tf.transform_response(y, transform, lam)
+    params = (("lambda", float(lam)),) if transform == "boxcox" else ()
+    if transform == "identity":
+        name = response
+    elif transform == "boxcox":
+        name = f"boxcox({response}, {tf.format_number(lam)})"
+    else:
+        name = f"{transform}({response})"
+    jac = float(tf.response_log_jacobian(y, transform, lam))
+    return z, ResponseTransform(name=name, transform=transform, params=params, log_jacobian=jac)
+
+
+def _check_forms(forms):
+    if isinstance(forms, str):
+        forms = (forms,)
+    forms = tuple(forms)
+    unknown = [f for f in forms if f not in tf.FORMS]
+    if unknown:
+        raise OptionError(
+            f"unknown form(s) {', '.join(repr(f) for f in unknown)}; choose among {', '.join(tf.FORMS)}"
+        )
+    return forms
+
+
+def _family_plan(forms, fractional_polynomials):
+    """Ordered list of (form, power) pairs built for each numeric family; identity first."""
+    plan = []
+    if "identity" in forms or fractional_polynomials:
+        plan.append(("identity", None))
+    named = [f for f in forms if f != "identity"]
+    if fractional_polynomials:
+        for q in tf.FRACTIONAL_POWERS:
+            name = _NAMED_POWERS.get(q)
+            if name is not None and name not in named and name != "identity":
+                named.append(name)
+    for f in dict.fromkeys(named):
+        plan.append((f, None))
+    if fractional_polynomials:
+        for q in tf.FRACTIONAL_POWERS:
+            if q not in _NAMED_POWERS:
+                plan.append(("power", q))
+    return plan
+
+
+def _auto_shift(x):
+    """The smallest c ≥ 0 making every x + c ≥ 1: c = max(0, 1 − min x)."""
+    return max(0.0, 1.0 - float(np.min(x)))
+
+
+def _resolve_shifts(shifts, dataset):
+    if shifts is None:
+        return {}
+    if not isinstance(shifts, dict):
+        raise OptionError(f"shifts must be a dict {{column: number or 'auto'}}, got {type(shifts).__name__}")
+    out = {}
+    for col, value in shifts.items():
+        if col not in dataset.numeric:
+            raise OptionError(
+                f"shifts names {col!r}, which is not a numeric predictor; numeric predictors are "
+                + ", ".join(repr(c) for c in dataset.numeric)
+            )
+        x = dataset.frame[col].to_numpy(dtype=np.float64)
+        if isinstance(value, str):
+            if value != "auto":
+                raise OptionError(f"the shift of {col!r} must be a number or 'auto', got {value!r}")
+            out[col] = (_auto_shift(x), True)
+        else:
+            try:
+                c = float(value)
+            except (TypeError, ValueError) as err:
+                raise OptionError(f"the shift of {col!r} must be a number or 'auto', got {value!r}") from err
+            if not np.isfinite(c):
+                raise OptionError(f"the shift of {col!r} must be finite, got {value!r}")
+            out[col] = (c, False)
+    return out
+
+
+def _check_interactions(interactions, dataset):
+    numeric = list(dataset.numeric)
+    if interactions is None or interactions is False:
+        return []
+    if interactions is True:
+        pairs = []
+        for i, a in enumerate(numeric):
+            for b in numeric[i + 1:]:
+                pairs.append(tuple(sorted((a, b))))  # sorted names: independent of column order
+        return pairs
+    pairs = []
+    for pair in interactions:
+        if isinstance(pair, str) or len(pair) != 2:
+            raise OptionError(f"each interaction is a pair of column names (a, b); got {pair!r}")
+        a, b = pair
+        for c in (a, b):
+            if c not in numeric:
+                raise OptionError(
+                    f"interaction {a!r}*{b!r}: {c!r} is not a numeric predictor; numeric predictors are "
+                    + ", ".join(repr(v) for v in numeric)
+                )
+        if a == b:
+            raise OptionError(f"interaction {a!r}*{b!r} pairs a column with itself; the square form covers x^2")
+        if (a, b) not in pairs and (b, a) not in pairs:
+            pairs.append((a, b))
+    return pairs
+
+
+def _check_rows(n_rows, n_columns):
+    try:
+        from .data import check_enough_rows
+    except ImportError:  # pragma: no cover - data.py provides it
+        check_enough_rows = None
+    what = "the widest candidate model (one form per family)"
+    if check_enough_rows is not None:
+        check_enough_rows(n_rows, n_columns, what=what)
+        return
+    if n_rows < n_columns + 2:  # pragma: no cover
+        raise InputError(
+            f"{n_rows} rows but {n_columns} candidate columns (+1 intercept) in {what}; "
+            "need more rows or fewer forms"
+        )
+
+
+class _Builder:
+    """Accumulates columns, terms, refusals and notes in order."""
+
+    def __init__(self, n):
+        self.n = n
+        self.columns: list[np.ndarray] = []
+        self.column_names: list[str] = []
+        self.terms: list[Term] = []
+        self.refused: list[Refusal] = []
+        self.notes: list[str] = []
+        self.names: set[str] = set()
+
+    def add(self, *, name, family, kind, transform, source, params, values, requires=(), forced=False,
+            levels=(), reference=None, column_names=None):
+        start = len(self.columns)
+        values = np.asarray(values, dtype=np.float64)
+        if values.ndim == 1:
+            values = values[:, None]
+        for j in range(values.shape[1]):
+            self.columns.append(np.ascontiguousarray(values[:, j]))
+        self.column_names.extend(column_names or [name])
+        term = Term(name=name, family=family, kind=kind, transform=transform, source=tuple(source),
+                    params=tuple(params), columns=tuple(range(start, len(self.columns))),
+                    requires=tuple(requires), forced=bool(forced), levels=tuple(levels), reference=reference)
+        self.terms.append(term)
+        self.names.add(name)
+        return term
+
+    def refuse(self, family, form, reason, name=""):
+        self.refused.append(Refusal(family=family, form=form, reason=reason, name=name))
+
+
+def _check_column(values, name):
+    """Why a computed column cannot be a candidate (non-finite, constant), or None."""
+    n = values.shape[0]
+    bad = int(np.count_nonzero(~np.isfinite(values)))
+    if bad:
+        return f"{bad} of {n} values of {name} are not finite (overflow or underflow)"
+    if n == 0 or np.ptp(values) == 0:
+        return f"{name} is constant on these data"
+    return None
+
+
+def _correlation(a, b):
+    a = a - a.mean()
+    b = b - b.mean()
+    denom = np.sqrt((a @ a) * (b @ b))
+    return float(a @ b / denom) if denom > 0 else 0.0
+
+
+def _numeric_family(builder, col, x, y, weights, plan, shift_info, forced, near_duplicate, yeojohnson_asked):
+    """Build every form of one numeric predictor."""
+    c, auto = shift_info if shift_info is not None else (0.0, False)
+    n = x.shape[0]
+    if shift_info is not None:
+        how = "auto: the smallest shift making every value at least 1" if auto else "as asked"
+        builder.notes.append(f"{col}: forms needing positive values use {col} + {tf.format_number(c)} ({how})")
+    shift_params = (("shift", c),) if c != 0 else ()
+    kept: list[tuple[str, np.ndarray]] = []
+    for form, q in plan:
+        if form == "identity":
+            transform, params = "identity", ()
+        elif form == "square":
+            transform, params = "square", ()
+        elif form == "power":
+            transform, params = "power", (("power", q),) + shift_params
+        elif form in ("log", "sqrt", "reciprocal"):
+            transform, params = form, shift_params
+        elif form == "boxcox":
+            if np.min(x + c) > 0:
+                transform = "boxcox"
+            elif yeojohnson_asked:
+                builder.notes.append(
+                    f"{col}: Box-Cox not built ({_count_nonpositive(x + c, c)}); the Yeo-Johnson form covers it"
+                )
+                continue
+            else:
+                transform = "yeojohnson"
+                builder.notes.append(
+                    f"{col}: Yeo-Johnson used in place of Box-Cox ({_count_nonpositive(x + c, c)})"
+                )
+            params = None
+        elif form == "yeojohnson":
+            transform, params = "yeojohnson", None
+        elif form == "boxtidwell":
+            transform, params = "boxtidwell", None
+        else:  # pragma: no cover - forms are checked before
+            raise OptionError(f"unknown form {form!r}")
+
+        probe = params if params is not None else shift_params
+        problem = tf.domain_problem(transform, x, probe, column=col)
+        if problem:
+            label = _would_be_name(transform, col, q, shift_params)
+            builder.refuse(col, form, _with_fix(problem, col, x, c, transform, q), name=label)
+            continue
+
+        if transform == "boxcox":
+            lam = tf.boxcox_lambda(x + c)
+            if not np.isfinite(lam) or abs(lam) >= 5.0 - 1e-6:
+                builder.refuse(col, form, f"the Box-Cox λ̂ of {col} lies at the edge of the search range ±5 "
+                                          "(extreme); no Box-Cox form built", name=f"boxcox({col})")
+                continue
+            params = (("lambda", lam),) + shift_params
+        elif transform == "yeojohnson":
+            lam = tf.yeojohnson_lambda(x)
+            if not np.isfinite(lam) or abs(lam) >= 5.0 - 1e-6:
+                builder.refuse(col, form, f"the Yeo-Johnson λ̂ of {col} lies at the edge of the search range "
+                                          "±5 (extreme); no Yeo-Johnson form built", name=f"yeojohnson({col})")
+                continue
+            params = (("lambda", lam),)
+        elif transform == "boxtidwell":
+            result = tf.box_tidwell(x + c, y, weights=weights)
+            if result.power is None:
+                builder.refuse(col, form, f"no Box-Tidwell power for {col}: {result.reason}",
+                               name=f"{col}^α (Box-Tidwell)")
+                continue
+            if round(result.power, 2) == 0:
+                builder.refuse(col, "boxtidwell", f"the Box-Tidwell power of {col} is {result.power:.2g}, "
+                                                  "about 0: that is the log form", name=f"{col}^α (Box-Tidwell)")
+                continue
+            params = (("power", result.power),) + shift_params
+            builder.notes.append(
+                f"{col}: Box-Tidwell power {result.power:.4g}; test of power 1 (x·log x added): "
+                f"t = {result.statistic:.3g}, p = {result.pvalue:.3g}"
+            )
+
+        name = tf.term_name(transform, col, params)
+        values = tf.apply(transform, x, params)
+        problem = _check_column(values, name)
+        if problem is None and name in builder.names:
+            problem = f"{name} is already a candidate under the same name"
+        if problem is None and near_duplicate is not None:
+            for other_name, other in kept:
+                r = _correlation(values, other)
+                if abs(r) > near_duplicate:
+                    problem = (f"{name} is a near-duplicate of {other_name} (|r| = {abs(r):.6f} > "
+                               f"near_duplicate = {near_duplicate:g}); kept {other_name}")
+                    break
+        if problem:
+            builder.refuse(col, transform, problem, name=name)
+            continue
+        builder.add(name=name, family=col, kind="numeric", transform=transform, source=(col,), params=params,
+                    values=values, forced=forced)
+        kept.append((name, values))
+
+
+def _count_nonpositive(v, c):
+    n = v.shape[0]
+    bad = int(np.count_nonzero(v <= 0))
+    after = f" after the shift {tf.format_number(c)}" if c else ""
+    return f"{bad} of {n} values are ≤ 0{after}"
+
+
+def _would_be_name(transform, col, q, shift_params):
+    if transform == "boxcox":
+        return f"boxcox({col})"
+    if transform == "boxtidwell":
+        return f"{col}^α (Box-Tidwell)"
+    if transform == "power":
+        return tf.term_name("power", col, (("power", q),) + shift_params)
+    return tf.term_name(transform, col, shift_params)
+
+
+def _with_fix(problem, col, x, c, transform, q):
+    suggestion = _auto_shift(x)
+    if transform == "power":
+        target = tf.term_name("power", col, (("power", q), ("shift", suggestion)))
+    elif transform == "boxtidwell":
+        target = f"a Box-Tidwell power of {col} + {tf.format_number(suggestion)}"
+    else:
+        target = tf.term_name(transform, col, (("shift", suggestion),) if transform != "boxcox" else
+                              (("shift", suggestion), ("lambda", 1.0)))
+        if transform == "boxcox":
+            target = f"boxcox({col} + {tf.format_number(suggestion)}, λ)"
+    if c:
+        return f"{problem} — the shift {tf.format_number(c)} is too small; pass shifts={{{col!r}: " \
+               f"{tf.format_number(suggestion)}}} to use {target}"
+    return f"{problem} — pass shifts={{{col!r}: {tf.format_number(suggestion)}}} to use {target}"
+
+
+def _categorical_family(builder, col, series, forced):
+    cat = pd.Categorical(series)
+    codes = cat.codes
+    categories = list(cat.categories)
+    counts = np.bincount(codes[codes >= 0], minlength=len(categories))
+    observed = [lev for lev, k in zip(categories, counts) if k > 0]
+    unused = [lev for lev, k in zip(categories, counts) if k == 0]
+    if unused:
+        builder.notes.append(
+            f"{col}: level(s) {', '.join(repr(v) for v in unused)} do not occur in the data; no column for them"
+        )
+    if len(observed) < 2:
+        only = repr(observed[0]) if observed else "none"
+        builder.refuse(col, "dummies", f"{col} has a single level present ({only}); a block needs two", name=col)
+        return
+    reference = observed[0]
+    if categories and reference != categories[0]:
+        builder.notes.append(f"{col}: reference level {categories[0]!r} does not occur; {reference!r} used instead")
+    levels = observed[1:]
+    values = np.column_stack([(codes == categories.index(lev)).astype(np.float64) for lev in levels])
+    builder.add(name=col, family=col, kind="block", transform="dummies", source=(col,), params=(),
+                values=values, forced=forced, levels=levels, reference=reference,
+                column_names=[f"{col}[{lev}]" for lev in levels])
+
+
+def build_candidates(
+    dataset,
+    *,
+    forms=DEFAULT_FORMS,
+    fractional_polynomials=False,
+    shifts=None,
+    interactions=False,
+    near_duplicate=0.9999,
+    response_transform=None,
+) -> CandidateSet:
+    """Build every candidate form of every predictor of a dataset.
+
+    Each numeric predictor becomes a **family** of forms (a model holds at most
+    one of them); each categorical predictor one **block** term whose columns
+    are the dummies (0/1) of its non-reference levels, named ``col[level]``;
+    each interaction a term ``a*b`` (raw product) that requires the families
+    ``a`` and ``b`` (hierarchy).
+
+    Parameters
+    ----------
+    dataset : Dataset
+        From :func:`selectkit.data.prepare`.
+    forms : sequence of str
+        Among ``identity, log, sqrt, reciprocal, square, boxcox, yeojohnson,
+        boxtidwell``.  Identity, when asked, always comes first in its family.
+        ``boxcox`` gives Box-Cox with λ̂ by maximum likelihood of the predictor's
+        own distribution (:func:`selectkit.transforms.boxcox_lambda`) when every
+        value (after any shift) is positive, and Yeo-Johnson otherwise.
+        ``boxtidwell`` gives x^α̂ with α̂ the power that best linearises the
+        response on x (:func:`selectkit.transforms.box_tidwell`); it is refused
+        when the iteration fails or |α̂| > 3.
+    fractional_polynomials : bool, default False
+        Add the eight powers {−2, −1, −0.5, 0, 0.5, 1, 2, 3} of Royston & Altman
+        (1994); powers with a name of their own appear under it (x^0 is log(x),
+        x^0.5 sqrt(x), x^-1 1/x, x^1 x, x^2 x^2).
+    shifts : dict, optional
+        ``{column: c}`` or ``{column: "auto"}``: forms that need positive (or
+        non-negative, non-zero) values — log, sqrt, reciprocal, negative and
+        fractional powers, Box-Cox, Box-Tidwell — use x + c, and c appears in the
+        term's ``params`` and name (``log(x + 1)``).  ``"auto"`` is the smallest
+        c ≥ 0 that makes every value at least 1, c = max(0, 1 − min x).  No
+        shift is ever applied unless asked.
+    interactions : bool or sequence of (a, b), default False
+        ``True`` for every pair of numeric predictors (named with the two
+        columns in alphabetical order), or a list of pairs.
+    near_duplicate : float or None, default 0.9999
+        A form whose correlation with an earlier form of the same family exceeds
+        this in absolute value is dropped (and reported); None keeps all.
+    response_transform : None, "identity", "log", "sqrt" or ("boxcox", λ)
+        Transform of the response; its log-Jacobian (Σ log|dz/dy|, for Box-Cox
+        (λ − 1) Σ log y) is stored so criteria stay comparable across response
+        scales (Box & Cox 1964).
+
+    Returns
+    -------
+    CandidateSet
+
+    Raises
+    ------
+    OptionError
+        Unknown form names (listing the valid ones) or malformed options.
+    InputError
+        A non-positive response for a log/sqrt/Box-Cox response transform; a
+        forced predictor with no usable form; too few rows for the widest
+        model (one form per family plus the intercept).
+
+    References
+    ----------
+    Box & Cox (1964); Box & Tidwell (1962); Royston & Altman (1994); Yeo & Johnson (2000).
+    See :mod:`selectkit.transforms`.
+    """
+    forms = _check_forms(forms)
+    if near_duplicate is not None:
+        near_duplicate = float(near_duplicate)
+        if not 0.0 < near_duplicate <= 1.0:
+            raise OptionError(f"near_duplicate must lie in (0, 1] or be None, got {near_duplicate}")
+    if not isinstance(fractional_polynomials, (bool, np.bool_)):
+        raise OptionError(f"fractional_polynomials must be True or False, got {fractional_polynomials!r}")
+    shift_map = _resolve_shifts(shifts, dataset)
+    pairs = _check_interactions(interactions, dataset)
+    y_original = np.asarray(dataset.y, dtype=np.float64)
+    y, rt = _transform_response(y_original, dataset.response, response_transform)
+    weights = None if dataset.weights is None else np.asarray(dataset.weights, dtype=np.float64)
+
+    plan = _family_plan(forms, bool(fractional_polynomials))
+    forced = set(dataset.forced)
+    builder = _Builder(dataset.n)
+    numeric, categorical = set(dataset.numeric), set(dataset.categorical)
+    for col in dataset.frame.columns:
+        if col in numeric:
+            x = dataset.frame[col].to_numpy(dtype=np.float64)
+            _numeric_family(builder, col, x, y, weights, plan, shift_map.get(col), col in forced,
+                            near_duplicate, "yeojohnson" in forms)
+        elif col in categorical:
+            _categorical_family(builder, col, dataset.frame[col], col in forced)
+
+    present = {t.family for t in builder.terms}
+    for col in sorted(forced):
+        if col not in present:
+            raise InputError(
+                f"predictor {col!r} must be in every model but none of its forms could be built "
+                f"({'; '.join(r.reason for r in builder.refused if r.family == col) or 'no form asked'}); "
+                "add the identity form or stop forcing it",
+                column=col,
+            )
+    for a, b in pairs:
+        name = tf.term_name("product", (a, b))
+        absent = [c for c in (a, b) if c not in present]
+        if absent:
+            builder.refuse(name, "product", f"{name} needs a form of {', '.join(absent)}, and none was built",
+                           name=name)
+            continue
+        xa = dataset.frame[a].to_numpy(dtype=np.float64)
+        xb = dataset.frame[b].to_numpy(dtype=np.float64)
+        with np.errstate(over="ignore", invalid="ignore"):
+            values = xa * xb
+        problem = _check_column(values, name)
+        if problem:
+            builder.refuse(name, "product", problem, name=name)
+            continue
+        builder.add(name=name, family=name, kind="interaction", transform="product", source=(a, b), params=(),
+                    values=values, requires=(a, b))
+
+    widest = {}
+    for t in builder.terms:
+        widest[t.family] = max(widest.get(t.family, 0), t.width)
+    _check_rows(dataset.n, sum(widest.values()))
+
+    n = dataset.n
+    matrix = np.column_stack(builder.columns) if builder.columns else np.empty((n, 0))
+    matrix = np.ascontiguousarray(matrix, dtype=np.float64)
+    return CandidateSet(
+        matrix=matrix,
+        column_names=tuple(builder.column_names),
+        terms=tuple(builder.terms),
+        y=y,
+        response=dataset.response,
+        weights=weights,
+        response_transform=rt,
+        refused=tuple(builder.refused),
+        notes=tuple(builder.notes),
+        dataset=dataset,
+        y_original=y_original,
+    )
