@@ -1,0 +1,918 @@
+"""Pool the models every search found, score them, and keep a shortlist.
+
+:func:`rank` merges :class:`~selectkit.search.Found` values, removes models
+found more than once (one row lists every search that found it), scores every
+model with the criteria of :mod:`selectkit.criteria`, orders them, and refits
+the shortlisted ones by QR (:func:`refit`).  :func:`stability` repeats a search
+on bootstrap resamples of the rows and counts how often each variable and each
+form is chosen.
+
+Every criterion is computed by :func:`selectkit.criteria.compute`; nothing here
+re-derives a formula.  Ties are broken by the criterion, then the number of
+terms, then the term names.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import inspect
+import math
+from dataclasses import dataclass, field
+from typing import Any, Callable, Mapping, Sequence
+
+import numpy as np
+import pandas as pd
+
+from . import criteria as _criteria
+from .errors import InputError, OptionError, SearchError, SelectkitError
+from .moments import compute_moments
+from .parallel import run_units, spawn_seeds
+
+__all__ = [
+    "AIMS",
+    "SCORE_COLUMNS",
+    "ModelFit",
+    "Shortlist",
+    "Stability",
+    "rank",
+    "refit",
+    "fit_model",
+    "choose_criterion",
+    "stability",
+]
+
+#: What the user wants the model for; picks the default criterion.
+AIMS = ("explain", "predict")
+
+#: Columns that come from :func:`selectkit.search.crossval.score_subsets`, not from rss.
+SCORE_COLUMNS = ("press", "cv_mse", "cv_se", "holdout_mse")
+
+#: Information criteria that have Akaike-type weights.
+_WEIGHTED = ("aic", "aicc", "bic")
+
+#: Names other modules may use for the score columns, mapped to ours.
+_SCORE_ALIASES = {
+    "press": "press",
+    "cv_mse": "cv_mse",
+    "mean_cv_mse": "cv_mse",
+    "cv_mean_mse": "cv_mse",
+    "cv": "cv_mse",
+    "cv_se": "cv_se",
+    "cv_mse_se": "cv_se",
+    "se_cv_mse": "cv_se",
+    "cv_std_error": "cv_se",
+    "holdout_mse": "holdout_mse",
+    "held_out_mse": "holdout_mse",
+    "heldout_mse": "holdout_mse",
+}
+
+#: Akaike's Δ ≤ 2 rule for "comparable support" (common practice; Burnham & Anderson 2002, §2.6).
+COMPARABLE_DELTA = 2.0
+
+INTERCEPT_LABEL = "intercept"
+
+
+# --------------------------------------------------------------------------- values
+
+
+@dataclass(frozen=True, eq=False)
+class ModelFit:
+    """A shortlisted model refitted by QR, with its coefficient table and equation.
+
+    Attributes
+    ----------
+    subset : tuple of int
+        Term indices into ``CandidateSet.terms``.
+    terms : tuple of str
+        Readable term names.
+    coefficients : DataFrame
+        One row per regression coefficient (the intercept first) with columns
+        ``coefficient`` (label), ``term`` (the term it belongs to), ``estimate``,
+        ``std_error``, ``ci_low``, ``ci_high`` (95 % t interval) and
+        ``p_value_optimistic``.  The p-values and intervals treat the model as if
+        it had been fixed before seeing the data; after selection they are too
+        small / too narrow (see the cautions of the report).
+    equation : str
+        The fitted equation, e.g.
+        ``yield_kg_m2 = 1.2 + 0.8·log(light) − 2.1·1/plant_density + 0.3·[cultivar = Ruby]``.
+    n, k : int
+        Rows and coefficients (intercept included).
+    sigma : float
+        Residual standard error √(rss/(n − k)).
+    """
+
+    subset: tuple[int, ...]
+    terms: tuple[str, ...]
+    coefficients: pd.DataFrame
+    equation: str
+    n: int
+    k: int
+    sigma: float
+
+
+@dataclass(frozen=True, eq=False)
+class Shortlist:
+    """The ranked models.
+
+    Attributes
+    ----------
+    table : DataFrame
+        The shortlisted rows (at most ``size``, within ``max_delta``), best first;
+        columns as in ``scored``.
+    scored : DataFrame
+        Every pooled model, scored and ordered.  Columns: ``position`` (1 = best),
+        ``terms`` (readable names joined by ``" + "``), ``n_terms``, ``k``
+        (coefficients including the intercept), ``rss``, ``log_likelihood``,
+        ``aic``, ``aicc``, ``bic``, ``cp``, ``r2``, ``adj_r2``, ``press``,
+        ``cv_mse``, ``cv_se``, ``holdout_mse``, ``delta_from_best`` (on the
+        primary criterion, ≥ 0), ``model_weight`` (weight of evidence from
+        ``weight_criterion``), ``comparable_support`` (Δ ≤ 2 for an information
+        criterion; within one standard error of the best for ``cv_mse``; empty
+        otherwise), ``found_by`` (searches that found the model, comma-separated)
+        and ``term_indices`` (space-separated indices into ``CandidateSet.terms``).
+    subsets : tuple of tuple of int
+        The shortlisted models' term indices, in table order.
+    all_subsets : tuple of tuple of int
+        Every pooled model's term indices, in ``scored`` order.
+    criterion : str
+        The primary criterion that ordered the models.
+    criterion_reason : str
+        Why that criterion was used, in words.
+    aim, convention : str
+    weight_criterion : str
+        The information criterion behind ``model_weight`` and the variable
+        support (the primary one when it is AIC, AICc or BIC, else AICc).
+    cp_variance_source : str
+        Which model gave σ̂² for Mallows' Cp.
+    variable_support : DataFrame
+        One row per family: ``variable``, ``support`` (summed model weight of
+        pooled models holding any form of it), ``models_holding`` and
+        ``leading_form`` (its form with the largest summed weight).
+    fits : tuple of ModelFit
+        The QR refit of each shortlisted model, in table order.
+    n : int
+        Rows the models were fitted to.
+    notes : tuple of str
+        Anything the reader should know (empty score columns and why...).
+    """
+
+    table: pd.DataFrame
+    scored: pd.DataFrame
+    subsets: tuple[tuple[int, ...], ...]
+    all_subsets: tuple[tuple[int, ...], ...]
+    criterion: str
+    criterion_reason: str
+    aim: str
+    convention: str
+    weight_criterion: str
+    cp_variance_source: str
+    variable_support: pd.DataFrame
+    fits: tuple[ModelFit, ...]
+    n: int
+    notes: tuple[str, ...] = ()
+
+    def __len__(self) -> int:
+        return len(self.subsets)
+
+    def terms(self, i: int) -> tuple[str, ...]:
+        """Readable term names of shortlisted model ``i`` (0 = best)."""
+        return self.fits[i].terms
+
+
+@dataclass(frozen=True, eq=False)
+class Stability:
+    """How often bootstrap resamples of the rows choose each variable and form.
+
+    Attributes
+    ----------
+    n_boot : int
+        Replicates run.
+    seed : int
+    criterion : str
+        Criterion that picked each replicate's best model.
+    variable_share : DataFrame
+        ``variable`` and ``share_selected``: fraction of successful replicates
+        whose best model holds any form of the variable.
+    form_share : DataFrame
+        ``term``, ``variable`` and ``share_selected`` per candidate term.
+    full_data_best : tuple of str
+        Terms of the best model on the full data.
+    share_same_as_full : float
+        Fraction of successful replicates whose best model is exactly that model.
+    replicate_models : tuple
+        Best subset of each replicate (``None`` when the replicate failed).
+    failed : int
+        Replicates whose search raised a selectkit error.
+    notes : tuple of str
+    """
+
+    n_boot: int
+    seed: int
+    criterion: str
+    variable_share: pd.DataFrame
+    form_share: pd.DataFrame
+    full_data_best: tuple[str, ...]
+    share_same_as_full: float
+    replicate_models: tuple
+    failed: int = 0
+    notes: tuple[str, ...] = ()
+
+
+# --------------------------------------------------------------------------- criterion choice
+
+
+def choose_criterion(criterion, aim, *, n, k_max):
+    """Pick the primary criterion and say why.
+
+    With no explicit ``criterion``:
+
+    * ``aim="explain"`` → BIC.  BIC is consistent: when one of the candidate
+      models is the true one, it is chosen with probability → 1 as n grows
+      (Schwarz 1978), so it favours the small model that describes the
+      process.
+    * ``aim="predict"`` → AICc.  AIC estimates expected predictive
+      (Kullback-Leibler) loss (Akaike 1974) and is efficient for prediction;
+      AICc corrects its small-sample bias (Hurvich & Tsai 1989).  Burnham &
+      Anderson (2002, §2.4) advise AICc whenever n/K < 40, K counting every
+      estimated parameter of the largest model (coefficients plus σ²); above
+      that AIC and AICc agree and AIC is used.
+
+    Parameters
+    ----------
+    criterion : str or None
+        A name from :data:`selectkit.criteria.CRITERIA`, or None.
+    aim : {"explain", "predict"}
+    n : int
+        Rows.
+    k_max : int
+        Coefficients (intercept included) of the largest model considered.
+
+    Returns
+    -------
+    name, reason : str
+
+    Raises
+    ------
+    OptionError
+        Unknown criterion or aim, listing the valid ones.
+    """
+    if aim not in AIMS:
+        raise OptionError(f"unknown aim {aim!r}; choose one of {', '.join(AIMS)}")
+    if criterion is not None:
+        name = _criteria.check_criterion(criterion)
+        return name, f"{name.upper()} was chosen by the user."
+    if aim == "explain":
+        return "bic", (
+            "BIC, because the aim is to explain: BIC picks the true model with probability "
+            "tending to 1 as n grows when it is among the candidates (Schwarz 1978), so it "
+            "favours small models."
+        )
+    big_k = int(k_max) + 1  # coefficients plus the error variance
+    ratio = n / big_k if big_k > 0 else math.inf
+    if ratio < 40:
+        return "aicc", (
+            f"AICc, because the aim is to predict and n/K = {n}/{big_k} = {ratio:.1f} is below 40 "
+            "(K: estimated parameters of the largest model, σ² included); AICc corrects AIC's "
+            "small-sample bias (Hurvich & Tsai 1989; Burnham & Anderson 2002, §2.4)."
+        )
+    return "aic", (
+        f"AIC, because the aim is to predict and n/K = {n}/{big_k} = {ratio:.1f} is at least 40, "
+        "where AICc and AIC agree (Burnham & Anderson 2002, §2.4)."
+    )
+
+
+# --------------------------------------------------------------------------- pooling and scoring
+
+
+def _term_names(candidates, subset) -> tuple[str, ...]:
+    return tuple(candidates.terms[i].name for i in subset)
+
+
+def _joined(names: Sequence[str]) -> str:
+    return " + ".join(names) if names else "(intercept only)"
+
+
+def _pool(founds, n_terms_total: int):
+    """Merge Founds: one entry per distinct subset, keeping the smallest rss."""
+    if isinstance(founds, Mapping) or not isinstance(founds, Sequence):
+        founds = list(founds.values()) if isinstance(founds, Mapping) else list(founds)
+    if not founds:
+        raise SearchError("no search results to rank; run at least one search method first")
+    n = int(founds[0].n)
+    pooled: dict[tuple[int, ...], dict] = {}
+    for found in founds:
+        if int(found.n) != n:
+            raise SearchError(
+                f"search {found.method!r} was fitted to {found.n} rows but {founds[0].method!r} to {n}; "
+                "results fitted to different rows cannot be ranked together"
+            )
+        for subset, rss, k in zip(found.subsets, found.rss, found.k):
+            bad = [i for i in subset if not 0 <= i < n_terms_total]
+            if bad:
+                raise SearchError(
+                    f"search {found.method!r} returned term index {bad[0]} but there are "
+                    f"{n_terms_total} candidate terms; the search ran on other candidates"
+                )
+            entry = pooled.get(subset)
+            if entry is None:
+                pooled[subset] = {"rss": float(rss), "k": int(k), "found_by": [found.method]}
+            else:
+                entry["rss"] = min(entry["rss"], float(rss))
+                if found.method not in entry["found_by"]:
+                    entry["found_by"].append(found.method)
+    return n, pooled
+
+
+def _normalise_scores(scores, subsets) -> tuple[pd.DataFrame, list[str]]:
+    """Turn what score_subsets (or the caller) gave into a frame aligned with ``subsets``."""
+    notes: list[str] = []
+    out = pd.DataFrame({c: np.full(len(subsets), np.nan) for c in SCORE_COLUMNS})
+    if scores is None:
+        return out, notes
+    if isinstance(scores, pd.DataFrame):
+        frame = scores
+    elif isinstance(scores, Mapping):
+        frame = pd.DataFrame({key: np.asarray(value) for key, value in scores.items()
+                              if np.ndim(value) == 1})
+    else:
+        attrs = {a: getattr(scores, a) for a in _SCORE_ALIASES if hasattr(scores, a)}
+        if hasattr(scores, "table") and isinstance(scores.table, pd.DataFrame):
+            frame = scores.table
+        elif attrs:
+            frame = pd.DataFrame({key: np.asarray(value) for key, value in attrs.items()})
+        else:
+            raise InputError(
+                f"scores of type {type(scores).__name__} are not understood; pass a DataFrame "
+                f"or a mapping with columns among {', '.join(SCORE_COLUMNS)}"
+            )
+    # Align rows: by a subset column or index when there is one, else by position.
+    key_column = next((c for c in ("subset", "subsets") if c in frame.columns), None)
+    if key_column is not None:
+        keys = [tuple(sorted(int(i) for i in s)) for s in frame[key_column]]
+        frame = frame.set_axis(pd.Index(keys, tupleize_cols=False), axis=0)
+        frame = frame.reindex(pd.Index(list(subsets), tupleize_cols=False))
+    elif len(frame) and isinstance(frame.index[0], tuple):
+        frame = frame.reindex(pd.Index(list(subsets), tupleize_cols=False))
+    elif len(frame) != len(subsets):
+        raise InputError(
+            f"scores have {len(frame)} rows but {len(subsets)} models were pooled; pass one row per "
+            "model in the pooled order or a 'subset' column"
+        )
+    used = []
+    for column in frame.columns:
+        target = _SCORE_ALIASES.get(str(column).lower())
+        if target is not None and target not in used:
+            out[target] = np.asarray(frame[column], dtype=float)
+            used.append(target)
+    if not used:
+        notes.append("the scores given had none of the columns " + ", ".join(SCORE_COLUMNS))
+    return out, notes
+
+
+def _compute_scores(candidates, subsets, moments, folds, seed):
+    """Call score_subsets when it exists; else leave the score columns empty, with a note."""
+    try:
+        from .search.crossval import score_subsets  # lazy: the search package sits beside us
+    except ImportError:
+        return None, [
+            "PRESS, cross-validation and held-out columns are empty: "
+            "selectkit.search.crossval.score_subsets is not available in this installation."
+        ]
+    return score_subsets(candidates, list(subsets), folds=folds, seed=seed, moments=moments), []
+
+
+def _order_key(values: np.ndarray, lower_is_better: bool, n_terms, names):
+    """Stable sort order: criterion (missing values last), then n_terms, then term names."""
+    v = np.where(np.isfinite(values), values if lower_is_better else -values, np.inf)
+    return sorted(range(len(values)), key=lambda i: (v[i], n_terms[i], names[i]))
+
+
+def _score_table(candidates, moments, n, pooled, *, convention, criterion, aim, score_frame):
+    subsets = list(pooled)
+    rss = np.array([pooled[s]["rss"] for s in subsets])
+    k = np.array([pooled[s]["k"] for s in subsets])
+    tss = float(moments.tss)
+    log_jacobian = float(candidates.response_transform.log_jacobian)
+
+    # Cp's σ̂²: the pooled model with most coefficients; ties → smaller rss.
+    largest = min(range(len(subsets)), key=lambda i: (-k[i], rss[i], _term_names(candidates, subsets[i])))
+    k_full = int(k[largest])
+    if n - k_full > 0 and rss[largest] > 0:
+        sigma2_full = rss[largest] / (n - k_full)
+        cp_source = (
+            f"σ̂² = rss/(n − k) = {sigma2_full:.6g} of the largest pooled model "
+            f"({_joined(_term_names(candidates, subsets[largest]))}; k = {k_full})"
+        )
+    else:
+        sigma2_full = None
+        cp_source = (
+            f"Cp not computed: the largest pooled model has k = {k_full} coefficients for n = {n} rows "
+            "and leaves no residual degrees of freedom"
+        )
+    values = _criteria.compute(rss, n, k, tss=tss, sigma2_full=sigma2_full,
+                               convention=convention, log_jacobian=log_jacobian)
+    names = [_term_names(candidates, s) for s in subsets]
+    table = pd.DataFrame({
+        "terms": [_joined(t) for t in names],
+        "n_terms": [len(s) for s in subsets],
+        "k": k.astype(np.int64),
+        "rss": rss,
+        "log_likelihood": values["log_likelihood"],
+        "aic": values["aic"],
+        "aicc": values["aicc"],
+        "bic": values["bic"],
+        "cp": values.get("cp", np.full(len(subsets), np.nan)),
+        "r2": values["r2"],
+        "adj_r2": values["adj_r2"],
+    })
+    for column in SCORE_COLUMNS:
+        table[column] = np.asarray(score_frame[column], dtype=float)
+
+    name, reason = choose_criterion(criterion, aim, n=n, k_max=k_full)
+    primary = table[name].to_numpy(dtype=float)
+    if not np.isfinite(primary).any():
+        raise OptionError(
+            f"criterion {name!r} has no value for any model"
+            + ("; it needs cross-validation scores (selectkit.search.crossval)" if name in SCORE_COLUMNS else "")
+            + "; choose another criterion"
+        )
+    lower = _criteria.LOWER_IS_BETTER[name]
+    order = _order_key(primary, lower, table["n_terms"].to_numpy(), names)
+    table = table.iloc[order].reset_index(drop=True)
+    subsets = [subsets[i] for i in order]
+    primary = primary[order]
+    best = primary[0]
+    delta = primary - best if lower else best - primary
+    table.insert(0, "position", np.arange(1, len(table) + 1))
+    table["delta_from_best"] = delta
+
+    weight_criterion = name if name in _WEIGHTED else "aicc"
+    _, weights = _criteria.akaike_weights(table[weight_criterion].to_numpy(dtype=float))
+    table["model_weight"] = weights
+    if name in _WEIGHTED:
+        comparable = pd.array(np.isfinite(delta) & (delta <= COMPARABLE_DELTA), dtype="boolean")
+    elif name == "cv_mse" and np.isfinite(table["cv_se"].iloc[0]):
+        # One-standard-error rule (Breiman et al. 1984; Hastie, Tibshirani & Friedman 2009, §7.10).
+        comparable = pd.array(np.isfinite(delta) & (delta <= table["cv_se"].iloc[0]), dtype="boolean")
+    else:
+        comparable = pd.array([pd.NA] * len(table), dtype="boolean")
+    table["comparable_support"] = comparable
+    table["found_by"] = [", ".join(pooled[s]["found_by"]) for s in subsets]
+    table["term_indices"] = [" ".join(str(i) for i in s) for s in subsets]
+    return table, subsets, name, reason, weight_criterion, cp_source
+
+
+def _variable_support(candidates, subsets, weights) -> pd.DataFrame:
+    """Summed model weight of the pooled models that hold each family."""
+    families: list[str] = []
+    for term in candidates.terms:
+        if term.family not in families:
+            families.append(term.family)
+    support = dict.fromkeys(families, 0.0)
+    holding = dict.fromkeys(families, 0)
+    form_weight: dict[int, float] = {}
+    for subset, w in zip(subsets, weights):
+        for i in subset:
+            fam = candidates.terms[i].family
+            support[fam] += float(w)
+            holding[fam] += 1
+            form_weight[i] = form_weight.get(i, 0.0) + float(w)
+    leading = {}
+    for i, w in sorted(form_weight.items(), key=lambda item: (-item[1], candidates.terms[item[0]].name)):
+        leading.setdefault(candidates.terms[i].family, candidates.terms[i].name)
+    frame = pd.DataFrame({
+        "variable": families,
+        "support": [min(support[f], 1.0) for f in families],
+        "models_holding": [holding[f] for f in families],
+        "leading_form": [leading.get(f, "") for f in families],
+    })
+    order = sorted(range(len(frame)), key=lambda i: (-frame["support"].iloc[i], families[i]))
+    return frame.iloc[order].reset_index(drop=True)
+
+
+def rank(
+    founds,
+    candidates,
+    moments,
+    *,
+    criterion=None,
+    aim="explain",
+    convention="selectkit",
+    size=10,
+    max_delta=None,
+    scores=None,
+    folds=5,
+    seed=0,
+) -> Shortlist:
+    """Pool, score and order the models of every search; refit the best ones.
+
+    Parameters
+    ----------
+    founds : sequence of Found (or a mapping name → Found)
+        Results of the searches; they must have been fitted to the same rows
+        and the same ``candidates``.
+    candidates : CandidateSet
+    moments : Moments
+        Moments of ``candidates`` (for the total sum of squares and the
+        cross-validation scores).
+    criterion : str, optional
+        Primary criterion, a name of :data:`selectkit.criteria.CRITERIA`
+        (``aic, aicc, bic, cp, adj_r2, press, cv_mse, holdout_mse``).  By
+        default it follows ``aim`` (see :func:`choose_criterion`): BIC to
+        explain, AICc (or AIC when n/K ≥ 40) to predict.
+    aim : {"explain", "predict"}, default "explain"
+    convention : {"selectkit", "statsmodels"}, default "selectkit"
+        Parameter count of AIC/AICc/BIC (see :mod:`selectkit.criteria`); the
+        ranking by AIC or BIC does not depend on it.
+    size : int, default 10
+        Most models in the shortlist.
+    max_delta : float, optional
+        Keep only models within this Δ of the best on the primary criterion.
+    scores : DataFrame, mapping, False or None
+        PRESS / CV / held-out scores per pooled model (columns ``press``,
+        ``cv_mse``, ``cv_se``, ``holdout_mse``; rows in pooled order or keyed by
+        a ``subset`` column).  ``None`` computes them with
+        :func:`selectkit.search.crossval.score_subsets` when that function
+        exists (else the columns stay empty and ``notes`` says so); ``False``
+        skips them.
+    folds, seed : int
+        Passed to ``score_subsets`` when ``scores`` is None.
+
+    Returns
+    -------
+    Shortlist
+
+    Notes
+    -----
+    Conventions (all computed by :func:`selectkit.criteria.compute`):
+    ℓ = −n/2 (log(2π·rss/n) + 1) plus the response transform's log-Jacobian
+    (Box & Cox 1964); AIC = −2ℓ + 2p, BIC = −2ℓ + log(n)·p, AICc = AIC +
+    2p(p+1)/(n−p−1), with p = k + 1 (σ² counted) under the default convention
+    and p = k under ``"statsmodels"``.  Cp = rss/σ̂² − n + 2k (Mallows 1973),
+    σ̂² from the pooled model with the most coefficients (``cp_variance_source``
+    names it).  Δᵢ = criterionᵢ − best and the weights
+    wᵢ = exp(−Δᵢ/2)/Σⱼ exp(−Δⱼ/2) (Burnham & Anderson 2002, §2.9); for BIC these
+    are BIC weights, approximate posterior model probabilities under equal
+    prior probabilities.  Weights are relative to the pooled list only: a
+    search that kept few models gives support that leans on those models.
+
+    References
+    ----------
+    Burnham, K. P. and Anderson, D. R. (2002). Model Selection and Multimodel
+    Inference, 2nd ed. Springer.
+    """
+    if isinstance(size, bool) or not isinstance(size, (int, np.integer)) or size < 1:
+        raise OptionError(f"size must be a whole number of models ≥ 1 (got {size!r})")
+    if max_delta is not None and not (isinstance(max_delta, (int, float, np.floating)) and max_delta >= 0):
+        raise OptionError(f"max_delta must be a number ≥ 0 or None (got {max_delta!r})")
+    n, pooled = _pool(founds, len(candidates.terms))
+    if int(moments.n) != n:
+        raise SearchError(f"the moments cover {moments.n} rows but the searches were fitted to {n}")
+    subsets = list(pooled)
+    notes: list[str] = []
+    if scores is None:
+        scores, extra = _compute_scores(candidates, subsets, moments, folds, seed)
+        notes.extend(extra)
+    elif scores is False:
+        scores = None
+        notes.append("PRESS, cross-validation and held-out columns were not requested.")
+    score_frame, extra = _normalise_scores(scores, subsets)
+    notes.extend(extra)
+
+    table, ordered, name, reason, weight_criterion, cp_source = _score_table(
+        candidates, moments, n, pooled, convention=convention, criterion=criterion, aim=aim,
+        score_frame=score_frame,
+    )
+    if weight_criterion != name:
+        notes.append(f"Model weights and variable support use {weight_criterion.upper()}, "
+                     f"since {name} has no likelihood weights.")
+    keep = np.arange(len(table)) < size
+    if max_delta is not None:
+        keep &= table["delta_from_best"].to_numpy(dtype=float) <= max_delta
+    shortlist_table = table[keep].reset_index(drop=True)
+    short_subsets = tuple(ordered[i] for i in np.flatnonzero(keep))
+    support = _variable_support(candidates, ordered, table["model_weight"].to_numpy())
+    fits = tuple(fit_model(candidates, s) for s in short_subsets)
+    return Shortlist(
+        table=shortlist_table,
+        scored=table,
+        subsets=short_subsets,
+        all_subsets=tuple(ordered),
+        criterion=name,
+        criterion_reason=reason,
+        aim=aim,
+        convention=convention,
+        weight_criterion=weight_criterion,
+        cp_variance_source=cp_source,
+        variable_support=support,
+        fits=fits,
+        n=n,
+        notes=tuple(notes),
+    )
+
+
+# --------------------------------------------------------------------------- refit
+
+
+def _coefficient_labels(candidates, subset):
+    """(term name, column index, label, display-in-equation) for each coefficient."""
+    out = []
+    for i in subset:
+        term = candidates.terms[i]
+        if term.kind == "block":
+            for j in term.columns:
+                column = str(candidates.column_names[j])
+                level = column
+                if column.startswith(term.name) and len(column) > len(term.name):
+                    level = column[len(term.name):].strip(" []=_:.()") or column
+                display = f"[{term.name} = {level}]"
+                out.append((term.name, j, display, display))
+        elif len(term.columns) == 1:
+            out.append((term.name, term.columns[0], term.name, term.name))
+        else:
+            for j in term.columns:
+                column = str(candidates.column_names[j])
+                out.append((term.name, j, column, column))
+    return out
+
+
+def _design(candidates, subset):
+    labels = _coefficient_labels(candidates, subset)
+    n = candidates.matrix.shape[0]
+    columns = {INTERCEPT_LABEL: np.ones(n)}
+    for _, j, label, _ in labels:
+        columns[label] = np.asarray(candidates.matrix[:, j], dtype=float)
+    return pd.DataFrame(columns), labels
+
+
+def refit(candidates, subset):
+    """QR refit of one model with statsmodels (OLS, or WLS with the row weights).
+
+    Parameters
+    ----------
+    candidates : CandidateSet
+    subset : sequence of int
+        Term indices into ``candidates.terms``; the intercept is always added.
+
+    Returns
+    -------
+    statsmodels.regression.linear_model.RegressionResultsWrapper
+        Fitted with ``fit(method="qr")``; exog columns are named ``intercept``
+        and the coefficient labels (a term's readable name, ``[block = level]``
+        for a categorical level).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from tests.factories import make_candidates
+    >>> rng = np.random.default_rng(0)
+    >>> X = rng.normal(size=(30, 2)); y = 1 + 2 * X[:, 0] + rng.normal(size=30)
+    >>> results = refit(make_candidates(X, y), (0,))
+    >>> list(results.params.index)
+    ['intercept', 'x0']
+    """
+    import statsmodels.api as sm
+
+    subset = tuple(sorted(int(i) for i in subset))
+    exog, _ = _design(candidates, subset)
+    y = pd.Series(np.asarray(candidates.y, dtype=float), name=candidates.response)
+    if candidates.weights is None:
+        model = sm.OLS(y, exog)
+    else:
+        model = sm.WLS(y, exog, weights=np.asarray(candidates.weights, dtype=float))
+    return model.fit(method="qr")
+
+
+def _number(value: float) -> str:
+    text = f"{abs(value):.4g}"
+    return text
+
+
+def _equation(lhs, params, labels) -> str:
+    parts = [f"{lhs} = {'−' if params.iloc[0] < 0 else ''}{_number(params.iloc[0])}"]
+    for (_, _, label, display), value in zip(labels, params.iloc[1:]):
+        sign = "−" if value < 0 else "+"
+        parts.append(f" {sign} {_number(value)}·{display}")
+    return "".join(parts)
+
+
+def fit_model(candidates, subset, *, level=0.95) -> ModelFit:
+    """Refit ``subset`` by QR and build its coefficient table and equation.
+
+    Parameters
+    ----------
+    candidates : CandidateSet
+    subset : sequence of int
+    level : float, default 0.95
+        Confidence level of the t intervals.
+
+    Returns
+    -------
+    ModelFit
+    """
+    subset = tuple(sorted(int(i) for i in subset))
+    results = refit(candidates, subset)
+    _, labels = _design(candidates, subset)
+    ci = np.asarray(results.conf_int(alpha=1.0 - level))
+    coefficients = pd.DataFrame({
+        "coefficient": [INTERCEPT_LABEL] + [label for _, _, label, _ in labels],
+        "term": [INTERCEPT_LABEL] + [term for term, _, _, _ in labels],
+        "estimate": np.asarray(results.params, dtype=float),
+        "std_error": np.asarray(results.bse, dtype=float),
+        "ci_low": ci[:, 0],
+        "ci_high": ci[:, 1],
+        "p_value_optimistic": np.asarray(results.pvalues, dtype=float),
+    })
+    transform = candidates.response_transform
+    lhs = transform.name if transform.transform != "identity" else candidates.response
+    n = int(results.nobs)
+    k = int(len(results.params))
+    return ModelFit(
+        subset=subset,
+        terms=_term_names(candidates, subset),
+        coefficients=coefficients,
+        equation=_equation(lhs, results.params, labels),
+        n=n,
+        k=k,
+        sigma=float(np.sqrt(results.scale)),
+    )
+
+
+# --------------------------------------------------------------------------- stability
+
+
+def _best_of(found, criterion, *, convention, tss, log_jacobian, names):
+    """Index of the best model of one Found by an rss-based criterion (ties: n_terms, names)."""
+    k = found.k
+    values = _criteria.compute(found.rss, found.n, k, tss=tss, convention=convention,
+                               log_jacobian=log_jacobian,
+                               sigma2_full=_sigma2_largest(found) if criterion == "cp" else None)
+    primary = values[criterion]
+    order = _order_key(primary, _criteria.LOWER_IS_BETTER[criterion],
+                       [len(s) for s in found.subsets], names)
+    return order[0]
+
+
+def _sigma2_largest(found):
+    i = int(np.argmax(found.k))
+    dof = found.n - int(found.k[i])
+    return float(found.rss[i]) / dof if dof > 0 and found.rss[i] > 0 else np.nan
+
+
+def _resample(candidates, rows):
+    return dataclasses.replace(
+        candidates,
+        matrix=np.ascontiguousarray(candidates.matrix[rows]),
+        y=np.asarray(candidates.y)[rows],
+        weights=None if candidates.weights is None else np.asarray(candidates.weights)[rows],
+    )
+
+
+def _call_runner(runner, candidates, moments):
+    try:
+        parameters = inspect.signature(runner).parameters
+    except (TypeError, ValueError):
+        parameters = {}
+    if "moments" in parameters:
+        return runner(candidates, moments=moments)
+    return runner(candidates)
+
+
+def _replicate(payload):
+    """One bootstrap replicate (module level so that it pickles)."""
+    candidates, runner, seed_sequence, criterion, convention = payload
+    rng = np.random.default_rng(seed_sequence)
+    n = candidates.matrix.shape[0]
+    rows = rng.integers(0, n, size=n)
+    sample = _resample(candidates, rows)
+    moments = compute_moments(sample.matrix, sample.y, sample.weights)
+    try:
+        found = _call_runner(runner, sample, moments)
+    except SelectkitError as err:
+        return None, str(err)
+    if len(found) == 0:
+        return None, "the search kept no model"
+    names = [_term_names(candidates, s) for s in found.subsets]
+    # Every model of one Found shares the response transform, so its log-Jacobian is a
+    # constant that cannot change which model is best: 0 is used.
+    best = _best_of(found, criterion, convention=convention, tss=moments.tss, log_jacobian=0.0, names=names)
+    return found.subsets[best], None
+
+
+def stability(
+    candidates,
+    runner: Callable,
+    *,
+    n_boot=50,
+    seed=0,
+    n_jobs=1,
+    backend="loky",
+    criterion="bic",
+    convention="selectkit",
+) -> Stability:
+    """Bootstrap stability of the selection: how often each variable and form is chosen.
+
+    Each of ``n_boot`` replicates draws n rows with replacement (a
+    ``numpy.random.Generator`` seeded by child ``b`` of
+    ``SeedSequence(seed).spawn(n_boot)``), rebuilds the moments on those rows,
+    runs ``runner`` on the resampled candidate set and keeps the best model by
+    ``criterion``.  The share of replicates whose best model holds a variable
+    estimates how firmly the data select it, in the spirit of stability
+    selection (Meinshausen & Bühlmann 2010); model-selection bootstraps of
+    this kind go back to Sauerbrei & Schumacher (1992).
+
+    Parameters
+    ----------
+    candidates : CandidateSet
+    runner : callable
+        ``runner(candidates) -> Found`` (or ``runner(candidates, moments=...)``
+        when it has a ``moments`` parameter: it then receives the resampled
+        moments).  Must be picklable (a module-level function or a
+        ``functools.partial`` of one) when ``n_jobs != 1``.
+    n_boot : int, default 50
+    seed : int, default 0
+    n_jobs : int, default 1
+    backend : str, default "loky"
+        See :func:`selectkit.parallel.run_units`; results are identical for any
+        ``n_jobs`` and backend.
+    criterion : {"aic", "aicc", "bic", "cp", "adj_r2"}, default "bic"
+    convention : str, default "selectkit"
+
+    Returns
+    -------
+    Stability
+
+    Notes
+    -----
+    Forms whose transform has a fitted parameter (Box-Cox λ) keep the value
+    fitted on the full data; the bootstrap does not refit it, so it slightly
+    understates the uncertainty of such forms.
+
+    References
+    ----------
+    Meinshausen, N. and Bühlmann, P. (2010). Stability selection. J. R. Statist.
+    Soc. B 72(4), 417-473.
+    Sauerbrei, W. and Schumacher, M. (1992). A bootstrap resampling procedure
+    for model building. Statistics in Medicine 11, 2093-2109.
+    """
+    criterion = _criteria.check_criterion(criterion)
+    if criterion in SCORE_COLUMNS:
+        raise OptionError(
+            f"stability ranks each replicate by an rss-based criterion; {criterion!r} needs "
+            "cross-validation inside every replicate. Choose one of aic, aicc, bic, cp, adj_r2"
+        )
+    if isinstance(n_boot, bool) or not isinstance(n_boot, (int, np.integer)) or n_boot < 1:
+        raise OptionError(f"n_boot must be a whole number of replicates ≥ 1 (got {n_boot!r})")
+    moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+    full = _call_runner(runner, candidates, moments)
+    if len(full) == 0:
+        raise SearchError("the search kept no model on the full data; stability cannot be assessed")
+    names = [_term_names(candidates, s) for s in full.subsets]
+    full_best = full.subsets[_best_of(full, criterion, convention=convention, tss=moments.tss,
+                                      log_jacobian=0.0, names=names)]
+    units = [(candidates, runner, child, criterion, convention) for child in spawn_seeds(seed, n_boot)]
+    results = run_units(_replicate, units, n_jobs=n_jobs, backend=backend)
+    chosen = [subset for subset, _ in results]
+    messages = sorted({message for _, message in results if message})
+    ok = [s for s in chosen if s is not None]
+    failed = len(chosen) - len(ok)
+    count = max(len(ok), 1)
+    term_counts = np.zeros(len(candidates.terms))
+    for s in ok:
+        for i in s:
+            term_counts[i] += 1
+    families: list[str] = []
+    for term in candidates.terms:
+        if term.family not in families:
+            families.append(term.family)
+    family_counts = dict.fromkeys(families, 0)
+    for s in ok:
+        for fam in {candidates.terms[i].family for i in s}:
+            family_counts[fam] += 1
+    variable_share = pd.DataFrame({
+        "variable": families,
+        "share_selected": [family_counts[f] / count for f in families],
+    })
+    variable_share = variable_share.iloc[
+        sorted(range(len(families)), key=lambda i: (-variable_share["share_selected"].iloc[i], families[i]))
+    ].reset_index(drop=True)
+    form_share = pd.DataFrame({
+        "term": [t.name for t in candidates.terms],
+        "variable": [t.family for t in candidates.terms],
+        "share_selected": term_counts / count,
+    })
+    notes = []
+    if failed:
+        notes.append(f"{failed} of {n_boot} replicates failed and were left out: " + "; ".join(messages[:3]))
+    return Stability(
+        n_boot=int(n_boot),
+        seed=int(seed) if isinstance(seed, (int, np.integer)) else seed,
+        criterion=criterion,
+        variable_share=variable_share,
+        form_share=form_share,
+        full_data_best=_term_names(candidates, full_best),
+        share_same_as_full=sum(s == full_best for s in ok) / count if ok else float("nan"),
+        replicate_models=tuple(chosen),
+        failed=failed,
+        notes=tuple(notes),
+    )
