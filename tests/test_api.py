@@ -1,0 +1,102 @@
+"""The notebook face end to end: search → Result, refits, persistence, determinism."""
+
+import numpy as np
+import pandas as pd
+import pytest
+import statsmodels.api as sm
+
+import selectkit
+from selectkit.errors import InputError, OptionError
+
+
+def _small_frame(n=120, seed=3):
+    # invented: yield from log(light) and 1/density, plus three noise probes and a cultivar
+    rng = np.random.default_rng(seed)
+    light = rng.uniform(8, 30, n)
+    density = rng.uniform(2, 4, n)
+    cultivar = rng.choice(["Ruby", "Amber"], n)
+    frame = pd.DataFrame({
+        "light": light,
+        "density": density,
+        "probe_a": rng.normal(50, 10, n),
+        "probe_b": rng.normal(5, 1, n),
+        "cultivar": cultivar,
+    })
+    frame["yield_kg_m2"] = (5 + 6 * np.log(light) - 9 / density + 1.5 * (cultivar == "Amber")
+                            + rng.normal(0, 0.8, n))
+    return frame
+
+
+@pytest.fixture(scope="module")
+def result():
+    return selectkit.search(_small_frame(), response="yield_kg_m2", methods=("exhaustive",),
+                            forms=("identity", "log", "reciprocal"), seed=0)
+
+
+def test_search_recovers_the_generating_terms(result):
+    assert isinstance(result.shortlist, pd.DataFrame)
+    assert set(result.terms(0)) == {"log(light)", "1/density", "cultivar"}
+
+
+def test_model_is_the_statsmodels_refit_of_the_same_columns(result):
+    # reference: statsmodels OLS on the columns built by hand
+    frame = _small_frame()
+    X = pd.DataFrame({"log_light": np.log(frame["light"]), "inv_density": 1 / frame["density"],
+                      "amber": (frame["cultivar"] == "Amber").astype(float)})
+    ref = sm.OLS(frame["yield_kg_m2"], sm.add_constant(X)).fit()
+    fit = result.model(0)
+    assert np.isclose(fit.ssr, ref.ssr, rtol=1e-10)
+    assert np.allclose(sorted(np.abs(fit.params)), sorted(np.abs(ref.params)), rtol=1e-8)
+
+
+def test_predict_on_new_rows_matches_the_refit(result):
+    frame = _small_frame()
+    pred = result.predict(frame.drop(columns="yield_kg_m2"), 0)
+    assert np.allclose(pred, result.model(0).fittedvalues, rtol=1e-9, atol=1e-9)
+
+
+def test_save_and_load_round_trip(result, tmp_path):
+    path = result.save(tmp_path / "greenhouse.skres")
+    back = selectkit.load(path)
+    pd.testing.assert_frame_equal(back.shortlist, result.shortlist)
+    assert back.terms(0) == result.terms(0)
+
+
+def test_load_refuses_other_files(tmp_path):
+    bad = tmp_path / "not-a-result.bin"
+    bad.write_bytes(b"\x80\x04K\x01.")  # a pickle of the number 1
+    with pytest.raises(selectkit.SelectkitError):
+        selectkit.load(bad)
+    with pytest.raises(FileNotFoundError):
+        selectkit.load(tmp_path / "missing.skres")
+
+
+def test_repr_html_escapes_user_strings():
+    frame = _small_frame().rename(columns={"probe_a": "<script>alert(1)</script>"})
+    res = selectkit.search(frame, response="yield_kg_m2", methods=("exhaustive",), forms=("identity",),
+                           shortlist_size=30)
+    page = res._repr_html_()
+    assert "<script>" not in page
+
+
+def test_same_shortlist_for_one_and_two_workers():
+    frame = _small_frame()
+    one = selectkit.search(frame, response="yield_kg_m2", methods=("exhaustive", "both"), n_jobs=1, seed=4)
+    two = selectkit.search(frame, response="yield_kg_m2", methods=("exhaustive", "both"), n_jobs=2, seed=4)
+    pd.testing.assert_frame_equal(one.shortlist, two.shortlist)
+
+
+def test_unknown_method_lists_valid_ones():
+    with pytest.raises(OptionError, match="exhaustive"):
+        selectkit.search(_small_frame(), response="yield_kg_m2", methods=("greedy",))
+
+
+def test_unknown_method_setting_suggests_nearest():
+    with pytest.raises(OptionError, match="did you mean"):
+        selectkit.search(_small_frame(), response="yield_kg_m2", methods=("exhaustive",),
+                         method_options={"exhaustive": {"max_sise": 3}})
+
+
+def test_missing_response_is_an_input_error():
+    with pytest.raises(InputError, match="yield"):
+        selectkit.search(_small_frame(), response="yield")
