@@ -1,0 +1,390 @@
+"""The run store: one SQLite file in a job's output folder that survives a kill.
+
+The store records the job's settings, a fingerprint of its data file, every
+finished work unit (key, pickled result, time), the pooled search results, the
+shortlist and a log.  Each finished unit is committed in its own transaction
+(WAL journal), so a job killed at any moment loses at most the unit it was
+computing.  A lock file beside the store (``fcntl.flock``; released by the
+operating system when the process dies) keeps a second process from running
+the same store at once.
+
+Results are stored with :mod:`pickle`: resume only stores you made yourself.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import pickle
+import sqlite3
+import time
+from contextlib import closing
+from pathlib import Path
+
+from ..errors import StoreBusyError, StoreError
+
+__all__ = ["RunStore", "StoreLock", "STORE_NAME", "data_fingerprint", "find_store", "is_running"]
+
+STORE_NAME = "run-store.sqlite"
+_LOCK_SUFFIX = ".lock"
+SCHEMA_VERSION = 1
+
+_SCHEMA = """
+CREATE TABLE IF NOT EXISTS about (name TEXT PRIMARY KEY, value TEXT NOT NULL);
+CREATE TABLE IF NOT EXISTS units (
+    key TEXT PRIMARY KEY,
+    position INTEGER NOT NULL,
+    state TEXT NOT NULL,
+    result BLOB,
+    models INTEGER,
+    seconds REAL,
+    finished_at REAL
+);
+CREATE TABLE IF NOT EXISTS pooled (
+    position INTEGER PRIMARY KEY,
+    method TEXT NOT NULL,
+    models INTEGER NOT NULL,
+    evaluated INTEGER NOT NULL,
+    exact INTEGER NOT NULL,
+    stopped_by TEXT NOT NULL,
+    found BLOB NOT NULL
+);
+CREATE TABLE IF NOT EXISTS shortlist (position INTEGER PRIMARY KEY, row TEXT NOT NULL);
+CREATE TABLE IF NOT EXISTS log (
+    id INTEGER PRIMARY KEY AUTOINCREMENT,
+    at REAL NOT NULL,
+    level TEXT NOT NULL,
+    message TEXT NOT NULL
+);
+"""
+
+
+# --------------------------------------------------------------------------- helpers
+def data_fingerprint(path) -> dict:
+    """SHA-256 of a file's bytes and its size: ``{"sha256": ..., "size": ...}``."""
+    digest = hashlib.sha256()
+    size = 0
+    with open(path, "rb") as handle:
+        for block in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(block)
+            size += len(block)
+    return {"sha256": digest.hexdigest(), "size": size}
+
+
+def find_store(folder_or_store) -> Path:
+    """The store file of an output folder (or the store file itself).
+
+    Raises
+    ------
+    StoreError
+        When there is no store there.
+    """
+    path = Path(folder_or_store).expanduser()
+    candidate = path / STORE_NAME if path.is_dir() else path
+    if not candidate.is_file():
+        raise StoreError(
+            f"no run store at {str(candidate)!r}; give the output folder of a job "
+            f"(the [run] output of its job file), which holds {STORE_NAME}"
+        )
+    return candidate.resolve()
+
+
+class StoreLock:
+    """An exclusive OS-level lock on ``<store>.lock``, held while a job runs.
+
+    The operating system drops the lock when the process ends, however it ends,
+    so a killed job never leaves a stale lock behind.
+    """
+
+    def __init__(self, store_path):
+        self.path = Path(str(store_path) + _LOCK_SUFFIX)
+        self._handle = None
+
+    def acquire(self, *, wait: float = 1.0) -> "StoreLock":
+        """Take the lock, retrying for ``wait`` seconds; raise :class:`StoreBusyError` if another holds it."""
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        handle = open(self.path, "a+")
+        deadline = time.monotonic() + wait
+        while True:
+            if _try_lock(handle, exclusive=True):
+                break
+            if time.monotonic() >= deadline:
+                handle.close()
+                holder = _read_holder(self.path)
+                raise StoreBusyError(
+                    f"the run store {str(self.path)[: -len(_LOCK_SUFFIX)]!r} is in use by another job{holder}; "
+                    f"wait for it to end (see 'selectkit job status') or choose another output folder"
+                )
+            time.sleep(0.05)
+        handle.seek(0)
+        handle.truncate()
+        handle.write(f"{os.getpid()} {time.time():.0f}\n")
+        handle.flush()
+        self._handle = handle
+        return self
+
+    def release(self) -> None:
+        if self._handle is not None:
+            _unlock(self._handle)
+            self._handle.close()
+            self._handle = None
+
+    def __enter__(self):
+        return self.acquire()
+
+    def __exit__(self, *exc):
+        self.release()
+
+
+def _try_lock(handle, *, exclusive: bool) -> bool:
+    try:
+        import fcntl
+    except ImportError:  # pragma: no cover - Windows
+        import msvcrt
+
+        try:
+            handle.seek(0)
+            msvcrt.locking(handle.fileno(), msvcrt.LK_NBLCK, 1)
+            return True
+        except OSError:
+            return False
+    flag = fcntl.LOCK_EX if exclusive else fcntl.LOCK_SH
+    try:
+        fcntl.flock(handle.fileno(), flag | fcntl.LOCK_NB)
+        return True
+    except BlockingIOError:
+        return False
+
+
+def _unlock(handle) -> None:
+    try:
+        import fcntl
+    except ImportError:  # pragma: no cover - Windows
+        import msvcrt
+
+        handle.seek(0)
+        msvcrt.locking(handle.fileno(), msvcrt.LK_UNLCK, 1)
+        return
+    fcntl.flock(handle.fileno(), fcntl.LOCK_UN)
+
+
+def _read_holder(lock_path: Path) -> str:
+    try:
+        pid = lock_path.read_text().split()[0]
+        return f" (process {pid})"
+    except (OSError, IndexError):
+        return ""
+
+
+def is_running(store_path) -> bool:
+    """Whether some process holds the store's lock right now (a job is running)."""
+    lock_path = Path(str(store_path) + _LOCK_SUFFIX)
+    if not lock_path.exists():
+        return False
+    with open(lock_path, "a+") as handle:
+        if _try_lock(handle, exclusive=False):
+            _unlock(handle)
+            return False
+        return True
+
+
+# --------------------------------------------------------------------------- the store
+class RunStore:
+    """Read and write a job's run store.
+
+    Open it with :meth:`create_or_open` (read-write, by the job that holds the
+    lock) or :meth:`open_read_only` (any other process, while a job runs).
+
+    Parameters
+    ----------
+    path : Path
+        The SQLite file.
+    connection : sqlite3.Connection
+    """
+
+    def __init__(self, path: Path, connection: sqlite3.Connection, *, read_only: bool):
+        self.path = Path(path)
+        self._db = connection
+        self.read_only = read_only
+
+    # ------------------------------------------------------------------ opening
+    @classmethod
+    def create_or_open(cls, folder) -> "RunStore":
+        """Open (creating if needed) the store in ``folder`` for writing."""
+        folder = Path(folder)
+        folder.mkdir(parents=True, exist_ok=True)
+        path = folder / STORE_NAME
+        try:
+            db = sqlite3.connect(path, timeout=30.0, isolation_level=None)
+            db.execute("PRAGMA journal_mode=WAL")
+            # NORMAL: a commit survives the process being killed (not a power cut
+            # between checkpoints), at a fraction of FULL's cost.
+            db.execute("PRAGMA synchronous=NORMAL")
+            db.executescript(_SCHEMA)
+        except sqlite3.DatabaseError as err:
+            raise StoreError(f"{str(path)!r} is not a usable run store ({err}); move it away or choose another "
+                             f"output folder") from err
+        store = cls(path, db, read_only=False)
+        version = store.get("schema_version")
+        if version is None:
+            store.set_many({"schema_version": SCHEMA_VERSION, "created_at": time.time()})
+        elif int(version) != SCHEMA_VERSION:
+            raise StoreError(f"{str(path)!r} was written by another version of selectkit (store version {version}, "
+                             f"this one reads {SCHEMA_VERSION}); start it afresh in a new folder")
+        return store
+
+    @classmethod
+    def open_read_only(cls, folder_or_store) -> "RunStore":
+        """Open an existing store without writing to it (safe while a job runs)."""
+        path = find_store(folder_or_store)
+        try:
+            db = sqlite3.connect(f"{path.as_uri()}?mode=ro", uri=True, timeout=30.0, isolation_level=None)
+            db.execute("SELECT count(*) FROM about").fetchone()
+        except sqlite3.DatabaseError as err:
+            raise StoreError(f"{str(path)!r} is not a readable run store ({err})") from err
+        return cls(path, db, read_only=True)
+
+    def close(self) -> None:
+        self._db.close()
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+
+    # ------------------------------------------------------------------ about
+    def get(self, name: str, default=None):
+        """A value of the ``about`` table (decoded from JSON)."""
+        row = self._db.execute("SELECT value FROM about WHERE name = ?", (name,)).fetchone()
+        return default if row is None else json.loads(row[0])
+
+    def set_many(self, values: dict) -> None:
+        """Set several ``about`` values in one transaction."""
+        with self._transaction():
+            self._db.executemany(
+                "INSERT INTO about (name, value) VALUES (?, ?) ON CONFLICT(name) DO UPDATE SET value = excluded.value",
+                [(k, json.dumps(v, sort_keys=True, default=str)) for k, v in values.items()],
+            )
+
+    def about(self) -> dict:
+        return {name: json.loads(value) for name, value in self._db.execute("SELECT name, value FROM about")}
+
+    # ------------------------------------------------------------------ units
+    def record_unit(self, key: str, result, *, models: int | None = None, seconds: float | None = None) -> None:
+        """Commit one finished unit in its own transaction."""
+        blob = pickle.dumps(result, protocol=pickle.HIGHEST_PROTOCOL)
+        with self._transaction():
+            position = self._db.execute("SELECT count(*) FROM units").fetchone()[0]
+            self._db.execute(
+                "INSERT INTO units (key, position, state, result, models, seconds, finished_at) "
+                "VALUES (?, ?, 'done', ?, ?, ?, ?) ON CONFLICT(key) DO UPDATE SET result = excluded.result, "
+                "state = 'done', models = excluded.models, seconds = excluded.seconds, "
+                "finished_at = excluded.finished_at",
+                (key, position, blob, models, seconds, time.time()),
+            )
+
+    def finished_units(self) -> dict:
+        """``{key: result}`` of every finished unit, in the order they finished."""
+        rows = self._db.execute("SELECT key, result FROM units WHERE state = 'done' ORDER BY position")
+        return {key: pickle.loads(blob) for key, blob in rows}
+
+    def finished_keys(self) -> set:
+        """Keys of the finished units."""
+        return {key for (key,) in self._db.execute("SELECT key FROM units WHERE state = 'done'")}
+
+    def unit_counts(self) -> tuple[int, int]:
+        """(units finished, models evaluated by them as far as recorded)."""
+        done, models = self._db.execute(
+            "SELECT count(*), coalesce(sum(models), 0) FROM units WHERE state = 'done'").fetchone()
+        return int(done), int(models)
+
+    def clear(self) -> None:
+        """Forget every unit, pooled result, shortlist row and setting (a fresh start)."""
+        with self._transaction():
+            for table in ("units", "pooled", "shortlist", "log"):
+                self._db.execute(f"DELETE FROM {table}")
+            self._db.execute("DELETE FROM about WHERE name != 'schema_version'")
+            self._db.execute("INSERT OR REPLACE INTO about VALUES ('created_at', ?)", (json.dumps(time.time()),))
+
+    # ------------------------------------------------------------------ results
+    def record_pooled(self, founds) -> None:
+        """Replace the pooled search results (one row per method's ``Found``)."""
+        with self._transaction():
+            self._db.execute("DELETE FROM pooled")
+            for i, found in enumerate(founds):
+                self._db.execute(
+                    "INSERT INTO pooled VALUES (?, ?, ?, ?, ?, ?, ?)",
+                    (i, str(getattr(found, "method", "?")), len(found), int(getattr(found, "evaluated", 0)),
+                     int(bool(getattr(found, "exact", False))), str(getattr(found, "stopped_by", "")),
+                     pickle.dumps(found, protocol=pickle.HIGHEST_PROTOCOL)),
+                )
+
+    def pooled(self) -> list:
+        return [pickle.loads(b) for (b,) in self._db.execute("SELECT found FROM pooled ORDER BY position")]
+
+    def pooled_summary(self) -> list[dict]:
+        rows = self._db.execute(
+            "SELECT method, models, evaluated, exact, stopped_by FROM pooled ORDER BY position").fetchall()
+        return [dict(method=m, models=n, evaluated=e, exact=bool(x), stopped_by=s) for m, n, e, x, s in rows]
+
+    def record_shortlist(self, rows: list[dict]) -> None:
+        """Replace the stored shortlist (one JSON object per model, best first)."""
+        with self._transaction():
+            self._db.execute("DELETE FROM shortlist")
+            self._db.executemany(
+                "INSERT INTO shortlist VALUES (?, ?)",
+                [(i, json.dumps(row, sort_keys=False, default=_json_default)) for i, row in enumerate(rows)],
+            )
+
+    def shortlist(self) -> list[dict]:
+        return [json.loads(r) for (r,) in self._db.execute("SELECT row FROM shortlist ORDER BY position")]
+
+    # ------------------------------------------------------------------ log
+    def log(self, message: str, level: str = "info") -> None:
+        with self._transaction():
+            self._db.execute("INSERT INTO log (at, level, message) VALUES (?, ?, ?)", (time.time(), level, message))
+
+    def log_lines(self, last: int | None = None) -> list[tuple[float, str, str]]:
+        if last is None:
+            return list(self._db.execute("SELECT at, level, message FROM log ORDER BY id"))
+        rows = self._db.execute("SELECT at, level, message FROM log ORDER BY id DESC LIMIT ?", (last,)).fetchall()
+        return rows[::-1]
+
+    # ------------------------------------------------------------------ internals
+    def _transaction(self):
+        if self.read_only:
+            raise StoreError(f"the run store {str(self.path)!r} was opened read-only")
+        return _Transaction(self._db)
+
+
+class _Transaction:
+    def __init__(self, db):
+        self.db = db
+
+    def __enter__(self):
+        self.db.execute("BEGIN IMMEDIATE")
+        return self.db
+
+    def __exit__(self, kind, value, traceback):
+        self.db.execute("COMMIT" if kind is None else "ROLLBACK")
+        return False
+
+
+def _json_default(value):
+    import numpy as np
+
+    if isinstance(value, np.generic):
+        return value.item()
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    if isinstance(value, (set, frozenset, tuple)):
+        return list(value)
+    return str(value)
+
+
+def read_store_about(path) -> dict:
+    """All ``about`` values of a store, read-only."""
+    with closing(RunStore.open_read_only(path)) as store:
+        return store.about()
