@@ -698,14 +698,14 @@ def _describe_combination(name, target, numeric_kept, categorical_kept):
         terms.append((b, label))
     formula = " ".join(("" if i == 0 and b >= 0 else ("− " if b < 0 else "+ ")) + f"{_format_number(abs(b))}·{lab}"
                        for i, (b, lab) in enumerate(terms))
-    intercept = coef[0]
-    if abs(intercept) > 1e-9 * max(scale, abs(target).max()):
-        formula += (" − " if intercept < 0 else " + ") + _format_number(abs(intercept))
     blocks_involved = [c for c in involved if c in {cat for cat, _, _ in categorical_kept}]
     if blocks_involved:
-        formula += " + a value for each level of " + _quoted_list(blocks_involved)
+        # The intercept is not identified apart from the level effects; leave it out.
+        formula = (formula + " + " if formula else "") + "a value for each level of " + _quoted_list(blocks_involved)
+    elif abs(coef[0]) > 1e-9 * max(scale, abs(target).max()):
+        formula += (" − " if coef[0] < 0 else " + ") + _format_number(abs(coef[0]))
     return (f"'{name}' is an exact linear combination of {_quoted_list(involved)} "
-            f"({name} = {formula.strip(' +')}, to 4 significant digits)")
+            f"({name} = {formula}, to 4 significant digits)")
 
 
 def _partition_key(codes: np.ndarray) -> tuple:
@@ -778,8 +778,8 @@ def _set_aside_collinear(n, order, kinds, numeric_values, categoricals, forced, 
                              f"a model cannot hold it with the columns it depends on — force fewer columns or "
                              f"exclude one of them", column=name)
         dropped.append(name)
-        notes.append(Note(name, "dropped", f"column {sentence}; it adds nothing to a model holding them, so '{name}' "
-                                           f"was dropped and the earlier columns kept"))
+        notes.append(Note(name, "dropped", f"column {sentence}; it adds nothing to a model holding the columns it "
+                                           f"depends on, so '{name}' was dropped and they were kept"))
     return dropped
 
 
@@ -1053,7 +1053,13 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
                                             f"reference level {cat.categories[0]!r} (the most frequent)"))
             categoricals[name] = cat
 
-    # duplicates and exact collinearity
+    # duplicates and exact collinearity.  With too few rows every column beyond the
+    # (n − 1)-th lies in the span of the others, so the row count is judged on the
+    # columns before this step whenever the columns kept after it are still too many
+    # (when they are not, every drop was a genuine exact combination).
+    width_before = sum(1 for c in pool if kinds[c] == "numeric") + sum(
+        len(categoricals[c].categories) - 1 for c in pool if kinds[c] == "categorical")
+    pool_before = list(pool)
     for name in _set_aside_collinear(n, pool, kinds, numeric_values, categoricals, forced, notes):
         set_aside_column(name)
 
@@ -1064,8 +1070,18 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
     numeric = tuple(c for c in pool if kinds[c] == "numeric")
     categorical = tuple(c for c in pool if kinds[c] == "categorical")
     width = len(numeric) + sum(len(categoricals[c].categories) - 1 for c in categorical)
-    check_enough_rows(n, width, what=f"the {_plural(len(pool), 'predictor')} ({_plural(width, 'coefficient')} "
-                                     f"besides the intercept)")
+    if n < width + 2:
+        width = width_before
+    try:
+        check_enough_rows(n, width, what=f"the {_plural(len(pool_before), 'predictor')}")
+    except InputError as err:
+        wide = sorted((c for c in pool_before if kinds[c] == "categorical"),
+                      key=lambda c: -len(categoricals[c].categories))
+        if not wide:
+            raise
+        listing = ", ".join(f"'{c}' ({len(categoricals[c].categories)} levels)" for c in wide[:5])
+        raise InputError(f"{err} — a categorical column counts one column per level but one: {listing}",
+                         column=wide[0], **err.context) from err
 
     frame = pd.DataFrame({c: (numeric_values[c] if kinds[c] == "numeric" else categoricals[c]) for c in pool},
                          index=pd.RangeIndex(n))
