@@ -260,7 +260,8 @@ def boxcox_lambda(x):
     """λ̂ maximising :func:`boxcox_llf` over [−5, 5].
 
     Agrees with ``scipy.stats.boxcox_normmax(x, method='mle')`` when the
-    maximum is inside the range.  ``x`` must be positive.
+    maximum is inside the range; otherwise returns the nearer end of the range
+    (the candidate generator refuses such a λ̂ as extreme).  ``x`` must be positive.
 
     Examples
     --------
@@ -359,9 +360,13 @@ def box_tidwell(x, y, *, weights=None, max_power=3.0, tol=1e-7, max_iter=100):
     >>> round(box_tidwell(x, 2 + 3 * np.sqrt(x)).power, 4)
     0.5
     """
-    x = np.asarray(x, dtype=float)
-    y = np.asarray(y, dtype=float)
-    w = None if weights is None else np.asarray(weights, dtype=float)
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        return _box_tidwell(np.asarray(x, dtype=float), np.asarray(y, dtype=float),
+                            None if weights is None else np.asarray(weights, dtype=float),
+                            max_power, tol, max_iter)
+
+
+def _box_tidwell(x, y, w, max_power, tol, max_iter):
     n = x.shape[0]
     logu = np.log(x) - np.log(x).mean()
     ones = np.ones(n)
@@ -382,13 +387,15 @@ def box_tidwell(x, y, *, weights=None, max_power=3.0, tol=1e-7, max_iter=100):
 
     def fit(alpha):
         g = logu if alpha == 0 else np.expm1(alpha * logu) / alpha
+        if not np.all(np.isfinite(g)):
+            return g, math.nan, math.inf
         coef, rss, _ = _weighted_lstsq(np.column_stack([ones, g]), y, w)
         return g, coef[1], rss
 
     alpha = 1.0
     g, b1, rss = fit(alpha)
     _, rss0, _ = _weighted_lstsq(ones[:, None], y, w)
-    if rss0 <= 0 or rss >= rss0 * (1.0 - 1e-8):
+    if np.ptp(y) == 0 or rss0 <= 0 or rss >= rss0 * (1.0 - 1e-8):
         return BoxTidwellResult(None, False, 0, "y shows no straight-line association with x", statistic, pvalue)
     for it in range(1, max_iter + 1):
         ga = _boxcox_derivative(logu, alpha)
@@ -519,7 +526,12 @@ def domain_problem(transform, x, params=(), *, column="x"):
     n = v.shape[0]
     zero = int(np.count_nonzero(v == 0))
     negative = int(np.count_nonzero(v < 0))
-    label = term_name(transform, column, p) if transform in ("power", "boxtidwell") else transform
+    if transform == "power":
+        label = term_name(transform, column, {"power": p["power"]})
+    elif transform == "boxtidwell":
+        label = "a Box-Tidwell power"
+    else:
+        label = transform
     where = f"{column} + {format_number(c)}" if c else column
     shifted = f" (after the shift {format_number(c)})" if c else ""
     parts = []
