@@ -505,6 +505,13 @@ def merge(candidates, moments, options: StepwiseOptions, results: Sequence[dict]
     ``final`` (the final subset of each start), ``criterion`` and ``direction``.
     """
     n = int(moments.n) if moments is not None else int(np.asarray(candidates.y).shape[0])
+    missing = sum(r is None for r in results)
+    results = [r for r in results if r is not None]  # units that did not finish (a stopped job)
+    if not results:
+        return Found(method=options.direction, subsets=(), rss=np.zeros(0), k=np.zeros(0, dtype=np.int64), n=n,
+                     exact=False, stopped_by="stopped before any start finished",
+                     details=MappingProxyType({"path": (), "runs": (), "final": (), "criterion": options.criterion,
+                                               "direction": options.direction}))
     subsets, rss, ks, index = [], [], [], {}
     for res in results:
         for model, r, k in res["visited"]:
@@ -530,7 +537,9 @@ def merge(candidates, moments, options: StepwiseOptions, results: Sequence[dict]
         method=options.direction, subsets=tuple(subsets), rss=np.array(rss, dtype=float),
         k=np.array(ks, dtype=np.int64), n=n,
         evaluated=sum(r["evaluated"] for r in results), singular=sum(r["singular"] for r in results),
-        exact=False, stopped_by="; ".join(reasons) if len(reasons) > 1 else results[0]["stopped_by"],
+        exact=False,
+        stopped_by=("; ".join(reasons) if len(reasons) > 1 else results[0]["stopped_by"])
+        + (f"; {missing} start(s) did not finish" if missing else ""),
         details=details,
     )
 
