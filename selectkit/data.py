@@ -447,6 +447,12 @@ def _read_csv(path: Path, encoding: str | None, compression: str | None):
                      f"check that the right file was exported")
     if not head.strip():
         raise DataFileError(empty_message, path=str(path))
+    if head.startswith((b"PK\x03\x04", b"\xd0\xcf\x11\xe0")):
+        raise DataFileError(f"'{path.name}' looks like a spreadsheet workbook, not a text table; save the sheet as "
+                            f"CSV (or Parquet) and read that", path=str(path))
+    if head.startswith(b"PAR1"):
+        raise DataFileError(f"'{path.name}' looks like a Parquet file; give it the suffix .parquet or .pq",
+                            path=str(path))
     notes: list[Note] = []
     if encoding is not None:
         try:
@@ -654,16 +660,19 @@ def _centred_unit(x: np.ndarray) -> np.ndarray | None:
 class _Span:
     """An orthonormal basis of the centred columns kept so far (Gram–Schmidt, re-orthogonalised)."""
 
-    def __init__(self, n: int):
-        self.basis = np.empty((n, 0))
+    def __init__(self, n: int, capacity: int):
+        self._basis = np.empty((n, max(min(capacity, n), 1)))
+        self.size = 0
 
     def leftover(self, z: np.ndarray) -> np.ndarray:
+        basis = self._basis[:, : self.size]
         for _ in range(2):
-            z = z - self.basis @ (self.basis.T @ z)
+            z = z - basis @ (basis.T @ z)
         return z
 
     def add(self, r: np.ndarray) -> None:
-        self.basis = np.column_stack([self.basis, r / np.linalg.norm(r)])
+        self._basis[:, self.size] = r / np.linalg.norm(r)
+        self.size += 1
 
 
 def _format_number(value: float) -> str:
@@ -724,7 +733,9 @@ def _set_aside_collinear(n, order, kinds, numeric_values, categoricals, forced, 
     unit-length values lie within :data:`COLLINEARITY_TOLERANCE` of the span of
     the intercept and the columns kept before it is dropped (forced: error).
     """
-    span = _Span(n)
+    capacity = sum(1 for c in order if kinds[c] == "numeric") + sum(
+        len(categoricals[c].categories) - 1 for c in order if kinds[c] == "categorical")
+    span = _Span(n, capacity)
     dropped: list[str] = []
     partitions: dict[tuple, str] = {}
     cat_kept = []
@@ -923,6 +934,11 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
         if name not in pool:
             raise InputError(f"keep_identifiers names '{name}', which is not among the predictors; add it to "
                              f"predictors= or remove it from keep_identifiers", column=name)
+
+    if not pool:
+        raise InputError(f"the table has no column besides the response '{response}'"
+                         f"{' and the weights' if weights else ''} to use as a predictor; check that the file was "
+                         f"split into columns (delimiter read: {read_report.delimiter!r}) and the roles given")
 
     n_read = len(table)
     y_all = _numeric_role(table[response], response, "response")

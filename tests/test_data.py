@@ -129,6 +129,20 @@ def test_explicit_encoding(tmp_path):
         read_table(path, encoding="no-such-codec")
 
 
+def test_utf16_file_with_byte_order_mark(tmp_path):
+    path = write_text(tmp_path / "wide.csv", "yield_kg_m2\tcultivar\n40.1\tRosé\n41.0\tRoma\n", encoding="utf-16")
+    frame, report = read_table(path)
+    assert report.encoding == "utf-16" and report.delimiter == "\t"
+    assert frame["cultivar"].tolist() == ["Rosé", "Roma"]
+
+
+def test_spreadsheet_passed_as_csv(tmp_path):
+    path = tmp_path / "bays.csv"
+    path.write_bytes(b"PK\x03\x04" + bytes(200))
+    with pytest.raises(DataFileError, match="spreadsheet workbook.*save the sheet as CSV"):
+        read_table(path)
+
+
 def test_compressed_csv(tmp_path):
     frame = greenhouse(10)
     path = tmp_path / "bays.csv.gz"
@@ -483,6 +497,37 @@ def test_forced_columns_that_are_collinear():
         prepare(frame, response="yield_kg_m2", forced=["night_temp_c", "night_temp_f"])
 
 
+@settings(max_examples=30, deadline=None)
+@given(st.integers(0, 2**32 - 1), st.integers(2, 7), st.integers(0, 4))
+def test_collinear_drops_agree_with_svd_rank(seed, n_independent, n_combinations):
+    # reference: numpy.linalg.matrix_rank (SVD) and least-squares residuals
+    rng = np.random.default_rng(seed)
+    n = 30
+    base = rng.normal(size=(n, n_independent)) * rng.uniform(0.1, 100, n_independent)
+    mix = rng.integers(-3, 4, size=(n_independent, n_combinations)).astype(float)
+    combos = base @ mix + rng.normal(size=n_combinations)
+    columns = np.column_stack([base, combos])[:, rng.permutation(n_independent + n_combinations)]
+    names = [f"probe_{j}" for j in range(columns.shape[1])]
+    frame = pd.DataFrame(columns, columns=names)
+    frame["yield_kg_m2"] = rng.normal(size=n)
+    data = prepare(frame, response="yield_kg_m2")
+    kept = np.column_stack([np.ones(n), data.frame[list(data.numeric)].to_numpy()])
+    rank = np.linalg.matrix_rank(np.column_stack([np.ones(n), columns]))
+    assert kept.shape[1] == rank and np.linalg.matrix_rank(kept) == rank
+    for name in data.report.set_aside:
+        x = frame[name].to_numpy()
+        fitted = kept @ np.linalg.lstsq(kept, x, rcond=None)[0]
+        assert np.allclose(fitted, x, atol=1e-8 * (1 + np.abs(x).max()))
+    # the kept columns are the first independent ones in column order
+    greedy, basis = [], np.ones((n, 1))
+    for j, name in enumerate(names):
+        candidate = np.column_stack([basis, columns[:, j]])
+        if np.linalg.matrix_rank(candidate) > basis.shape[1]:
+            greedy.append(name)
+            basis = candidate
+    assert list(data.numeric) == greedy
+
+
 def test_tolerance_is_stated_and_small():
     assert 0 < COLLINEARITY_TOLERANCE <= 1e-6
 
@@ -559,6 +604,12 @@ def test_check_enough_rows():
     with pytest.raises(InputError, match="too few rows for the candidate forms: 11 rows") as info:
         check_enough_rows(11, 10, what="the candidate forms")
     assert isinstance(info.value, ValueError)
+
+
+def test_single_column_file(tmp_path):
+    path = write_text(tmp_path / "one.csv", "yield_kg_m2 light co2\n40.1 20 800\n41.0 22 900\n")
+    with pytest.raises(InputError, match="no column besides the response.*delimiter"):
+        prepare(path, response="yield_kg_m2 light co2")
 
 
 def test_no_predictor_left():
