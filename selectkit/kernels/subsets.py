@@ -1,0 +1,571 @@
+"""Residual sums of squares of subsets and the branch-and-bound inner loop (numba).
+
+Everything here works on the **correlation-scaled** centred cross-product
+matrix ``A`` of shape ``(m + 1, m + 1)``: every candidate column and the
+response divided by the square root of its centred sum of squares, so the
+diagonal is 1 (0 for a constant column) and the response is the last
+row/column.  On this scale
+
+* the rss of a model is a fraction of the total sum of squares (multiply by
+  ``tss`` for the rss on the data's scale);
+* the Cholesky pivot of a column is the fraction of that column's own centred
+  sum of squares left unexplained by the columns before it, so the test
+  ``pivot ≤ PIVOT_TOLERANCE`` (``selectkit.kernels``) marks the column as a
+  numerical linear combination of the earlier ones — the subset is then
+  rank-deficient and is skipped and counted, never scored.
+
+Factors are kept in lower-triangular form ``L`` (row-major, ``A = L Lᵀ``) with
+the response as the last row: ``L[c, l]`` is the response's coordinate ``z_l``
+along the ``l``-th orthogonalised column, and the rss of the first ``i``
+columns is ``d + Σ_{l ≥ i} z_l²`` where ``d = L[c, c]`` is the rss of all ``c``
+columns (a sum of non-negative terms, which loses no digits to cancellation).
+
+Functions
+---------
+subset_rss(A, cols, tol)
+    rss of one subset by Cholesky; −1 when rank-deficient.
+factor_columns(A, cols, tol)
+    the factor ``L`` (response last), its skipped (singular) columns and the rss.
+add_column(A, L, cols, ncols, j, tol) / drop_column(L, ncols, position)
+    one-column updates of a factor in O(k²) (bordering; Givens rotations).
+branch_and_bound(...)
+    the exact best-subset inner loop used by :mod:`selectkit.search.exhaustive`.
+
+References
+----------
+Golub, G. H. and Van Loan, C. F. (2013). Matrix Computations, 4th ed., §4.2
+    (Cholesky), §6.5 (updating factorisations).  Johns Hopkins.
+Gatu, C. and Kontoghiorghes, E. J. (2006). Branch-and-bound algorithms for
+    computing the best-subset regression models. J. Comput. Graph. Statist.
+    15(1), 139-156.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+__all__ = [
+    "scaled_cross",
+    "subset_rss",
+    "factor_columns",
+    "add_column",
+    "drop_column",
+    "branch_and_bound",
+    "PRUNE_SLACK",
+]
+
+#: Relative slack of the pruning test: a subtree is cut only when its bound
+#: exceeds the threshold by more than this fraction, so that rounding in the
+#: bound (computed in another column order) can never cut a qualifying model.
+PRUNE_SLACK = 1e-9
+
+
+def scaled_cross(cross):
+    """Correlation-scale a centred cross-product matrix (response last).
+
+    Parameters
+    ----------
+    cross : ndarray, shape (m + 1, m + 1)
+
+    Returns
+    -------
+    A : ndarray
+        ``cross[i, j] / (s_i s_j)`` with ``s = sqrt(diag(cross))``; rows and
+        columns of constant variables are left at zero.
+    scales : ndarray
+        ``s``.
+    """
+    cross = np.asarray(cross, dtype=np.float64)
+    scales = np.sqrt(np.maximum(np.diag(cross), 0.0))
+    safe = np.where(scales > 0, scales, 1.0)
+    A = cross / np.outer(safe, safe)
+    A[scales == 0, :] = 0.0
+    A[:, scales == 0] = 0.0
+    A = 0.5 * (A + A.T)
+    np.fill_diagonal(A, np.where(scales > 0, 1.0, 0.0))
+    return np.ascontiguousarray(A), scales
+
+
+@njit(cache=True)
+def _factor_into(A, cols, ncols, L, skipped, start, tol):
+    """Left-looking Cholesky of A[cols + (y,)] into L, rows ``start..ncols``.
+
+    Rows ``0..start-1`` of ``L`` and ``skipped`` must already hold the factor of
+    the first ``start`` columns (same columns in the same order).  A column
+    whose pivot is ≤ tol × its diagonal is marked skipped: its row of ``L`` is
+    zero, so the factor is that of the span of the kept columns.
+    """
+    yi = A.shape[0] - 1
+    for j in range(start, ncols + 1):
+        cj = yi if j == ncols else cols[j]
+        for l in range(j):
+            if skipped[l]:
+                L[j, l] = 0.0
+                continue
+            s = A[cols[l], cj]
+            for i in range(l):
+                s -= L[l, i] * L[j, i]
+            L[j, l] = s / L[l, l]
+        d = A[cj, cj]
+        for l in range(j):
+            d -= L[j, l] * L[j, l]
+        if j == ncols:
+            L[j, j] = d if d > 0.0 else 0.0
+        elif A[cj, cj] <= 0.0 or d <= tol * A[cj, cj]:
+            skipped[j] = True
+            L[j, j] = 0.0
+            for l in range(j):
+                L[j, l] = 0.0
+        else:
+            skipped[j] = False
+            L[j, j] = np.sqrt(d)
+
+
+@njit(cache=True)
+def factor_columns(A, cols, tol):
+    """Cholesky factor of the scaled Gram matrix of ``cols`` with the response last.
+
+    Parameters
+    ----------
+    A : ndarray, shape (m + 1, m + 1)
+        Correlation-scaled centred cross-products (see :func:`scaled_cross`).
+    cols : ndarray of int64
+        Candidate columns, in order.
+    tol : float
+        Pivot tolerance (``selectkit.kernels.PIVOT_TOLERANCE``).
+
+    Returns
+    -------
+    L : ndarray, shape (c + 1, c + 1)
+        Lower factor; ``L[c, c]`` is the (scaled) rss of the span of the kept columns.
+    skipped : ndarray of bool, shape (c + 1,)
+        Columns whose pivot fell below the tolerance.
+    """
+    c = cols.shape[0]
+    L = np.zeros((c + 1, c + 1))
+    skipped = np.zeros(c + 1, dtype=np.bool_)
+    _factor_into(A, cols, c, L, skipped, 0, tol)
+    return L, skipped
+
+
+@njit(cache=True)
+def subset_rss(A, cols, tol):
+    """Scaled rss of the model with columns ``cols`` (intercept implied), or −1 if rank-deficient.
+
+    rss = 1 − R² on the correlation scale; multiply by the response's centred
+    sum of squares for the rss on the data's scale.
+    """
+    L, skipped = factor_columns(A, cols, tol)
+    c = cols.shape[0]
+    for j in range(c):
+        if skipped[j]:
+            return -1.0
+    return L[c, c]
+
+
+@njit(cache=True)
+def add_column(A, L, cols, ncols, j, tol):
+    """Border the factor of ``cols[:ncols]`` with column ``j`` in O(k²).
+
+    Parameters
+    ----------
+    A : ndarray
+        Scaled cross-products.
+    L : ndarray, shape (≥ ncols + 2, ≥ ncols + 2)
+        Factor of ``cols[:ncols]`` with the response in row ``ncols``; on
+        success it becomes the factor of ``cols[:ncols] + [j]`` with the
+        response in row ``ncols + 1``.
+    cols : ndarray of int64
+        Receives ``j`` at position ``ncols``.
+    ncols : int
+    j : int
+    tol : float
+
+    Returns
+    -------
+    float
+        The new scaled rss, or −1 (and ``L``, ``cols`` untouched) when ``j``
+        is a numerical combination of the columns already in.
+    """
+    k = ncols
+    new = np.empty(k)
+    for l in range(k):
+        s = A[cols[l], j]
+        for i in range(l):
+            s -= L[l, i] * new[i]
+        new[l] = s / L[l, l]
+    d = A[j, j]
+    for l in range(k):
+        d -= new[l] * new[l]
+    if A[j, j] <= 0.0 or d <= tol * A[j, j]:
+        return -1.0
+    rho = np.sqrt(d)
+    yi = A.shape[0] - 1
+    zj = A[j, yi]
+    for l in range(k):
+        zj -= new[l] * L[k, l]
+    zj /= rho
+    rss = L[k, k] - zj * zj
+    if rss < 0.0:
+        rss = 0.0
+    # response row moves from k to k + 1
+    for l in range(k):
+        L[k + 1, l] = L[k, l]
+    L[k + 1, k] = zj
+    L[k + 1, k + 1] = rss
+    for l in range(k):
+        L[k, l] = new[l]
+    L[k, k] = rho
+    cols[k] = j
+    return rss
+
+
+@njit(cache=True)
+def drop_column(L, cols, ncols, position):
+    """Remove column ``position`` from the factor of ``cols[:ncols]`` in O(k²).
+
+    The rows below ``position`` are shifted up and the resulting
+    upper-Hessenberg part is restored to triangular form by Givens rotations
+    (Golub & Van Loan §6.5.2), applied to the response row as well; the rss
+    grows by the square of the response coordinate rotated out.
+
+    Returns
+    -------
+    float
+        The new scaled rss; ``L`` and ``cols`` hold the factor of the ``ncols − 1``
+        remaining columns with the response in row ``ncols − 1``.
+    """
+    k = ncols
+    d = L[k, k]
+    # delete row `position`: rows below move up one (each keeps one entry past its diagonal)
+    for r in range(position, k):
+        for l in range(r + 2):
+            L[r, l] = L[r + 1, l]
+    for r in range(position, k - 1):
+        cols[r] = cols[r + 1]
+    for l in range(k + 1):
+        L[k, l] = 0.0
+    # rotate columns (r, r + 1) to clear the entry just past each model row's diagonal
+    for r in range(position, k - 1):
+        a = L[r, r]
+        b = L[r, r + 1]
+        rho = np.hypot(a, b)
+        cth = a / rho
+        sth = b / rho
+        for rr in range(r, k):
+            u = L[rr, r]
+            v = L[rr, r + 1]
+            L[rr, r] = cth * u + sth * v
+            L[rr, r + 1] = -sth * u + cth * v
+        L[r, r + 1] = 0.0
+    out = L[k - 1, k - 1]
+    rss = d + out * out
+    L[k - 1, k - 1] = rss
+    L[k - 1, k] = 0.0
+    return rss
+
+
+@njit(cache=True)
+def _mask_less(a, b):
+    """(sorted tuple of rank bits of a) < (that of b), lexicographically."""
+    one = np.uint64(1)
+    while True:
+        if a == b:
+            return False
+        if a == np.uint64(0):
+            return True
+        if b == np.uint64(0):
+            return False
+        la = a & (~a + one)
+        lb = b & (~b + one)
+        if la != lb:
+            return la < lb
+        a = a ^ la
+        b = b ^ lb
+
+
+@njit(cache=True)
+def _insert(best_rss, best_mask, best_count, thr, init_thr, size, rss, mask, n_best):
+    cnt = best_count[size]
+    if cnt == n_best:
+        wr = best_rss[size, cnt - 1]
+        if rss > wr or (rss == wr and not _mask_less(mask, best_mask[size, cnt - 1])):
+            return
+        pos = cnt - 1
+    else:
+        pos = cnt
+        best_count[size] = cnt + 1
+    while pos > 0 and (best_rss[size, pos - 1] > rss or
+                       (best_rss[size, pos - 1] == rss and _mask_less(mask, best_mask[size, pos - 1]))):
+        best_rss[size, pos] = best_rss[size, pos - 1]
+        best_mask[size, pos] = best_mask[size, pos - 1]
+        pos -= 1
+    best_rss[size, pos] = rss
+    best_mask[size, pos] = mask
+    if best_count[size] == n_best:
+        t = best_rss[size, n_best - 1]
+        thr[size] = t if t < init_thr[size] else init_thr[size]
+
+
+@njit(cache=True)
+def _prunable(bound, thr, lo, hi):
+    top = -1.0
+    for s in range(lo, hi + 1):
+        if thr[s] > top:
+            top = thr[s]
+    return bound * (1.0 - PRUNE_SLACK) > top
+
+
+@njit(cache=True)
+def _family_count(terms, start, stop, t_fam, scratch):
+    """Π over families of (1 + number of terms of the family in terms[start:stop]) − 1."""
+    for i in range(start, stop):
+        scratch[t_fam[terms[i]]] = 0
+    for i in range(start, stop):
+        scratch[t_fam[terms[i]]] += 1
+    total = 1.0
+    for i in range(start, stop):
+        f = t_fam[terms[i]]
+        if scratch[f] > 0:
+            total *= 1.0 + scratch[f]
+            scratch[f] = 0
+    return total - 1.0
+
+
+@njit(cache=True)
+def _small_quadratic(G, b, w):
+    """bᵀ G⁻¹ b for a small SPD matrix G (w × w) by Cholesky; inf when not SPD."""
+    Lw = np.zeros((w, w))
+    for j in range(w):
+        for l in range(j):
+            s = G[j, l]
+            for i in range(l):
+                s -= Lw[j, i] * Lw[l, i]
+            Lw[j, l] = s / Lw[l, l]
+        d = G[j, j]
+        for l in range(j):
+            d -= Lw[j, l] * Lw[j, l]
+        if d <= 0.0:
+            return np.inf
+        Lw[j, j] = np.sqrt(d)
+    v = np.empty(w)
+    total = 0.0
+    for j in range(w):
+        s = b[j]
+        for l in range(j):
+            s -= Lw[j, l] * v[l]
+        v[j] = s / Lw[j, j]
+        total += v[j] * v[j]
+    return total
+
+
+@njit(cache=True)
+def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, tol,
+                     init_thr, thr, best_rss, best_mask, best_count,
+                     st_terms, st_len, st_k, st_bound, st_root, top_arr,
+                     counts, pruned_count, node_budget):
+    """Run up to ``node_budget`` nodes of the depth-first best-subset search.
+
+    The tree is the dropping-columns tree of Gatu & Kontoghiorghes (2006) over
+    terms: a node is an ordered term list S whose first ``k`` terms are fixed;
+    its subtree holds every subset of S that contains the fixed terms.  One
+    Cholesky factor of S gives the rss of all its leading subsets S[:i]
+    (recorded), and each child drops one free term S[i] and fixes S[:i].
+    Because adding columns never increases rss, rss(S) bounds every model in
+    the subtree; a child is cut when its bound exceeds the current n-th best
+    rss at every size (in columns) its subtree can reach.  A child's bound is
+    rss(S) + β_Bᵀ (G⁻¹)_BB⁻¹ β_B, the exact increase from dropping term B; its
+    free terms are ordered by decreasing increase (most important first) so
+    that the large subtrees get the high bounds.
+
+    State lives in the arrays passed in, so a search can stop after
+    ``node_budget`` nodes (a time budget) and be resumed by calling again.
+
+    Returns
+    -------
+    bool
+        True when the stack is empty (the search is complete).
+    """
+    n_terms = t_width.shape[0]
+    yi = A.shape[0] - 1
+    total_cols = 0
+    for t in range(n_terms):
+        total_cols += t_width[t]
+    L = np.zeros((total_cols + 1, total_cols + 1))
+    skipped = np.zeros(total_cols + 1, dtype=np.bool_)
+    cols = np.zeros(total_cols, dtype=np.int64)
+    col_start = np.zeros(n_terms + 1, dtype=np.int64)  # first column of each position
+    suffix = np.zeros(total_cols + 1)
+    inc = np.zeros(n_terms)
+    order = np.zeros(n_terms, dtype=np.int64)
+    scratch = np.zeros(n_terms + 64, dtype=np.int64)
+    W = np.zeros((total_cols, total_cols))
+    G = np.zeros((64, 64))
+    bvec = np.zeros(64)
+    terms = np.zeros(n_terms, dtype=np.int64)
+    child = np.zeros(n_terms, dtype=np.int64)
+    nodes = 0
+    while top_arr[0] >= 0 and nodes < node_budget:
+        nodes += 1
+        top = top_arr[0]
+        n_s = st_len[top]
+        k = st_k[top]
+        bound = st_bound[top]
+        is_root = st_root[top]
+        for i in range(n_s):
+            terms[i] = st_terms[top, i]
+        top_arr[0] = top - 1
+        # column layout
+        c = 0
+        for i in range(n_s):
+            col_start[i] = c
+            t = terms[i]
+            for q in range(t_width[t]):
+                cols[c] = t_cols[t, q]
+                c += 1
+        col_start[n_s] = c
+        fw = col_start[k]
+        lo = fw if is_root else fw + 1
+        hi = c if c < max_size else max_size
+        if lo > hi:
+            continue
+        if not is_root and _prunable(bound, thr, lo, hi):
+            pruned_count[0] += _family_count(terms, k, n_s, t_fam, scratch)
+            continue
+        _factor_into(A, cols, c, L, skipped, 0, tol)
+        fixed_singular = False
+        any_skipped = False
+        for j in range(c):
+            if skipped[j]:
+                any_skipped = True
+                if j < fw:
+                    fixed_singular = True
+        if fixed_singular:
+            pruned_count[1] += _family_count(terms, k, n_s, t_fam, scratch) + (1.0 if is_root else 0.0)
+            continue
+        rss_all = L[c, c]
+        if not is_root and _prunable(rss_all, thr, lo, hi):
+            pruned_count[0] += _family_count(terms, k, n_s, t_fam, scratch)
+            continue
+        # rss of every leading subset
+        suffix[c] = rss_all
+        for l in range(c - 1, -1, -1):
+            z = L[c, l]
+            suffix[l] = suffix[l + 1] + z * z
+        fam_acc = np.uint64(0)
+        req_acc = np.uint64(0)
+        mask = np.uint64(0)
+        singular = False
+        start = k if is_root else k + 1
+        for i in range(n_s + 1):
+            width = col_start[i]
+            if width > max_size:
+                break
+            if i >= start:
+                if singular:
+                    counts[1] += 1
+                elif (req_acc & ~fam_acc) == np.uint64(0):
+                    counts[0] += 1
+                    r = suffix[width]
+                    if r <= thr[width] * (1.0 + PRUNE_SLACK) or best_count[width] < n_best:
+                        _insert(best_rss, best_mask, best_count, thr, init_thr, width, r, mask, n_best)
+            if i == n_s:
+                break
+            t = terms[i]
+            fb = np.uint64(1) << np.uint64(t_fam[t])
+            if fam_acc & fb:
+                break
+            fam_acc |= fb
+            req_acc |= t_req[t]
+            mask |= t_bit[t]
+            for j in range(col_start[i], col_start[i + 1]):
+                if skipped[j]:
+                    singular = True
+        # exact increase of rss when dropping each free term
+        for i in range(k, n_s):
+            inc[i] = 0.0
+        if not any_skipped and n_s - k > 1:
+            q = c - fw
+            # W = inverse of the trailing lower block L[fw:c, fw:c]
+            for jj in range(q):
+                for ii in range(q):
+                    W[ii, jj] = 0.0
+            for jj in range(q):
+                W[jj, jj] = 1.0 / L[fw + jj, fw + jj]
+                for ii in range(jj + 1, q):
+                    s = 0.0
+                    for l in range(jj, ii):
+                        s += L[fw + ii, fw + l] * W[l, jj]
+                    W[ii, jj] = -s / L[fw + ii, fw + ii]
+            for i in range(k, n_s - 1):
+                a0 = col_start[i] - fw
+                w = col_start[i + 1] - col_start[i]
+                # beta_B = W[:, B]^T z_f ; (G^-1)_BB = W[:, B]^T W[:, B]
+                for u in range(w):
+                    s = 0.0
+                    for l in range(a0 + u, q):
+                        s += W[l, a0 + u] * L[c, fw + l]
+                    bvec[u] = s
+                    for v in range(u + 1):
+                        s2 = 0.0
+                        for l in range(a0 + (u if u > v else v), q):
+                            s2 += W[l, a0 + u] * W[l, a0 + v]
+                        G[u, v] = s2
+                        G[v, u] = s2
+                if w == 1:
+                    inc[i] = bvec[0] * bvec[0] / G[0, 0]
+                else:
+                    inc[i] = _small_quadratic(G, bvec, w)
+        # free positions sorted by decreasing increase (stable)
+        n_free = n_s - k
+        for i in range(n_free):
+            order[i] = k + i
+        for i in range(1, n_free):
+            v = order[i]
+            j = i - 1
+            while j >= 0 and inc[order[j]] < inc[v]:
+                order[j + 1] = order[j]
+                j -= 1
+            order[j + 1] = v
+        # children: drop position i, fix terms[:i]
+        new_fams = np.uint64(0)
+        for i in range(k, n_s - 1):
+            if i > k:
+                new_fams |= np.uint64(1) << np.uint64(t_fam[terms[i - 1]])
+            for p in range(i):
+                child[p] = terms[p]
+            m_child = i
+            for oi in range(n_free):
+                p = order[oi]
+                if p <= i:
+                    continue
+                t = terms[p]
+                if new_fams & (np.uint64(1) << np.uint64(t_fam[t])):
+                    continue
+                child[m_child] = t
+                m_child += 1
+            if m_child == i:
+                continue
+            cw_fixed = col_start[i]
+            cw_all = cw_fixed
+            for p in range(i, m_child):
+                cw_all += t_width[child[p]]
+            clo = cw_fixed + 1
+            chi = cw_all if cw_all < max_size else max_size
+            if clo > chi:
+                continue
+            cb = rss_all + inc[i]
+            if _prunable(cb, thr, clo, chi):
+                pruned_count[0] += _family_count(child, i, m_child, t_fam, scratch)
+                continue
+            top = top_arr[0] + 1
+            top_arr[0] = top
+            for p in range(m_child):
+                st_terms[top, p] = child[p]
+            st_len[top] = m_child
+            st_k[top] = i
+            st_bound[top] = cb
+            st_root[top] = False
+    counts[2] += nodes
+    return top_arr[0] < 0
