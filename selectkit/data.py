@@ -794,6 +794,80 @@ def _set_aside_collinear(n, order, kinds, numeric_values, categoricals, forced, 
     return dropped
 
 
+def _rows_to_keep(missing_masks, n_read: int, missing: str, notes: list[Note]):
+    """Apply the missing-value policy to ``[(column, mask of missing rows)]``; return (keep, dropped positions)."""
+    counts = [(name, int(mask.sum())) for name, mask in missing_masks if mask.any()]
+    keep = np.ones(n_read, dtype=bool)
+    for _, mask in missing_masks:
+        keep &= ~mask
+    dropped_rows = np.flatnonzero(~keep)
+    if not counts:
+        return keep, dropped_rows
+    listing = ", ".join(f"'{name}' ({_plural(c, 'row')})" for name, c in counts)
+    if missing == "refuse":
+        raise InputError(f"missing values in {listing}; {_plural(dropped_rows.size, 'row')} of {n_read} have at "
+                         f"least one — pass missing='drop' to drop those rows, or fill the values in first",
+                         column=counts[0][0], counts=dict(counts), n_rows=int(dropped_rows.size))
+    if not keep.any():
+        raise InputError(f"every one of the {n_read} rows has a missing value (in {listing}); no rows are left "
+                         f"— exclude the emptiest columns or fill the values in", column=counts[0][0],
+                         counts=dict(counts))
+    shown = ", ".join(str(i + 1) for i in dropped_rows[:10]) + (", ..." if dropped_rows.size > 10 else "")
+    notes.append(Note(None, "dropped",
+                      f"dropped {_plural(dropped_rows.size, 'row')} of {n_read} with a missing value in a column "
+                      f"in use ({listing}); data rows {shown} (counting from 1)"))
+    return keep, dropped_rows
+
+
+def _assign_roles(columns, *, response, weights, given, forced, exclude, keep_identifiers, delimiter):
+    """Check that every named column exists and has one role; return the predictor pool in order."""
+    _require_column(response, columns, "response")
+    if weights is not None:
+        _require_column(weights, columns, "weights")
+    for role, names in (("predictor", given or ()), ("forced", forced), ("excluded", exclude),
+                        ("keep_identifiers", keep_identifiers)):
+        for name in names:
+            _require_column(name, columns, role)
+
+    for role, names in (("predictors", given or ()), ("forced", forced), ("exclude", exclude)):
+        if response in names:
+            raise InputError(f"'{response}' is the response and cannot also be listed in {role}=; "
+                             f"remove it from {role}", column=response)
+    if weights is not None:
+        if weights == response:
+            raise InputError(f"'{weights}' cannot be both the response and the weights", column=weights)
+        for role, names in (("predictors", given or ()), ("forced", forced)):
+            if weights in names:
+                raise InputError(f"'{weights}' is the weights column and cannot also be listed in {role}=; "
+                                 f"weights are not a predictor", column=weights)
+    for name in forced:
+        if name in exclude:
+            raise InputError(f"column '{name}' is both forced and excluded; remove it from one of the two",
+                             column=name)
+    for name in given or ():
+        if name in exclude:
+            raise InputError(f"column '{name}' is both listed in predictors= and excluded; remove it from one "
+                             f"of the two", column=name)
+
+    if given is None:
+        pool = [c for c in columns if c not in (response, weights) and c not in exclude]
+    else:
+        pool = list(given)
+    for name in forced:
+        if name not in pool:
+            raise InputError(f"forced column '{name}' is not among the predictors; add it to predictors=",
+                             column=name)
+    for name in keep_identifiers:
+        if name not in pool:
+            raise InputError(f"keep_identifiers names '{name}', which is not among the predictors; add it to "
+                             f"predictors= or remove it from keep_identifiers", column=name)
+    if not pool:
+        raise InputError(f"the table has no column besides the response '{response}'"
+                         f"{' and the weights' if weights else ''} to use as a predictor; check that the file was "
+                         f"split into columns (delimiter read: {delimiter!r}) and the roles given")
+    return pool
+
+
 def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), weights: str | None = None,
             missing: str = "refuse", keep_identifiers=(), encoding: str | None = None) -> Dataset:
     """Give each column a role, check the values, and return a :class:`Dataset`.
@@ -878,10 +952,6 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
     >>> data.numeric, data.categorical, data.n
     (('light_mol_m2_day', 'co2_ppm'), ('cultivar',), 40)
     """
-    table, read_report = read_table(source, encoding=encoding)
-    notes: list[Note] = list(read_report.notes)
-    columns = list(table.columns)
-
     if not isinstance(response, str):
         raise OptionError(f"response= takes the name of a column (text), not {response!r}")
     if weights is not None and not isinstance(weights, str):
@@ -894,51 +964,10 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
     exclude = _name_list(exclude, "exclude")
     keep_identifiers = _name_list(keep_identifiers, "keep_identifiers")
 
-    _require_column(response, columns, "response")
-    if weights is not None:
-        _require_column(weights, columns, "weights")
-    for role, names in (("predictor", given or ()), ("forced", forced), ("excluded", exclude),
-                        ("keep_identifiers", keep_identifiers)):
-        for name in names:
-            _require_column(name, columns, role)
-
-    for role, names in (("predictors", given or ()), ("forced", forced), ("exclude", exclude)):
-        if response in names:
-            raise InputError(f"'{response}' is the response and cannot also be listed in {role}=; "
-                             f"remove it from {role}", column=response)
-    if weights is not None:
-        if weights == response:
-            raise InputError(f"'{weights}' cannot be both the response and the weights", column=weights)
-        for role, names in (("predictors", given or ()), ("forced", forced)):
-            if weights in names:
-                raise InputError(f"'{weights}' is the weights column and cannot also be listed in {role}=; "
-                                 f"weights are not a predictor", column=weights)
-    for name in forced:
-        if name in exclude:
-            raise InputError(f"column '{name}' is both forced and excluded; remove it from one of the two",
-                             column=name)
-    for name in given or ():
-        if name in exclude:
-            raise InputError(f"column '{name}' is both listed in predictors= and excluded; remove it from one "
-                             f"of the two", column=name)
-
-    if given is None:
-        pool = [c for c in columns if c not in (response, weights) and c not in exclude]
-    else:
-        pool = list(given)
-    for name in forced:
-        if name not in pool:
-            raise InputError(f"forced column '{name}' is not among the predictors; add it to predictors=",
-                             column=name)
-    for name in keep_identifiers:
-        if name not in pool:
-            raise InputError(f"keep_identifiers names '{name}', which is not among the predictors; add it to "
-                             f"predictors= or remove it from keep_identifiers", column=name)
-
-    if not pool:
-        raise InputError(f"the table has no column besides the response '{response}'"
-                         f"{' and the weights' if weights else ''} to use as a predictor; check that the file was "
-                         f"split into columns (delimiter read: {read_report.delimiter!r}) and the roles given")
+    table, read_report = read_table(source, encoding=encoding)
+    notes: list[Note] = list(read_report.notes)
+    pool = _assign_roles(list(table.columns), response=response, weights=weights, given=given, forced=forced,
+                         exclude=exclude, keep_identifiers=keep_identifiers, delimiter=read_report.delimiter)
 
     n_read = len(table)
     y_all = _numeric_role(table[response], response, "response")
@@ -1004,25 +1033,7 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
     for name in pool:
         v = values[name]
         missing_masks.append((name, np.isnan(v) if kinds[name] == "numeric" else v.isna().to_numpy()))
-    counts = [(name, int(mask.sum())) for name, mask in missing_masks if mask.any()]
-    keep = np.ones(n_read, dtype=bool)
-    for _, mask in missing_masks:
-        keep &= ~mask
-    dropped_rows = np.flatnonzero(~keep)
-    if counts:
-        listing = ", ".join(f"'{name}' ({_plural(c, 'row')})" for name, c in counts)
-        if missing == "refuse":
-            raise InputError(f"missing values in {listing}; {_plural(dropped_rows.size, 'row')} of {n_read} have at "
-                             f"least one — pass missing='drop' to drop those rows, or fill the values in first",
-                             column=counts[0][0], counts=dict(counts), n_rows=int(dropped_rows.size))
-        if not keep.any():
-            raise InputError(f"every one of the {n_read} rows has a missing value (in {listing}); no rows are left "
-                             f"— exclude the emptiest columns or fill the values in", column=counts[0][0],
-                             counts=dict(counts))
-        shown = ", ".join(str(i + 1) for i in dropped_rows[:10]) + (", ..." if dropped_rows.size > 10 else "")
-        notes.append(Note(None, "dropped",
-                          f"dropped {_plural(dropped_rows.size, 'row')} of {n_read} with a missing value in a column "
-                          f"in use ({listing}); data rows {shown}"))
+    keep, dropped_rows = _rows_to_keep(missing_masks, n_read, missing, notes)
     n = int(keep.sum())
 
     y = y_all[keep]
