@@ -593,9 +593,12 @@ def _check_column(values, name):
 
 
 def _correlation(a, b):
+    """Pearson correlation of two finite, non-constant columns (scaled first: no overflow)."""
     a = a - a.mean()
     b = b - b.mean()
-    denom = np.sqrt((a @ a) * (b @ b))
+    a = a / np.max(np.abs(a))
+    b = b / np.max(np.abs(b))
+    denom = np.sqrt(a @ a) * np.sqrt(b @ b)
     return float(a @ b / denom) if denom > 0 else 0.0
 
 

@@ -1,0 +1,465 @@
+"""Tests of the candidate generator (selectkit.candidates)."""
+
+import numpy as np
+import pandas as pd
+import pytest
+import scipy.stats
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from selectkit import transforms as tf
+from selectkit.candidates import CandidateSet, Refusal, ResponseTransform, Term, build_candidates
+from selectkit.data import Dataset
+from selectkit.errors import InputError, OptionError
+
+CULTIVARS = ["Alma", "Ruby", "Sol"]
+
+
+def greenhouse(n=120, seed=0, *, forced=(), weights=False):
+    """Invented greenhouse bays: light (positive), co2 above ambient (3 zeros), night temperature
+    anomaly (both signs), bay density (positive) and cultivar (categorical, reference 'Alma')."""
+    rng = np.random.default_rng(seed)
+    frame = pd.DataFrame({
+        "light": rng.uniform(5.0, 30.0, n),
+        "co2_above": rng.uniform(0.0, 400.0, n),
+        "night_temp": rng.normal(0.0, 2.0, n),
+        "density": rng.uniform(2.0, 4.0, n),
+        "cultivar": pd.Categorical(rng.choice(CULTIVARS, n), categories=CULTIVARS),
+    })
+    frame.loc[:2, "co2_above"] = 0.0
+    y = (5.0 + 2.0 * np.log(frame["light"].to_numpy()) + 0.1 * np.sqrt(frame["co2_above"].to_numpy())
+         + 3.0 / frame["density"].to_numpy() + rng.normal(0.0, 0.3, n))
+    return Dataset(response="yield_kg_m2", y=y, frame=frame, numeric=("light", "co2_above", "night_temp", "density"),
+                   categorical=("cultivar",), forced=tuple(forced),
+                   weights=rng.uniform(0.5, 2.0, n) if weights else None)
+
+
+def small_dataset(columns, y=None, *, categorical=(), forced=()):
+    frame = pd.DataFrame(columns)
+    numeric = tuple(c for c in frame.columns if c not in categorical)
+    n = len(frame)
+    if y is None:
+        y = np.random.default_rng(0).normal(size=n) + 10
+    return Dataset(response="y", y=np.asarray(y, float), frame=frame, numeric=numeric,
+                   categorical=tuple(categorical), forced=tuple(forced))
+
+
+def term(cands, name):
+    return cands.terms[cands.term_index(name)]
+
+
+def column(cands, name):
+    return cands.matrix[:, list(term(cands, name).columns)]
+
+
+# --------------------------------------------------------------- forms
+
+
+def test_default_forms_values_and_structure():
+    ds = greenhouse()
+    cands = build_candidates(ds)
+    assert isinstance(cands, CandidateSet)
+    assert cands.matrix.dtype == np.float64 and cands.matrix.flags.c_contiguous
+    assert np.isfinite(cands.matrix).all()
+    light = ds.frame["light"].to_numpy()
+    np.testing.assert_array_equal(column(cands, "light")[:, 0], light)
+    np.testing.assert_allclose(column(cands, "log(light)")[:, 0], np.log(light))
+    np.testing.assert_allclose(column(cands, "sqrt(light)")[:, 0], np.sqrt(light))
+    np.testing.assert_allclose(column(cands, "1/light")[:, 0], 1 / light)
+    np.testing.assert_allclose(column(cands, "light^2")[:, 0], light**2)
+    # Identity first in each family; families in column order.
+    assert cands.families == ("light", "co2_above", "night_temp", "density", "cultivar")
+    for fam in cands.families:
+        first = next(t for t in cands.terms if t.family == fam)
+        assert first.transform in ("identity", "dummies")
+    # family_index agrees with families
+    assert [cands.families[i] for i in cands.family_index] == [t.family for t in cands.terms]
+    assert cands.family_index.dtype.kind == "i"
+    # columns are contiguous and cover the matrix exactly once
+    cols = [c for t in cands.terms for c in t.columns]
+    assert cols == list(range(cands.matrix.shape[1]))
+    assert len(cands.column_names) == cands.matrix.shape[1]
+    assert cands.y is not None and np.array_equal(cands.y, ds.y)
+    assert cands.response_transform.transform == "identity" and cands.response_transform.log_jacobian == 0.0
+
+
+def test_boxcox_lambda_of_each_predictor_is_the_scipy_mle():
+    # Reference library: scipy.stats.boxcox_normmax(x, method='mle') of the predictor's own values.
+    ds = greenhouse()
+    cands = build_candidates(ds, forms=("identity", "boxcox"), near_duplicate=None)
+    bc = [t for t in cands.terms if t.transform == "boxcox"]
+    assert {t.family for t in bc} == {"light", "density"}
+    for t in bc:
+        x = ds.frame[t.family].to_numpy()
+        lam = dict(t.params)["lambda"]
+        assert lam == pytest.approx(scipy.stats.boxcox_normmax(x, method="mle"), abs=1e-6)
+        np.testing.assert_allclose(column(cands, t.name)[:, 0], scipy.stats.boxcox(x, lmbda=lam), rtol=1e-10)
+        assert t.name == f"boxcox({t.family}, {tf.format_number(lam, 2)})"
+
+
+def test_yeojohnson_stands_in_for_boxcox_with_nonpositive_values():
+    # Reference library: the λ of scipy.stats.yeojohnson(x).
+    ds = greenhouse()
+    cands = build_candidates(ds, forms=("identity", "boxcox"), near_duplicate=None)
+    for fam in ("night_temp", "co2_above"):
+        (t,) = [t for t in cands.terms if t.family == fam and t.transform != "identity"]
+        assert t.transform == "yeojohnson"
+        x = ds.frame[fam].to_numpy()
+        assert dict(t.params)["lambda"] == pytest.approx(scipy.stats.yeojohnson(x)[1], abs=1e-6)
+        assert any(fam in note and "Yeo-Johnson used in place of Box-Cox" in note for note in cands.notes)
+
+
+def test_domain_refusals_name_the_count_and_the_fix():
+    ds = greenhouse()
+    cands = build_candidates(ds)
+    report = cands.describe()
+    refused = report[report["status"] == "refused"]
+    log_co2 = refused[(refused["family"] == "co2_above") & (refused["form"] == "log")]
+    assert len(log_co2) == 1
+    reason = log_co2["reason"].iloc[0]
+    assert reason.startswith("3 of 120 values are zero; log is undefined there")
+    assert "shifts={'co2_above': 1}" in reason and "log(co2_above + 1)" in reason
+    assert "log(co2_above)" not in set(cands.names)
+    sqrt_temp = refused[(refused["family"] == "night_temp") & (refused["form"] == "sqrt")]
+    n_negative = int((ds.frame["night_temp"] < 0).sum())
+    assert sqrt_temp["reason"].iloc[0].startswith(f"{n_negative} of 120 values are negative")
+    # 1/x is defined for negatives (no zeros), so it is kept
+    assert "1/night_temp" in cands.names
+    # every refusal is a Refusal with family, form and reason
+    assert all(isinstance(r, Refusal) and r.reason for r in cands.refused)
+
+
+def test_shifts_are_honoured_and_reported():
+    ds = greenhouse()
+    cands = build_candidates(ds, shifts={"co2_above": 1, "night_temp": "auto"})
+    x = ds.frame["co2_above"].to_numpy()
+    t = term(cands, "log(co2_above + 1)")
+    assert dict(t.params)["shift"] == 1.0
+    np.testing.assert_allclose(column(cands, "log(co2_above + 1)")[:, 0], np.log(x + 1))
+    np.testing.assert_allclose(column(cands, "1/(co2_above + 1)")[:, 0], 1 / (x + 1))
+    # identity and square are never shifted
+    assert "co2_above" in cands.names and "co2_above^2" in cands.names
+    temp = ds.frame["night_temp"].to_numpy()
+    c = 1.0 - temp.min()  # auto: the smallest shift making every value at least 1
+    (log_temp,) = [t for t in cands.terms if t.family == "night_temp" and t.transform == "log"]
+    assert dict(log_temp.params)["shift"] == pytest.approx(c)
+    assert log_temp.name == f"log(night_temp + {tf.format_number(c)})"
+    assert np.min(temp + c) == pytest.approx(1.0)
+    # Box-Cox replaces Yeo-Johnson once the shift makes the values positive
+    assert any(t.family == "night_temp" and t.transform == "boxcox" for t in cands.terms)
+    assert any("night_temp" in n and "auto" in n for n in cands.notes)
+    assert any("co2_above" in n and "as asked" in n for n in cands.notes)
+    report = cands.describe()
+    assert "shift=1" in report.loc[report["term"] == "log(co2_above + 1)", "parameters"].iloc[0]
+
+
+def test_too_small_shift_is_refused_with_advice():
+    ds = small_dataset({"x": [-3.0, -1.0, 0.5, 2.0, 4.0, 1.0, 3.0, 2.5]})
+    cands = build_candidates(ds, forms=("identity", "log"), shifts={"x": 2})
+    (r,) = [r for r in cands.refused if r.form == "log"]
+    assert "after the shift 2" in r.reason and "too small" in r.reason and "shifts={'x': 4}" in r.reason
+
+
+def test_fractional_polynomials():
+    ds = greenhouse()
+    cands = build_candidates(ds, forms=("identity",), fractional_polynomials=True, near_duplicate=None)
+    light = ds.frame["light"].to_numpy()
+    names = [t.name for t in cands.terms if t.family == "light"]
+    assert names == ["light", "1/light", "log(light)", "sqrt(light)", "light^2", "light^-2", "light^-0.5",
+                     "light^3"]
+    for p in tf.FRACTIONAL_POWERS:  # Royston & Altman (1994): x^p, p = 0 read as log
+        name = tf.term_name("power", "light", {"power": p})
+        expected = np.log(light) if p == 0 else light**p
+        np.testing.assert_allclose(column(cands, name)[:, 0], expected, rtol=1e-12)
+
+
+def test_unknown_options_raise_listing_valid_ones():
+    ds = greenhouse(n=30)
+    with pytest.raises(OptionError, match="identity, log, sqrt"):
+        build_candidates(ds, forms=("identity", "cube"))
+    with pytest.raises(OptionError, match="'light'"):
+        build_candidates(ds, shifts={"cultivar": 1})
+    with pytest.raises(OptionError, match="number or 'auto'"):
+        build_candidates(ds, shifts={"light": "big"})
+    with pytest.raises(OptionError, match="not a numeric predictor"):
+        build_candidates(ds, interactions=[("light", "cultivar")])
+    with pytest.raises(OptionError, match="near_duplicate"):
+        build_candidates(ds, near_duplicate=1.5)
+    with pytest.raises(OptionError, match="'log', 'sqrt'"):
+        build_candidates(ds, response_transform="cube")
+    with pytest.raises(OptionError, match="needs a λ"):
+        build_candidates(ds, response_transform="boxcox")
+
+
+# ------------------------------------------------------- blocks, hierarchy
+
+
+def test_categorical_block_matches_pandas_dummies():
+    # Reference library: pandas.get_dummies(drop_first=True) gives the non-reference dummies.
+    ds = greenhouse()
+    cands = build_candidates(ds, forms=("identity",))
+    block = term(cands, "cultivar")
+    assert block.kind == "block" and block.transform == "dummies" and block.width == 2
+    assert block.levels == ("Ruby", "Sol") and block.reference == "Alma"
+    assert [cands.column_names[c] for c in block.columns] == ["cultivar[Ruby]", "cultivar[Sol]"]
+    expected = pd.get_dummies(ds.frame["cultivar"], drop_first=True).to_numpy(dtype=float)
+    np.testing.assert_array_equal(column(cands, "cultivar"), expected)
+    assert block.expression() == "[cultivar = Ruby] + [cultivar = Sol]"
+
+
+def test_unused_reference_level_and_single_level():
+    cat = pd.Categorical(["b", "c", "b", "c", "b", "c", "b", "c"], categories=["a", "b", "c"])
+    one = pd.Categorical(["b"] * 8, categories=["b"])
+    ds = small_dataset({"x": np.arange(1.0, 9.0), "kind": cat, "site": one}, categorical=("kind", "site"))
+    cands = build_candidates(ds, forms=("identity",))
+    block = term(cands, "kind")
+    assert block.reference == "b" and block.levels == ("c",)
+    assert any("'a'" in n and "do not occur" in n for n in cands.notes)
+    assert any("reference level 'a' does not occur" in n for n in cands.notes)
+    assert "site" not in cands.families
+    assert any(r.family == "site" and "single level" in r.reason for r in cands.refused)
+
+
+def test_interactions_all_pairs_and_hierarchy():
+    ds = greenhouse()
+    cands = build_candidates(ds, forms=("identity", "log"), interactions=True)
+    inter = [t for t in cands.terms if t.kind == "interaction"]
+    assert len(inter) == 6  # 4 numeric predictors → 6 pairs
+    t = term(cands, "co2_above*light")  # names in alphabetical order
+    assert t.family == "co2_above*light" and t.requires == ("co2_above", "light") and t.transform == "product"
+    np.testing.assert_allclose(column(cands, "co2_above*light")[:, 0],
+                               ds.frame["co2_above"].to_numpy() * ds.frame["light"].to_numpy())
+    for t in inter:
+        assert all(req in cands.families for req in t.requires)
+    assert all(not t.requires for t in cands.terms if t.kind != "interaction")
+
+
+def test_interactions_from_a_list_keep_the_given_order():
+    ds = greenhouse()
+    cands = build_candidates(ds, forms=("identity",), interactions=[("light", "density"), ("density", "light")])
+    inter = [t for t in cands.terms if t.kind == "interaction"]
+    assert [t.name for t in inter] == ["light*density"]
+    assert inter[0].requires == ("light", "density")
+
+
+def test_interaction_needs_its_main_effects():
+    ds = small_dataset({"x": [0.0, 1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0], "z": np.arange(1.0, 9.0)})
+    cands = build_candidates(ds, forms=("log",), interactions=True)
+    assert "x" not in cands.families
+    assert any(r.family == "x*z" and "needs a form of x" in r.reason for r in cands.refused)
+
+
+def test_forced_family_marks_every_form():
+    ds = greenhouse(forced=("light", "cultivar"))
+    cands = build_candidates(ds)
+    for t in cands.terms:
+        assert t.forced == (t.family in ("light", "cultivar"))
+    assert cands.describe().query("family == 'light' and status == 'kept'")["forced"].all()
+
+
+def test_forced_family_without_any_form_is_an_error():
+    ds = small_dataset({"x": [0.0, 1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0]}, forced=("x",))
+    with pytest.raises(InputError, match="'x' must be in every model"):
+        build_candidates(ds, forms=("log",))
+
+
+# ------------------------------------------------------- near-duplicates
+
+
+def test_near_duplicates_are_dropped_with_both_names():
+    x = np.linspace(1000.0, 1001.0, 30)  # over a narrow range every smooth form is nearly linear
+    ds = small_dataset({"x": x})
+    cands = build_candidates(ds, forms=("identity", "log", "sqrt", "square"))
+    assert [t.name for t in cands.terms] == ["x"]
+    for r in cands.refused:
+        assert "near-duplicate of x" in r.reason and r.name in r.reason and "kept x" in r.reason
+    # |r| is the Pearson correlation: check one against numpy
+    kept_all = build_candidates(ds, forms=("identity", "log", "sqrt", "square"), near_duplicate=None)
+    assert len(kept_all.terms) == 4
+    r = np.corrcoef(x, np.log(x))[0, 1]
+    assert r > 0.9999
+
+
+def test_binary_predictor_keeps_only_its_raw_form():
+    ds = small_dataset({"vent_open": [0.0, 1.0] * 6})
+    cands = build_candidates(ds)
+    assert cands.names == ("vent_open",)
+    forms = {r.form for r in cands.refused}
+    assert {"log", "reciprocal", "sqrt", "square"} <= forms  # undefined at 0, or the same column as x
+
+
+def test_constant_or_overflowing_forms_are_refused():
+    ds = small_dataset({"x": [-1.0, 1.0] * 5, "big": np.geomspace(1e100, 1e160, 10)})
+    cands = build_candidates(ds, forms=("identity", "square"))
+    assert any(r.name == "x^2" and "constant" in r.reason for r in cands.refused)
+    assert any(r.name == "big^2" and "not finite" in r.reason for r in cands.refused)
+    assert np.isfinite(cands.matrix).all()
+
+
+def test_too_few_rows_for_the_widest_model():
+    rng = np.random.default_rng(0)
+    ds = small_dataset({f"x{j}": rng.uniform(1, 2, 6) for j in range(5)})
+    with pytest.raises(InputError, match="6 rows"):
+        build_candidates(ds, forms=("identity",))
+    # several forms of one family do not count against the rows: one form per model
+    ds = small_dataset({f"x{j}": rng.uniform(1, 2, 8) for j in range(3)})
+    cands = build_candidates(ds, forms=("identity", "log", "sqrt"), near_duplicate=None)
+    assert cands.matrix.shape[1] > 8 - 2
+
+
+# ------------------------------------------------------------- response
+
+
+def test_response_transforms_and_log_jacobian():
+    ds = greenhouse()
+    y = ds.y
+    log_c = build_candidates(ds, forms=("identity",), response_transform="log")
+    np.testing.assert_allclose(log_c.y, np.log(y))
+    assert log_c.response_transform == ResponseTransform("log(yield_kg_m2)", "log", (), -np.log(y).sum())
+    bc = build_candidates(ds, forms=("identity",), response_transform=("boxcox", 0.5))
+    np.testing.assert_allclose(bc.y, scipy.stats.boxcox(y, lmbda=0.5))  # reference library: scipy
+    assert bc.response_transform.name == "boxcox(yield_kg_m2, 0.5)"
+    assert bc.response_transform.log_jacobian == pytest.approx(-0.5 * np.log(y).sum())
+    sq = build_candidates(ds, forms=("identity",), response_transform="sqrt")
+    np.testing.assert_allclose(sq.y, np.sqrt(y))
+    # with_response round trip from the original scale
+    back = bc.with_response(None)
+    np.testing.assert_array_equal(back.y, y)
+    assert back.response_transform.log_jacobian == 0.0
+    np.testing.assert_allclose(back.with_response("log").y, log_c.y)
+    assert back.matrix is bc.matrix
+
+
+def test_nonpositive_response_is_refused_for_log():
+    ds = greenhouse(n=40)
+    y = ds.y.copy()
+    y[:2] = [0.0, -1.0]
+    bad = Dataset(response="yield_kg_m2", y=y, frame=ds.frame, numeric=ds.numeric, categorical=ds.categorical)
+    with pytest.raises(InputError, match="'yield_kg_m2' has 2 of 40 values ≤ 0"):
+        build_candidates(bad, forms=("identity",), response_transform="log")
+    cands = build_candidates(bad, forms=("identity",))
+    with pytest.raises(InputError, match="≤ 0"):
+        cands.with_response(("boxcox", 0.5))
+
+
+def test_box_tidwell_form_uses_the_search_response_and_weights():
+    rng = np.random.default_rng(4)
+    x = rng.uniform(1.0, 10.0, 80)
+    y = 2.0 + 3.0 * np.sqrt(x) + rng.normal(0.0, 0.01, 80)
+    ds = small_dataset({"x": x}, y=y)
+    cands = build_candidates(ds, forms=("identity", "boxtidwell"))
+    (t,) = [t for t in cands.terms if t.transform == "boxtidwell"]
+    assert dict(t.params)["power"] == pytest.approx(tf.box_tidwell(x, y).power, abs=1e-12)
+    assert dict(t.params)["power"] == pytest.approx(0.5, abs=0.02)
+    assert any("Box-Tidwell power" in n for n in cands.notes)
+    w = rng.uniform(0.5, 2, 80)
+    dsw = Dataset(response="y", y=y, frame=ds.frame, numeric=("x",), categorical=(), weights=w)
+    (tw,) = [t for t in build_candidates(dsw, forms=("boxtidwell",)).terms]
+    assert dict(tw.params)["power"] == pytest.approx(tf.box_tidwell(x, y, weights=w).power, abs=1e-12)
+
+
+# ------------------------------------------------------------- new data
+
+
+def test_transform_of_new_rows_and_errors():
+    ds = greenhouse()
+    cands = build_candidates(ds, interactions=[("light", "density")], shifts={"co2_above": "auto"})
+    np.testing.assert_array_equal(cands.transform(ds.frame), cands.matrix)
+    part = ds.frame.iloc[10:20].reset_index(drop=True)
+    np.testing.assert_array_equal(cands.transform(part), cands.matrix[10:20])
+    # plain strings instead of a Categorical work the same
+    as_text = part.assign(cultivar=part["cultivar"].astype(str))
+    np.testing.assert_array_equal(cands.transform(as_text), cands.matrix[10:20])
+    unseen = part.assign(cultivar=["Zest"] + list(part["cultivar"].astype(str)[1:]))
+    with pytest.raises(InputError, match="'cultivar'.*'Zest'"):
+        cands.transform(unseen)
+    with pytest.raises(InputError, match="lack 1 column.*'density'"):
+        cands.transform(part.drop(columns="density"))
+    bad = part.copy()
+    bad.loc[0, "light"] = 0.0
+    with pytest.raises(InputError, match="'light'.*1 of 10 values is zero"):
+        cands.transform(bad)
+    bad = part.copy()
+    bad.loc[0, "light"] = np.nan
+    with pytest.raises(InputError, match="'light'.*missing"):
+        cands.transform(bad)
+
+
+def test_describe_and_lookup():
+    ds = greenhouse()
+    cands = build_candidates(ds, interactions=[("light", "density")])
+    report = cands.describe()
+    assert list(report.columns) == ["term", "family", "form", "parameters", "columns", "requires", "forced",
+                                    "status", "reason"]
+    assert len(report) == len(cands.terms) + len(cands.refused)
+    assert (report["status"] == "kept").sum() == len(cands.terms)
+    assert report.loc[report["term"] == "cultivar", "columns"].iloc[0] == 2
+    assert report.loc[report["term"] == "light*density", "requires"].iloc[0] == "light, density"
+    assert cands.term_index("log(light)") == cands.names.index("log(light)")
+    with pytest.raises(OptionError, match="no candidate term is named 'log\\(lite\\)'"):
+        cands.term_index("log(lite)")
+    assert isinstance(cands.terms[0], Term)
+
+
+# ------------------------------------------------------------- properties
+
+_values = st.one_of(
+    st.floats(min_value=-1e3, max_value=1e3, allow_nan=False, allow_infinity=False),
+    st.sampled_from([0.0, 1.0, 1e-8, -1e-8, 1e5]),
+)
+
+
+@st.composite
+def datasets(draw):
+    n = draw(st.integers(min_value=12, max_value=30))
+    p = draw(st.integers(min_value=1, max_value=3))
+    columns = {f"v{j}": draw(st.lists(_values, min_size=n, max_size=n)) for j in range(p)}
+    frame = pd.DataFrame(columns, dtype=float)
+    categorical = ()
+    if draw(st.booleans()):
+        frame["kind"] = pd.Categorical(draw(st.lists(st.sampled_from(["a", "b", "c"]), min_size=n, max_size=n)),
+                                       categories=["a", "b", "c"])
+        categorical = ("kind",)
+    y = np.array(draw(st.lists(st.floats(min_value=-50, max_value=50, allow_nan=False), min_size=n, max_size=n)))
+    numeric = tuple(f"v{j}" for j in range(p))
+    shifts = {"v0": "auto"} if draw(st.booleans()) else None
+    return Dataset(response="y", y=y, frame=frame, numeric=numeric, categorical=categorical), shifts
+
+
+_settings = settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+
+
+@_settings
+@given(datasets(), st.booleans())
+def test_property_finite_and_reproducible(case, fp):
+    ds, shifts = case
+    cands = build_candidates(ds, shifts=shifts, fractional_polynomials=fp, interactions=True)
+    assert cands.matrix.dtype == np.float64
+    assert np.isfinite(cands.matrix).all()
+    assert cands.matrix.shape == (ds.n, len(cands.column_names))
+    np.testing.assert_array_equal(cands.transform(ds.frame), cands.matrix)
+    # at most... every family's terms are contiguous and every term has a unique name
+    assert len(set(cands.names)) == len(cands.names)
+    idx = cands.family_index
+    assert np.all(np.diff(idx) >= 0)
+
+
+@_settings
+@given(datasets(), st.randoms(use_true_random=False))
+def test_property_invariant_to_column_order(case, random):
+    ds, shifts = case
+    order = list(ds.frame.columns)
+    random.shuffle(order)
+    shuffled = Dataset(response="y", y=ds.y, frame=ds.frame[order], numeric=tuple(c for c in order if c in ds.numeric),
+                       categorical=ds.categorical)
+    a = build_candidates(ds, shifts=shifts, interactions=True)
+    b = build_candidates(shuffled, shifts=shifts, interactions=True)
+
+    def as_map(c):
+        return {t.name: c.matrix[:, list(t.columns)] for t in c.terms}
+
+    ma, mb = as_map(a), as_map(b)
+    assert set(ma) == set(mb)
+    for name in ma:
+        np.testing.assert_array_equal(ma[name], mb[name])
+    assert {(r.family, r.name, r.reason) for r in a.refused} == {(r.family, r.name, r.reason) for r in b.refused}
