@@ -250,7 +250,23 @@ def _check_unique_names(names, where: str) -> None:
 # --------------------------------------------------------------------------- reading
 
 
-def read_table(source, *, encoding: str | None = None) -> tuple[pd.DataFrame, IntakeReport]:
+def _refuse_unknown(unknown: dict, valid: tuple[str, ...], function: str) -> None:
+    if not unknown:
+        return
+    parts = []
+    for name in unknown:
+        close = difflib.get_close_matches(name, valid, n=1)
+        parts.append(f"'{name}'" + (f" (did you mean '{close[0]}'?)" if close else ""))
+    raise OptionError(f"{function}() has no option {', '.join(parts)}; its options are {_quoted_list(valid, 20)}",
+                      unknown=tuple(unknown))
+
+
+_READ_OPTIONS = ("encoding",)
+_PREPARE_OPTIONS = ("response", "predictors", "forced", "exclude", "weights", "missing", "keep_identifiers",
+                    "encoding")
+
+
+def read_table(source, *, encoding: str | None = None, **unknown) -> tuple[pd.DataFrame, IntakeReport]:
     """Read a CSV file, a Parquet file or a DataFrame into a DataFrame.
 
     CSV files: the delimiter is chosen among comma, semicolon, tab and vertical
@@ -298,6 +314,7 @@ def read_table(source, *, encoding: str | None = None) -> tuple[pd.DataFrame, In
     >>> frame.shape, report.source, report.n_rows_read
     ((2, 2), None, 2)
     """
+    _refuse_unknown(unknown, _READ_OPTIONS, "read_table")
     if isinstance(source, pd.DataFrame):
         if encoding is not None:
             raise OptionError("encoding= applies to CSV files only; the source here is a DataFrame — leave encoding out")
@@ -463,13 +480,26 @@ def _read_csv(path: Path, encoding: str | None, compression: str | None):
         chosen = encoding
     else:
         chosen = _encoding_from_bom(head) or "utf-8"
-    sample = head.decode(chosen, errors="replace").lstrip("\ufeff")
+    raw = head
+    if truncated and not chosen.lower().replace("_", "-").startswith("utf-16") and b"\n" in head:
+        raw = head[: head.rindex(b"\n") + 1]  # do not cut a character in two
+    try:
+        sample = raw.decode(chosen)
+    except UnicodeDecodeError:
+        sample = raw.decode("latin-1" if encoding is None else chosen, errors="replace")
+    sample = sample.lstrip("\ufeff")
     if truncated and "\n" in sample:
         sample = sample[: sample.rindex("\n")]
     delimiter = _sniff_delimiter(sample)
     rows = _records(sample, delimiter)
     header = [cell.strip() for cell in rows[0]] if rows else []
-    _check_unique_names(header, f"the header of '{path.name}'")
+    _check_unique_names([name for name in header if name], f"the header of '{path.name}'")
+    unnamed = [i + 1 for i, name in enumerate(header) if not name]
+    if unnamed:
+        notes.append(Note(None, "warning",
+                          f"{_plural(len(unnamed), 'column')} of '{path.name}' (number "
+                          f"{', '.join(map(str, unnamed[:10]))}) have no name in the header; they were named "
+                          f"'Unnamed: <position>' — name them, or exclude them if they are a saved row index"))
     decimal, thousands, decimal_note = _sniff_decimal(rows[1:], delimiter)
     if decimal_note is not None:
         notes.append(decimal_note)
@@ -869,7 +899,7 @@ def _assign_roles(columns, *, response, weights, given, forced, exclude, keep_id
 
 
 def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), weights: str | None = None,
-            missing: str = "refuse", keep_identifiers=(), encoding: str | None = None) -> Dataset:
+            missing: str = "refuse", keep_identifiers=(), encoding: str | None = None, **unknown) -> Dataset:
     """Give each column a role, check the values, and return a :class:`Dataset`.
 
     Steps, in order (each decision is a :class:`Note` in ``Dataset.report``):
@@ -952,6 +982,7 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
     >>> data.numeric, data.categorical, data.n
     (('light_mol_m2_day', 'co2_ppm'), ('cultivar',), 40)
     """
+    _refuse_unknown(unknown, _PREPARE_OPTIONS, "prepare")
     if not isinstance(response, str):
         raise OptionError(f"response= takes the name of a column (text), not {response!r}")
     if weights is not None and not isinstance(weights, str):

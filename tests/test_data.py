@@ -311,6 +311,21 @@ def test_contradictory_or_unknown_roles(options, pattern):
     assert isinstance(info.value, ValueError)
 
 
+def test_unknown_option_names():
+    with pytest.raises(OptionError, match="no option 'exclud' \\(did you mean 'exclude'\\?\\).*'keep_identifiers'"):
+        prepare(greenhouse(), response="yield_kg_m2", exclud=["co2_ppm"])
+    with pytest.raises(OptionError, match="no option 'sep'.*'encoding'"):
+        read_table(greenhouse(), sep=";")
+
+
+def test_unnamed_columns_are_noted(tmp_path):
+    path = write_text(tmp_path / "index.csv", ";yield_kg_m2;co2_ppm;;\n0;40,1;800;;\n1;41,3;900;;\n")
+    frame, report = read_table(path)
+    assert frame.shape == (2, 5) and report.decimal == ","
+    warnings = [n.message for n in report.notes if n.kind == "warning"]
+    assert len(warnings) == 1 and "number 1, 4, 5" in warnings[0]
+
+
 def test_bad_option_values():
     with pytest.raises(OptionError, match="missing='maybe'.*'refuse'.*'drop'") as info:
         prepare(greenhouse(), response="yield_kg_m2", missing="maybe")
