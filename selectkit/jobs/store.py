@@ -13,7 +13,9 @@ Results are stored with :mod:`pickle`: resume only stores you made yourself.
 
 from __future__ import annotations
 
+import copyreg
 import hashlib
+import io
 import json
 import os
 import pickle
@@ -21,6 +23,7 @@ import sqlite3
 import time
 from contextlib import closing
 from pathlib import Path
+from types import MappingProxyType
 
 from ..errors import StoreBusyError, StoreError
 
@@ -61,6 +64,28 @@ CREATE TABLE IF NOT EXISTS log (
 
 
 # --------------------------------------------------------------------------- helpers
+def _read_only_mapping(items: dict) -> MappingProxyType:
+    return MappingProxyType(items)
+
+
+def _reduce_mappingproxy(proxy):
+    return _read_only_mapping, (dict(proxy),)
+
+
+def dumps(value) -> bytes:
+    """Pickle ``value``; read-only mappings (``MappingProxyType``) are pickled as copies.
+
+    Frozen values of selectkit keep their extras in ``MappingProxyType``, which
+    the standard pickler refuses; this pickler stores the mapping and rebuilds
+    the proxy when loading.
+    """
+    buffer = io.BytesIO()
+    pickler = pickle.Pickler(buffer, protocol=pickle.HIGHEST_PROTOCOL)
+    pickler.dispatch_table = {**copyreg.dispatch_table, MappingProxyType: _reduce_mappingproxy}
+    pickler.dump(value)
+    return buffer.getvalue()
+
+
 def data_fingerprint(path) -> dict:
     """SHA-256 of a file's bytes and its size: ``{"sha256": ..., "size": ...}``."""
     digest = hashlib.sha256()
@@ -274,7 +299,7 @@ class RunStore:
     # ------------------------------------------------------------------ units
     def record_unit(self, key: str, result, *, models: int | None = None, seconds: float | None = None) -> None:
         """Commit one finished unit in its own transaction."""
-        blob = pickle.dumps(result, protocol=pickle.HIGHEST_PROTOCOL)
+        blob = dumps(result)
         with self._transaction():
             position = self._db.execute("SELECT count(*) FROM units").fetchone()[0]
             self._db.execute(
@@ -318,7 +343,7 @@ class RunStore:
                     "INSERT INTO pooled VALUES (?, ?, ?, ?, ?, ?, ?)",
                     (i, str(getattr(found, "method", "?")), len(found), int(getattr(found, "evaluated", 0)),
                      int(bool(getattr(found, "exact", False))), str(getattr(found, "stopped_by", "")),
-                     pickle.dumps(found, protocol=pickle.HIGHEST_PROTOCOL)),
+                     dumps(found)),
                 )
 
     def pooled(self) -> list:
