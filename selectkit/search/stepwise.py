@@ -67,7 +67,7 @@ from types import MappingProxyType
 from typing import Any, Sequence
 
 import numpy as np
-from scipy import stats
+from scipy import special
 
 from .. import criteria
 from ..errors import OptionError, SearchError
@@ -344,14 +344,17 @@ def _criterion(problem, rss, k):
                          convention=problem.options.convention), dtype=float)
 
 
-def _f_test(rss_small, rss_large, q, n, k_large):
-    df = n - k_large
-    if q <= 0 or df <= 0:
-        return np.nan, np.nan
-    if rss_large <= 0:
-        return np.inf, 0.0
-    f = max(rss_small - rss_large, 0.0) / q / (rss_large / df)
-    return float(f), float(stats.f.sf(f, q, df))
+def _f_tests(rss_small, rss_large, q, n, k_large):
+    """Vectorised partial F statistics and upper-tail p-values (NaN where undefined)."""
+    rss_small, rss_large = np.asarray(rss_small, float), np.asarray(rss_large, float)
+    q, df = np.asarray(q, float), n - np.asarray(k_large, float)
+    valid = (q > 0) & (df > 0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        f = np.maximum(rss_small - rss_large, 0.0) / np.where(q > 0, q, 1.0) / (rss_large / np.where(df > 0, df, 1.0))
+    f = np.where(rss_large <= 0, np.inf, f)
+    p = np.where(np.isinf(f), 0.0, special.fdtrc(np.where(valid, q, 1.0), np.where(valid, df, 1.0),
+                                                   np.where(np.isfinite(f), f, 0.0)))  # = scipy.stats.f.sf
+    return np.where(valid, f, np.nan), np.where(valid, p, np.nan)
 
 
 def run_unit(unit: WorkUnit) -> dict:
@@ -465,22 +468,19 @@ def _choose_by_f(problem, moves, new_rss, bad, new_k, rss, k):
     def key_names(r):
         return tuple(sorted(names[i] for i in moves[r][3]))
 
-    drops, adds, swaps = [], [], []
-    for r, (kind, term, replaced, new_model) in enumerate(moves):
-        if bad[r]:
-            continue
-        if kind == "drop":
-            f, p = _f_test(new_rss[r], rss, k - new_k[r], n, k)
-            if np.isfinite(p):
-                drops.append((-p, int(new_k[r]), key_names(r), r, f, p))
-        elif kind == "add":
-            f, p = _f_test(rss, new_rss[r], new_k[r] - k, n, new_k[r])
-            if np.isfinite(p):
-                adds.append((p, int(new_k[r]), key_names(r), r, f, p))
-        else:
-            df = n - new_k[r]
-            if df > 0:
-                swaps.append((new_rss[r] / df, int(new_k[r]), key_names(r), r, np.nan, np.nan))
+    kinds = np.array([m[0] for m in moves])
+    good = ~np.asarray(bad)
+    drop_rows = np.flatnonzero((kinds == "drop") & good)
+    add_rows = np.flatnonzero((kinds == "add") & good)
+    swap_rows = np.flatnonzero((kinds == "swap") & good)
+    f_drop, p_drop = _f_tests(new_rss[drop_rows], rss, k - new_k[drop_rows], n, np.full(drop_rows.size, k))
+    f_add, p_add = _f_tests(np.full(add_rows.size, rss), new_rss[add_rows], new_k[add_rows] - k, n, new_k[add_rows])
+    drops = [(-p_drop[j], int(new_k[r]), key_names(r), r, f_drop[j], p_drop[j])
+             for j, r in enumerate(drop_rows) if np.isfinite(p_drop[j])]
+    adds = [(p_add[j], int(new_k[r]), key_names(r), r, f_add[j], p_add[j])
+            for j, r in enumerate(add_rows) if np.isfinite(p_add[j])]
+    swaps = [(new_rss[r] / (n - new_k[r]), int(new_k[r]), key_names(r), r, np.nan, np.nan)
+             for r in swap_rows if n - new_k[r] > 0]
     if drops:
         best = min(drops)
         if best[5] > opts.alpha_remove:
