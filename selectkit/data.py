@@ -633,22 +633,29 @@ def _classify(series: pd.Series, name: str, notes: list[Note]):
         raise InputError(f"column '{name}' holds dates or times; convert it to a number (e.g. days since the "
                          f"first planting) or pass exclude=['{name}']", column=name)
     values = series.astype(object)
-    present = values[values.notna()]
-    if len(present):
-        text = present.astype(str).str.strip()
-        numeric = pd.to_numeric(text, errors="coerce").notna()
-        comma = text.str.match(_COMMA_DECIMAL.pattern)
-        if comma.mean() >= 0.8:
+    counts = values.value_counts(dropna=True)  # judged on distinct values, weighted by their counts
+    if len(counts):
+        text = pd.Series(counts.index.map(lambda v: str(v).strip()), dtype=object)
+        weight = counts.to_numpy()
+        numeric = pd.to_numeric(text, errors="coerce").notna().to_numpy()
+        comma = text.str.match(_COMMA_DECIMAL.pattern).to_numpy(dtype=bool)
+        total = int(weight.sum())
+        if numeric.all():
+            notes.append(Note(name, "info", f"column '{name}' holds numbers written as text; it is read as numeric"))
+            return "numeric", pd.to_numeric(values.map(lambda v: str(v).strip(), na_action="ignore"),
+                                            errors="raise").to_numpy(dtype=np.float64, na_value=np.nan)
+        if weight[comma].sum() >= 0.8 * total:
             notes.append(Note(name, "warning",
-                              f"column '{name}' is read as text, but {int(comma.sum())} of its {len(text)} values "
+                              f"column '{name}' is read as text, but {int(weight[comma].sum())} of its {total} values "
                               f"look like numbers with a decimal comma; it is treated as categorical — save the "
                               f"file with one decimal mark to use it as a number"))
-        elif numeric.mean() >= 0.8:
-            odd = text[~numeric]
+        elif weight[numeric].sum() >= 0.8 * total:
+            odd = int(weight[~numeric].sum())
+            example = text[~numeric].iloc[0]
             notes.append(Note(name, "warning",
-                              f"column '{name}' is read as text because {_plural(len(odd), 'value')} of "
-                              f"{len(text)} are not numbers (e.g. {odd.iloc[0]!r}); it is treated as categorical "
-                              f"— if those values mean 'missing', blank them out"))
+                              f"column '{name}' is read as text because {_plural(odd, 'value')} of {total} are not "
+                              f"numbers (e.g. {example!r}); it is treated as categorical — if those values mean "
+                              f"'missing', blank them out"))
     return "categorical", values
 
 
@@ -691,7 +698,7 @@ class _Span:
     """An orthonormal basis of the centred columns kept so far (Gram–Schmidt, re-orthogonalised)."""
 
     def __init__(self, n: int, capacity: int):
-        self._basis = np.empty((n, max(min(capacity, n), 1)))
+        self._basis = np.empty((n, max(min(capacity, n), 1)), order="F")
         self.size = 0
 
     def leftover(self, z: np.ndarray) -> np.ndarray:
@@ -747,10 +754,11 @@ def _describe_combination(name, target, numeric_kept, categorical_kept):
             f"({name} = {formula}, to 4 significant digits)")
 
 
-def _partition_key(codes: np.ndarray) -> tuple:
+def _partition_key(codes: np.ndarray) -> bytes:
+    """The grouping of rows, independent of how the groups are labelled."""
     _, first, inverse = np.unique(codes, return_index=True, return_inverse=True)
     relabel = np.argsort(np.argsort(first))
-    return tuple(relabel[inverse].tolist())
+    return relabel[inverse].astype(np.int64).tobytes()
 
 
 def _set_aside_collinear(n, order, kinds, numeric_values, categoricals, forced, notes):
@@ -762,12 +770,15 @@ def _set_aside_collinear(n, order, kinds, numeric_values, categoricals, forced, 
     follow — forced ones first, then in the given order — and one whose centred,
     unit-length values lie within :data:`COLLINEARITY_TOLERANCE` of the span of
     the intercept and the columns kept before it is dropped (forced: error).
+
+    The centred unit columns ``Z`` are first reduced to the triangular factor
+    ``R`` of a Householder QR (``Z = QR`` with Q orthonormal, so the columns of
+    R have the same lengths and angles as those of Z, and Householder QR is
+    backward stable); the greedy, re-orthogonalised Gram–Schmidt pass in
+    column order then runs on R, at a cost independent of n.
     """
-    capacity = sum(1 for c in order if kinds[c] == "numeric") + sum(
-        len(categoricals[c].categories) - 1 for c in order if kinds[c] == "categorical")
-    span = _Span(n, capacity)
     dropped: list[str] = []
-    partitions: dict[tuple, str] = {}
+    partitions: dict[bytes, str] = {}
     cat_kept = []
     cat_order = [c for c in order if kinds[c] == "categorical"]
     cat_order = [c for c in cat_order if c in forced] + [c for c in cat_order if c not in forced]
@@ -784,32 +795,50 @@ def _set_aside_collinear(n, order, kinds, numeric_values, categoricals, forced, 
                                                f"does (same {width + 1} groups); '{name}' was dropped"))
             continue
         partitions[key] = name
-        in_span = 0
+        cat_kept.append((name, codes, width))
+    num_order = [c for c in order if kinds[c] == "numeric"]
+    num_order = [c for c in num_order if c in forced] + [c for c in num_order if c not in forced]
+
+    owners = [name for name, _, width in cat_kept for _ in range(width)] + num_order
+    if not owners:
+        return dropped
+    z = np.empty((n, len(owners)), order="F")
+    j = 0
+    for _, codes, width in cat_kept:
         for level in range(1, width + 1):
-            z = _centred_unit((codes == level).astype(float))
-            r = span.leftover(z)
-            if np.linalg.norm(r) <= COLLINEARITY_TOLERANCE:
+            z[:, j] = _centred_unit((codes == level).astype(float))
+            j += 1
+    for name in num_order:
+        z[:, j] = _centred_unit(numeric_values[name])
+        j += 1
+    r_factor = np.linalg.qr(z, mode="r")
+    span = _Span(r_factor.shape[0], len(owners))
+
+    j = 0
+    for name, _, width in cat_kept:
+        in_span = 0
+        for _ in range(width):
+            leftover = span.leftover(r_factor[:, j])
+            j += 1
+            if np.linalg.norm(leftover) <= COLLINEARITY_TOLERANCE:
                 in_span += 1
             else:
-                span.add(r)
+                span.add(leftover)
         if in_span:
             notes.append(Note(name, "warning",
                               f"column '{name}' is partly determined by the categorical columns before it: "
                               f"{in_span} of its {width} indicator columns are exact combinations of theirs, so a "
                               f"model holding '{name}' with them is singular"))
-        cat_kept.append((name, codes, width))
-    num_order = [c for c in order if kinds[c] == "numeric"]
-    num_order = [c for c in num_order if c in forced] + [c for c in num_order if c not in forced]
     num_kept: list[tuple[str, np.ndarray]] = []
     for name in num_order:
+        leftover = span.leftover(r_factor[:, j])
+        j += 1
         x = numeric_values[name]
-        twin = next((other for other, kept in num_kept if np.array_equal(kept, x)), None)
-        z = _centred_unit(x)
-        r = span.leftover(z)
-        if np.linalg.norm(r) > COLLINEARITY_TOLERANCE:
-            span.add(r)
+        if np.linalg.norm(leftover) > COLLINEARITY_TOLERANCE:
+            span.add(leftover)
             num_kept.append((name, x))
             continue
+        twin = next((other for other, kept in num_kept if np.array_equal(kept, x)), None)
         if twin is not None:
             sentence = f"'{name}' is identical to '{twin}'"
         else:

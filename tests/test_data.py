@@ -431,6 +431,16 @@ def test_date_column_refused():
     assert prepare(frame, response="yield_kg_m2", exclude=["planted_on"]).n == 40
 
 
+def test_numbers_written_as_text_are_numeric():
+    frame = greenhouse()
+    expected = frame["co2_ppm"].to_numpy()
+    frame["co2_ppm"] = [f" {v}" for v in expected]
+    data = prepare(frame, response="yield_kg_m2")
+    assert "co2_ppm" in data.numeric
+    np.testing.assert_array_equal(data.frame["co2_ppm"].to_numpy(), expected)
+    assert notes_about(data, "co2_ppm", "info")
+
+
 def test_numbers_written_with_a_stray_word_are_noted():
     frame = greenhouse().drop(columns="bay_id")
     frame["irrigation_l"] = np.resize(["2.5", "3.0", "3.5", "4.0"], 40)
