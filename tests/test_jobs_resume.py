@@ -1,0 +1,144 @@
+"""A job killed with SIGKILL part-way and resumed ends with the shortlist of an uninterrupted run.
+
+The job runs in a child process (the stand-in search of ``tests/test_jobs.py``
+through the real unit loop of ``api.run_methods``); the parent watches the run
+store read-only and kills the child once a number of units, drawn with a
+seeded generator, has been committed.
+"""
+
+from __future__ import annotations
+
+import shutil
+import signal
+import subprocess
+import sys
+import time
+
+import numpy as np
+import pytest
+
+from selectkit.errors import StoreBusyError, StoreError
+from selectkit.jobs import load_job, store_status
+from tests.test_jobs import ROOT, _cli, run_fake, write_job, write_table
+
+UNITS = 12
+CHILD = "import sys; from selectkit.jobs import load_job; from tests.test_jobs import run_fake; run_fake(load_job(sys.argv[1]))"
+
+
+def _start_child(job_path):
+    return subprocess.Popen([sys.executable, "-c", CHILD, str(job_path)], cwd=ROOT,
+                            stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+
+
+def _wait_for_units(folder, count, child, timeout=60.0):
+    """Poll the store read-only until ``count`` units are committed; return the status seen."""
+    deadline = time.monotonic() + timeout
+    while time.monotonic() < deadline:
+        if child.poll() is not None:
+            raise AssertionError(f"the job ended before it could be killed: {child.stderr.read()}")
+        try:
+            status = store_status(folder)
+        except StoreError:
+            status = None  # not created yet
+        if status is not None and status.units_total and status.units_done >= count:
+            return status
+        time.sleep(0.01)
+    raise AssertionError(f"{count} units were not committed within {timeout} s")
+
+
+@pytest.fixture(scope="module")
+def straight_shortlist(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("straight")
+    write_table(folder / "bays.csv")
+    outcome = run_fake(load_job(write_job(folder)))
+    assert outcome.complete
+    return outcome.outputs["shortlist (CSV)"].read_bytes()
+
+
+# Points at which to kill: numbers of committed units, drawn once from a seeded generator.
+KILL_POINTS = sorted(np.random.default_rng(20261202).choice(np.arange(0, UNITS - 1), size=3, replace=False).tolist())
+
+
+@pytest.mark.parametrize("kill_after", KILL_POINTS)
+def test_sigkill_then_resume_gives_the_uninterrupted_shortlist(tmp_path, straight_shortlist, kill_after):
+    write_table(tmp_path / "bays.csv")
+    job = write_job(tmp_path, exhaustive=f"chunks = {UNITS}\ndelay = 0.12")
+    child = _start_child(job)
+    try:
+        seen = _wait_for_units(tmp_path / "results", kill_after, child)
+        assert seen.state == "running" and seen.running
+        child.send_signal(signal.SIGKILL)
+        child.wait(timeout=30)
+    finally:
+        if child.poll() is None:
+            child.kill()
+            child.wait()
+    assert child.returncode == -signal.SIGKILL
+    killed = store_status(tmp_path / "results")
+    assert killed.state == "interrupted" and not killed.running
+    assert kill_after <= killed.units_done < UNITS
+    assert "selectkit job resume" in killed.render()
+    assert not (tmp_path / "results" / "shortlist.csv").exists()
+
+    resumed = run_fake(load_job(job))
+    assert resumed.complete and resumed.units_resumed == killed.units_done
+    assert resumed.units_done == UNITS
+    assert (tmp_path / "results" / "shortlist.csv").read_bytes() == straight_shortlist
+
+
+def test_second_run_on_a_busy_store_is_refused(tmp_path):
+    write_table(tmp_path / "bays.csv")
+    job = write_job(tmp_path, exhaustive=f"chunks = {UNITS}\ndelay = 0.2")
+    child = _start_child(job)
+    try:
+        status = _wait_for_units(tmp_path / "results", 1, child)
+        assert status.state == "running" and "running" in status.render()
+        with pytest.raises(StoreBusyError, match=f"in use by another job \\(process {child.pid}\\)"):
+            run_fake(load_job(job))
+        done = _cli("run", str(job), cwd=tmp_path)
+        assert done.returncode == 2 and "in use by another job" in done.stderr
+        assert len(done.stderr.strip().splitlines()) == 1
+        # The refused runs left the store alone: the first job ends normally.
+        assert child.wait(timeout=60) == 0, child.stderr.read()
+    finally:
+        if child.poll() is None:
+            child.kill()
+            child.wait()
+    finished = store_status(tmp_path / "results")
+    assert finished.state == "complete" and finished.units_done == UNITS
+
+
+def test_sigint_to_a_running_job_writes_an_incomplete_shortlist(tmp_path):
+    write_table(tmp_path / "bays.csv")
+    job = write_job(tmp_path, exhaustive=f"chunks = {UNITS}\ndelay = 0.12")
+    child = _start_child(job)
+    try:
+        _wait_for_units(tmp_path / "results", 2, child)
+        child.send_signal(signal.SIGINT)
+        assert child.wait(timeout=60) == 0, child.stderr.read()
+    finally:
+        if child.poll() is None:
+            child.kill()
+            child.wait()
+    status = store_status(tmp_path / "results")
+    assert status.state == "incomplete" and status.stopped_by == "stopped by SIGINT"
+    assert status.not_exact == ("exhaustive",)
+    assert 2 <= status.units_done < UNITS
+    assert (tmp_path / "results" / "shortlist.csv").exists()
+
+
+def test_moved_output_folder_resumes_from_its_store(tmp_path):
+    """``resume_job(folder)`` needs no job file: the settings come from the store."""
+    from selectkit.jobs.runner import _spec_from_store
+
+    write_table(tmp_path / "bays.csv")
+    job = write_job(tmp_path, exhaustive=f"chunks = {UNITS}\ndelay = 0.05", extra_run='time_budget = "0.2s"\n')
+    first = run_fake(load_job(job))
+    assert not first.complete
+    shutil.move(tmp_path / "results", tmp_path / "moved")
+    spec = _spec_from_store(tmp_path / "moved")
+    assert spec.output == (tmp_path / "moved").resolve()
+    from dataclasses import replace
+
+    again = run_fake(replace(spec, time_budget=None))
+    assert again.complete and again.units_resumed == first.units_done
