@@ -835,7 +835,10 @@ def stability(
     backend : str, default "loky"
         See :func:`selectkit.parallel.run_units`; results are identical for any
         ``n_jobs`` and backend.
-    criterion : {"aic", "aicc", "bic", "cp", "adj_r2"}, default "bic"
+    criterion : str, default "bic"
+        Picks each replicate's best model: ``aic``, ``aicc``, ``bic``, ``cp`` or
+        ``adj_r2``.  The cross-validated criteria (``press``, ``cv_mse``,
+        ``holdout_mse``) are replaced by AICc, with a note.
     convention : str, default "selectkit"
 
     Returns
@@ -856,11 +859,13 @@ def stability(
     for model building. Statistics in Medicine 11, 2093-2109.
     """
     criterion = _criteria.check_criterion(criterion)
+    notes = []
     if criterion in SCORE_COLUMNS:
-        raise OptionError(
-            f"stability ranks each replicate by an rss-based criterion; {criterion!r} needs "
-            "cross-validation inside every replicate. Choose one of aic, aicc, bic, cp, adj_r2"
-        )
+        # Cross-validating inside every replicate would multiply the cost by the folds;
+        # the replicates are ranked by AICc instead, and the result says so.
+        notes.append(f"Replicates were ranked by AICc: {criterion} would need cross-validation "
+                     "inside every replicate.")
+        criterion = "aicc"
     if isinstance(n_boot, bool) or not isinstance(n_boot, (int, np.integer)) or n_boot < 1:
         raise OptionError(f"n_boot must be a whole number of replicates ≥ 1 (got {n_boot!r})")
     moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
@@ -901,7 +906,6 @@ def stability(
         "variable": [t.family for t in candidates.terms],
         "share_selected": term_counts / count,
     })
-    notes = []
     if failed:
         notes.append(f"{failed} of {n_boot} replicates failed and were left out: " + "; ".join(messages[:3]))
     return Stability(

@@ -347,6 +347,9 @@ def test_strong_effect_is_selected_in_every_replicate(strong):
     assert share["a"] == pytest.approx(np.mean([0 in s for s in result.replicate_models]))
 
 
-def test_stability_rejects_cross_validated_criteria(strong):
-    with pytest.raises(OptionError, match="rss-based"):
-        stability(strong, brute_force_runner, n_boot=2, criterion="cv_mse")
+def test_stability_ranks_replicates_by_aicc_when_asked_for_a_cross_validated_criterion(strong):
+    result = stability(strong, brute_force_runner, n_boot=3, criterion="cv_mse")
+    assert result.criterion == "aicc"
+    assert any("AICc" in note for note in result.notes)
+    with pytest.raises(OptionError, match="bic"):
+        stability(strong, brute_force_runner, n_boot=3, criterion="bicc")

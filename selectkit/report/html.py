@@ -1,0 +1,312 @@
+"""One self-contained HTML page: settings, candidates, searches, shortlist, checks, cautions.
+
+The page has no script and loads nothing: styles are inline and every figure
+is an embedded PNG (``data:image/png;base64``).  Every string that comes from
+the user or the data (column names, levels, file names, settings) passes
+through :func:`html.escape`.
+"""
+
+from __future__ import annotations
+
+import html
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .._io import atomic_write_text
+from . import plots
+from .text import CAUTIONS
+
+__all__ = ["render_html", "write_html"]
+
+_STYLE = """
+body{font-family:system-ui,-apple-system,"Segoe UI",sans-serif;margin:0;background:#f6f5f1;color:#1f2a33;line-height:1.45}
+main{max-width:1080px;margin:0 auto;padding:1.5rem 1.25rem 3rem}
+header.page{background:#24507a;color:#fff;padding:1.2rem 1.25rem}
+header.page h1{margin:0;font-size:1.45rem;font-weight:600}
+header.page p{margin:.3rem 0 0;opacity:.85}
+section{background:#fff;border-radius:6px;padding:1rem 1.2rem;margin:1.1rem 0;box-shadow:0 1px 2px rgba(0,0,0,.08)}
+h2{font-size:1.15rem;margin:.1rem 0 .6rem;color:#24507a}
+h3{font-size:1rem;margin:1rem 0 .4rem}
+table{border-collapse:collapse;font-size:.84rem;margin:.4rem 0;width:auto}
+th,td{padding:.22rem .55rem;border-bottom:1px solid #e3e1da;text-align:left;vertical-align:top}
+th{background:#eef2f6;font-weight:600}
+td.num{text-align:right;font-variant-numeric:tabular-nums}
+.scroll{overflow-x:auto}
+.equation{font-family:ui-monospace,Menlo,Consolas,monospace;background:#f3f6f9;padding:.5rem .7rem;border-radius:4px;overflow-x:auto}
+.ok{color:#1d7a3a;font-weight:600}.fail{color:#b03a2e;font-weight:600}.na{color:#7b8189}
+.caution{border-left:4px solid #c0392b;background:#fdf3f1;padding:.6rem .9rem;margin:.6rem 0}
+.note{color:#55606b;font-size:.88rem}
+figure{margin:.6rem 0}figure img{max-width:100%;height:auto;border:1px solid #e3e1da}
+figcaption{font-size:.82rem;color:#55606b}
+nav ol{columns:2;font-size:.9rem}
+"""
+
+
+def _e(value) -> str:
+    return html.escape(str(value), quote=True)
+
+
+def _fmt(value) -> str:
+    if value is None or value is pd.NA:
+        return "—"
+    if isinstance(value, (bool, np.bool_)):
+        return "yes" if value else "no"
+    if isinstance(value, (int, np.integer)):
+        return str(int(value))
+    if isinstance(value, (float, np.floating)):
+        value = float(value)
+        if not math.isfinite(value):
+            return "—"
+        if value != 0 and (abs(value) < 1e-3 or abs(value) >= 1e6):
+            return f"{value:.3e}"
+        return f"{value:.4g}" if abs(value) < 1e4 else f"{value:.1f}"
+    return str(value)
+
+
+def _is_number(value) -> bool:
+    return isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, (bool, np.bool_))
+
+
+def _table(frame: pd.DataFrame, *, headers=None) -> str:
+    """A DataFrame as an HTML table; every header and cell escaped."""
+    headers = headers or {}
+    head = "".join(f"<th>{_e(headers.get(c, c))}</th>" for c in frame.columns)
+    rows = []
+    for record in frame.itertuples(index=False, name=None):
+        cells = []
+        for value in record:
+            css = ' class="num"' if _is_number(value) else ""
+            cells.append(f"<td{css}>{_e(_fmt(value))}</td>")
+        rows.append("<tr>" + "".join(cells) + "</tr>")
+    return f'<div class="scroll"><table><thead><tr>{head}</tr></thead><tbody>{"".join(rows)}</tbody></table></div>'
+
+
+def _figure(figure, caption: str) -> str:
+    if figure is None:
+        return ""
+    data = plots.to_png_base64(figure)
+    return (f'<figure><img alt="{_e(caption)}" src="data:image/png;base64,{data}">'
+            f"<figcaption>{_e(caption)}</figcaption></figure>")
+
+
+def _section(anchor: str, title: str, body: str) -> str:
+    return f'<section id="{anchor}"><h2>{_e(title)}</h2>{body}</section>'
+
+
+# --------------------------------------------------------------------------- sections
+
+
+def _settings_section(settings) -> str:
+    if not settings:
+        return "<p class=\"note\">No settings were recorded.</p>"
+    rows = []
+    for key, value in settings.items():
+        shown = value if isinstance(value, str) else json.dumps(value, default=str, ensure_ascii=False)
+        rows.append({"setting": str(key), "value": shown})
+    return _table(pd.DataFrame(rows))
+
+
+def _candidate_section(candidates) -> str:
+    if candidates is None:
+        return "<p class=\"note\">The candidate set was not given.</p>"
+    if hasattr(candidates, "describe"):
+        frame = candidates.describe()
+    else:
+        frame = pd.DataFrame(
+            [{"term": t.name, "family": t.family, "form": t.transform, "columns": t.width,
+              "status": "kept", "reason": ""} for t in candidates.terms]
+            + [{"term": r.form, "family": r.family, "form": r.form, "columns": 0,
+                "status": "refused", "reason": r.reason} for r in candidates.refused])
+    kept = int((frame["status"] == "kept").sum()) if "status" in frame else len(frame)
+    refused = len(frame) - kept
+    transform = candidates.response_transform
+    scale = transform.name if transform.transform != "identity" else candidates.response
+    intro = (f"<p>{kept} candidate term(s) in {len({t.family for t in candidates.terms})} variable "
+             f"famil{'y' if len({t.family for t in candidates.terms}) == 1 else 'ies'}; {refused} form(s) "
+             f"refused, with the reason. A model holds at most one form of each variable. "
+             f"Response modelled as <b>{_e(scale)}</b>.</p>")
+    notes = "".join(f"<p class=\"note\">{_e(n)}</p>" for n in getattr(candidates, "notes", ()))
+    return intro + _table(frame) + notes
+
+
+def _search_section(founds, shortlist) -> str:
+    if not founds:
+        return "<p class=\"note\">No search details were given.</p>"
+    rows = []
+    for f in founds:
+        rows.append({
+            "search": f.method,
+            "models kept": len(f),
+            "subsets evaluated": int(f.evaluated),
+            "ruled out by a bound": int(f.pruned),
+            "rank-deficient, skipped": int(f.singular),
+            "proven best": "yes" if f.exact else "no (heuristic or stopped early)",
+            "why it stopped": f.stopped_by,
+        })
+    return (_table(pd.DataFrame(rows))
+            + f"<p>{len(shortlist.scored)} distinct models were pooled from these searches; a model found by "
+              "several searches appears once and lists them all.</p>")
+
+
+def _criterion_text(shortlist) -> str:
+    weight = shortlist.weight_criterion.upper()
+    extra = (" For BIC these are BIC weights: approximate probabilities of each model among those pooled, "
+             "with equal prior probabilities." if shortlist.weight_criterion == "bic" else "")
+    return (f"<p><b>Ranking criterion: {_e(shortlist.criterion.upper())}.</b> {_e(shortlist.criterion_reason)}</p>"
+            f"<p class=\"note\">Δ is the distance from the best model on that criterion. The weight of a model "
+            f"is exp(−Δ/2) normalised over the pooled models, from {_e(weight)}.{_e(extra)} Models within "
+            "Δ ≤ 2 of the best are marked as having comparable support (common practice). "
+            f"Mallows' Cp: {_e(shortlist.cp_variance_source)}. Criteria convention: "
+            f"{_e(shortlist.convention)}.</p>")
+
+
+_SHORTLIST_HEADERS = {
+    "position": "#", "terms": "terms", "n_terms": "terms (count)", "k": "coefficients k",
+    "delta_from_best": "Δ", "model_weight": "weight", "comparable_support": "comparable support",
+    "adj_r2": "adjusted R²", "r2": "R²", "cv_mse": "CV MSE", "cv_se": "CV SE",
+    "holdout_mse": "held-out MSE", "press": "PRESS", "found_by": "found by",
+}
+
+
+def _shortlist_section(shortlist) -> str:
+    columns = ["position", "terms", "n_terms", "k", "delta_from_best", "model_weight", "comparable_support",
+               shortlist.criterion, "aicc", "bic", "adj_r2", "cv_mse", "cv_se", "found_by"]
+    columns = list(dict.fromkeys(c for c in columns if c in shortlist.table.columns))
+    notes = "".join(f"<p class=\"note\">{_e(n)}</p>" for n in shortlist.notes)
+    return _criterion_text(shortlist) + _table(shortlist.table[columns], headers=_SHORTLIST_HEADERS) + notes
+
+
+def _checks_table(diagnosis) -> str:
+    rows = []
+    for c in diagnosis.checks:
+        mark = {True: '<span class="ok">passed</span>', False: '<span class="fail">failed</span>',
+                None: '<span class="na">not assessed</span>'}[c.passed]
+        remedy = f"<br><i>What to try:</i> {_e(c.remedy)}" if c.remedy else ""
+        rows.append(f"<tr><td>{_e(c.aspect)}</td><td>{mark}</td><td>{_e(c.verdict)}{remedy}</td>"
+                    f"<td class=\"note\">{_e(c.reference)}</td></tr>")
+    return ('<div class="scroll"><table><thead><tr><th>assumption</th><th>result</th><th>verdict</th>'
+            f"<th>source</th></tr></thead><tbody>{''.join(rows)}</tbody></table></div>")
+
+
+def _model_section(position, fit, diagnosis, row) -> str:
+    parts = [f'<p class="equation">{_e(fit.equation)}</p>',
+             f"<p>n = {fit.n} rows, k = {fit.k} coefficients, residual standard error {_e(_fmt(fit.sigma))}; "
+             f"Δ = {_e(_fmt(row['delta_from_best']))}, weight {_e(_fmt(row['model_weight']))}; "
+             f"found by {_e(row['found_by'])}.</p>"]
+    coefficients = fit.coefficients.rename(columns={"p_value_optimistic": "p-value (optimistic)",
+                                                    "std_error": "standard error", "ci_low": "95% low",
+                                                    "ci_high": "95% high"})
+    parts.append("<h3>Coefficients</h3>" + _table(coefficients))
+    parts.append('<p class="note">The intervals and p-values treat this model as chosen in advance; '
+                 "because the data chose it, they are optimistic.</p>")
+    if diagnosis is not None:
+        parts.append("<h3>Assumption checks</h3>" + _checks_table(diagnosis))
+        if len(diagnosis.flagged_rows):
+            parts.append("<h3>Rows to look at</h3>" + _table(diagnosis.flagged_rows)
+                         + '<p class="note">Flagged rows are listed for a check, not removed.</p>')
+        parts.append("<h3>Residual plots</h3>")
+        parts.append(_figure(plots.residual_panel(diagnosis),
+                             "Residuals against fitted values, normal Q-Q, spread against fitted values, "
+                             "Cook's distance."))
+        parts.append(_figure(plots.residuals_vs_terms(diagnosis),
+                             "Residuals against each term: a bend suggests another form of that term."))
+        if not diagnosis.vif.empty and len(diagnosis.term_vif) > 1:
+            parts.append("<h3>Collinearity</h3>" + _table(diagnosis.term_vif))
+    else:
+        parts.append('<p class="note">The assumption checks of this model were not run.</p>')
+    return _section(f"model-{position}", f"Model {position}: {' + '.join(fit.terms) or 'intercept only'}",
+                    "".join(parts))
+
+
+def _stability_section(stability) -> str:
+    intro = (f"<p>{stability.n_boot} bootstrap resamples of the rows (seed {_e(stability.seed)}), each searched "
+             f"again and its best model taken by {_e(stability.criterion.upper())}. The best model on all "
+             f"rows ({_e(' + '.join(stability.full_data_best) or 'intercept only')}) was chosen again in "
+             f"{_e(_fmt(100 * stability.share_same_as_full))}% of the resamples.</p>")
+    notes = "".join(f"<p class=\"note\">{_e(n)}</p>" for n in stability.notes)
+    forms = stability.form_share[stability.form_share["share_selected"] > 0]
+    return (intro + "<h3>Variables</h3>"
+            + _table(stability.variable_share, headers={"share_selected": "share of resamples"})
+            + "<h3>Forms</h3>" + _table(forms, headers={"share_selected": "share of resamples"}) + notes)
+
+
+def _cautions_section() -> str:
+    return "".join(f'<div class="caution"><b>{_e(title)}.</b> {_e(text)}</div>' for title, text in CAUTIONS)
+
+
+# --------------------------------------------------------------------------- page
+
+
+def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnoses=(), stability=None) -> str:
+    """The report as one HTML string (no script, no external resource).
+
+    Parameters
+    ----------
+    shortlist : selectkit.rank.Shortlist
+    settings : dict, optional
+    candidates : CandidateSet, optional
+    founds : sequence of Found
+    diagnoses : sequence of Diagnosis
+        Aligned with the shortlisted models.
+    stability : Stability, optional
+
+    Returns
+    -------
+    str
+    """
+    from .. import __version__
+
+    settings = dict(settings or {})
+    diagnoses = list(diagnoses or ())
+    response = settings.get("response") or (candidates.response if candidates is not None else "the response")
+    sections = [
+        ("settings", "What was asked", _settings_section(settings)),
+        ("candidates", "Candidate terms", _candidate_section(candidates)),
+        ("searches", "How the searches went", _search_section(list(founds), shortlist)),
+        ("by-size", "Criterion against model size",
+         _figure(plots.criterion_by_size(shortlist),
+                 "Best criterion value among the pooled models of each size.")),
+        ("support", "How strongly each variable is supported",
+         _figure(plots.variable_support(shortlist),
+                 "Summed weight of the pooled models that hold each variable (any form).")
+         + _table(shortlist.variable_support)),
+        ("shortlist", "The shortlist", _shortlist_section(shortlist)),
+    ]
+    body = [_section(a, t, b) for a, t, b in sections]
+    for i, fit in enumerate(shortlist.fits):
+        row = shortlist.table.iloc[i]
+        body.append(_model_section(i + 1, fit, diagnoses[i] if i < len(diagnoses) else None, row))
+    if stability is not None:
+        body.append(_section("stability", "Does the choice survive resampling?", _stability_section(stability)))
+    body.append(_section("cautions", "Before you rely on these models", _cautions_section()))
+    nav_items = [(a, t) for a, t, _ in sections] + [(f"model-{i + 1}", f"Model {i + 1}")
+                                                    for i in range(len(shortlist.fits))]
+    if stability is not None:
+        nav_items.append(("stability", "Resampling"))
+    nav_items.append(("cautions", "Cautions"))
+    nav = "<nav><ol>" + "".join(f'<li><a href="#{a}">{_e(t)}</a></li>' for a, t in nav_items) + "</ol></nav>"
+    best = shortlist.fits[0].equation if shortlist.fits else ""
+    return (
+        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+        f"<title>{_e('selectkit report: ' + str(response))}</title>"
+        f"<style>{_STYLE}</style></head><body>"
+        f"<header class=\"page\"><h1>{_e('Model shortlist for ' + str(response))}</h1>"
+        f"<p>{len(shortlist.scored)} models pooled, {shortlist.n} rows, ranked by "
+        f"{_e(shortlist.criterion.upper())}. Made by selectkit {_e(__version__)}.</p></header>"
+        f"<main><section><h2>At a glance</h2><p class=\"equation\">{_e(best)}</p>"
+        f"<div class=\"caution\">{_e(CAUTIONS[0][1])}</div>{nav}</section>"
+        + "".join(body)
+        + "</main></body></html>\n"
+    )
+
+
+def write_html(path, *, shortlist, settings=None, candidates=None, founds=(), diagnoses=(),
+               stability=None) -> Path:
+    """Render the report and write it atomically to ``path``; return the path."""
+    text = render_html(shortlist=shortlist, settings=settings, candidates=candidates, founds=founds,
+                       diagnoses=diagnoses, stability=stability)
+    return atomic_write_text(Path(path), text)

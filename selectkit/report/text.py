@@ -1,0 +1,106 @@
+"""A short plain-text summary for the terminal, and the cautions every output carries."""
+
+from __future__ import annotations
+
+import math
+
+__all__ = ["CAUTIONS", "SHORT_CAUTION", "summary"]
+
+#: The cautions shown with every shortlist (title, text).
+CAUTIONS = (
+    ("Selection makes p-values and intervals optimistic",
+     "The data chose these models, and the same data produced their standard errors, p-values and "
+     "confidence intervals. They are computed as if the model had been fixed in advance, so they are "
+     "too small and too narrow. For an honest estimate of prediction error use the cross-validated "
+     "columns, and check the chosen model on rows it has never seen (a held-out part or new data)."),
+    ("Association is not causation",
+     "A term in the best model is associated with the response in these data. It does not show that "
+     "changing the variable would change the response; unmeasured conditions and the way the data were "
+     "collected can produce the same pattern."),
+    ("No extrapolation",
+     "The equations describe the response only within the range of the data they were fitted to. "
+     "Transformed terms (logs, reciprocals, powers) can behave very differently outside that range."),
+    ("Decisions rest with you",
+     "selectkit ranks and checks models; it does not decide. Which model to use, and whether it is fit "
+     "for a purpose, rests with the practitioner, their knowledge of the subject and local professional "
+     "standards."),
+)
+
+SHORT_CAUTION = ("Caution: p-values and intervals of a selected model are optimistic (trust the CV error "
+                 "and a held-out check); association is not causation; do not extrapolate beyond the "
+                 "data; the decision rests with you and local professional standards.")
+
+
+def _number(value) -> str:
+    try:
+        value = float(value)
+    except (TypeError, ValueError):
+        return str(value)
+    if not math.isfinite(value):
+        return "—"
+    return f"{value:.4g}" if abs(value) < 1e5 else f"{value:.6g}"
+
+
+def _mark(passed) -> str:
+    return {True: "ok  ", False: "FAIL", None: "n/a "}[passed]
+
+
+def summary(*, shortlist, settings=None, founds=(), diagnoses=(), paths=None, top=5) -> str:
+    """A few lines for the terminal: searches, criterion, top models, checks of the best, cautions, files.
+
+    Parameters
+    ----------
+    shortlist : selectkit.rank.Shortlist
+    settings : dict, optional
+        The job's settings (``response`` is shown when present).
+    founds : sequence of Found
+    diagnoses : sequence of Diagnosis
+        The first one (the best model's) is summarised.
+    paths : dict, optional
+        Files written, label → path.
+    top : int, default 5
+        Models listed.
+
+    Returns
+    -------
+    str
+    """
+    settings = dict(settings or {})
+    lines = []
+    response = settings.get("response")
+    head = "selectkit shortlist" + (f" for {response}" if response else "")
+    lines.append(f"{head}: {len(shortlist.scored)} distinct models pooled from "
+                 f"{len(founds)} search(es), {shortlist.n} rows.")
+    for found in founds:
+        proof = "exact" if found.exact else "not proven exact"
+        lines.append(f"  {found.method}: {found.evaluated} subsets evaluated, {found.pruned} pruned, "
+                     f"{proof}; {found.stopped_by}")
+    lines.append(f"Ranked by {shortlist.criterion.upper()}: {shortlist.criterion_reason}")
+    lines.append("")
+    table = shortlist.table.head(top)
+    width = max([len(str(t)) for t in table["terms"]] + [5])
+    width = min(width, 70)
+    lines.append(f"  {'#':>2}  {'terms':<{width}}  {'Δ':>7}  {'weight':>6}")
+    for _, row in table.iterrows():
+        terms = str(row["terms"])
+        if len(terms) > width:
+            terms = terms[: width - 1] + "…"
+        lines.append(f"  {int(row['position']):>2}  {terms:<{width}}  {_number(row['delta_from_best']):>7}  "
+                     f"{_number(row['model_weight']):>6}")
+    if shortlist.fits:
+        lines.append("")
+        lines.append("Best model: " + shortlist.fits[0].equation)
+    if diagnoses:
+        best = diagnoses[0]
+        lines.append("Checks of the best model:")
+        for check in best.checks:
+            lines.append(f"  [{_mark(check.passed)}] {check.aspect}: {check.verdict}")
+    for note in shortlist.notes:
+        lines.append("Note: " + note)
+    lines.append("")
+    lines.append(SHORT_CAUTION)
+    if paths:
+        lines.append("Files written:")
+        for label, path in paths.items():
+            lines.append(f"  {label}: {path}")
+    return "\n".join(lines)
