@@ -532,7 +532,12 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
         new_fams = np.uint64(0)
         for i in range(k, n_s - 1):
             if i > k:
-                new_fams |= np.uint64(1) << np.uint64(t_fam[terms[i - 1]])
+                fb = np.uint64(1) << np.uint64(t_fam[terms[i - 1]])
+                if new_fams & fb:
+                    # fixing terms[:i] would put two forms of one variable in every
+                    # model below; so would every later child
+                    break
+                new_fams |= fb
             for p in range(i):
                 child[p] = terms[p]
             m_child = i
