@@ -1,0 +1,176 @@
+"""Tests of selectkit.report: CSV and JSON shortlist, schema, HTML page, figures, text summary.
+
+External checks: the JSON document and the schema itself are validated with the
+``jsonschema`` package (draft 2020-12 validator), and the CSV is read back with
+pandas.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import re
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from selectkit import report
+from selectkit.diagnostics import diagnose
+from selectkit.errors import InputError
+from selectkit.moments import compute_moments
+from selectkit.rank import rank, stability
+from selectkit.report import html as report_html
+from selectkit.report import plots, tables, text
+from tests.factories import make_candidates
+from tests.test_rank import brute_force, brute_force_runner
+
+jsonschema = pytest.importorskip("jsonschema")
+
+HOSTILE = "<script>alert(1)</script>"
+
+
+@pytest.fixture(scope="module")
+def run(tmp_path_factory):
+    rng = np.random.default_rng(0)
+    n = 70
+    light = rng.uniform(5, 40, size=n)
+    ruby = (rng.uniform(size=n) < 0.5).astype(float)
+    noise = rng.normal(size=n)
+    y = 1.0 + 0.8 * np.log(light) + 0.3 * ruby + rng.normal(scale=0.1, size=n)
+    X = np.column_stack([np.log(light), noise, ruby])
+    cands = make_candidates(X, y, names=["log(light)", HOSTILE, "cultivar[Ruby]"],
+                            families=["light", HOSTILE, "cultivar"], blocks={"cultivar": [2]})
+    moments = compute_moments(cands.matrix, cands.y)
+    found = brute_force(cands, method="exhaustive")
+    short = rank([found], cands, moments, size=3, scores=False)
+    diagnoses = [diagnose(cands, s) for s in short.subsets]
+    stab = stability(cands, brute_force_runner, n_boot=4, seed=1)
+    settings = {"response": "yield_kg_m2", "data": f"bays {HOSTILE}.csv", "methods": ["exhaustive"], "seed": 1}
+    folder = tmp_path_factory.mktemp("out")
+    paths = report.write_outputs(folder, settings=settings, candidates=cands, founds=[found], shortlist=short,
+                                 diagnoses=diagnoses, stability=stab)
+    return {"candidates": cands, "found": found, "shortlist": short, "diagnoses": diagnoses,
+            "stability": stab, "settings": settings, "folder": folder, "paths": paths}
+
+
+def test_write_outputs_writes_three_files_and_no_temporary_file(run):
+    paths = run["paths"]
+    assert set(paths) == {"shortlist_csv", "shortlist_json", "report_html"}
+    assert sorted(os.listdir(run["folder"])) == ["report.html", "shortlist.csv", "shortlist.json"]
+    for path in paths.values():
+        assert path.stat().st_size > 0
+
+
+def test_csv_round_trips(run):
+    frame = pd.read_csv(run["paths"]["shortlist_csv"])
+    table = run["shortlist"].table
+    assert list(frame.columns) == [c for c in tables.CSV_COLUMNS if c in table.columns]
+    assert list(frame["terms"]) == list(table["terms"])
+    np.testing.assert_allclose(frame["bic"], table["bic"], rtol=1e-9)
+    np.testing.assert_allclose(frame["model_weight"], table["model_weight"], rtol=1e-9)
+    assert frame["cv_mse"].isna().all()  # scores were not requested: empty cells, not zeros
+
+
+def test_json_validates_against_its_schema(run):
+    document = json.loads(run["paths"]["shortlist_json"].read_text(encoding="utf-8"))
+    schema = tables.load_schema()
+    jsonschema.Draft202012Validator.check_schema(schema)
+    jsonschema.Draft202012Validator(schema).validate(document)
+    assert tables.validate_document(document) == []
+    assert document["schema_version"] == tables.SCHEMA_VERSION
+    assert document["ranking"]["criterion"] == "bic"
+    best = document["models"][0]
+    assert best["terms"] == list(run["shortlist"].terms(0))
+    assert best["scores"]["cv_mse"] is None  # NaN becomes null
+    assert best["coefficients"][0]["coefficient"] == "intercept"
+    assert {c["name"] for c in best["checks"]} >= {"reset", "breusch_pagan", "cooks_distance"}
+    assert document["stability"]["replicates"] == 4
+    assert len(document["cautions"]) == 4
+
+
+@pytest.mark.parametrize("breakage", [
+    lambda d: d.pop("models"),
+    lambda d: d.__setitem__("schema_version", "0.9"),
+    lambda d: d["models"][0].__setitem__("k", "three"),
+    lambda d: d["models"][0]["scores"].__setitem__("aic", "low"),
+    lambda d: d["ranking"].__setitem__("criterion", "aik"),
+    lambda d: d.__setitem__("extra_key", 1),
+    lambda d: d["models"][0].__setitem__("position", 0),
+    lambda d: d.__setitem__("stability", {"replicates": 3}),
+    lambda d: d.__setitem__("cautions", []),
+])
+def test_own_validator_agrees_with_jsonschema_on_broken_documents(run, breakage):
+    document = json.loads(run["paths"]["shortlist_json"].read_text(encoding="utf-8"))
+    breakage(document)
+    schema = tables.load_schema()
+    assert not jsonschema.Draft202012Validator(schema).is_valid(document)
+    problems = tables.validate_document(document)
+    assert problems
+    with pytest.raises(InputError, match="schema"):
+        tables.check_document(document)
+
+
+def test_html_is_self_contained_and_escapes_user_strings(run):
+    page = run["paths"]["report_html"].read_text(encoding="utf-8")
+    assert "<script" not in page.lower()
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page
+    assert "http://" not in page and "https://" not in page
+    assert not re.search(r"""(src|href)\s*=\s*["'](?!#|data:image/png;base64,)""", page)
+    # criterion-by-size and support charts, plus a residual panel and a term panel per model
+    assert page.count("data:image/png;base64,") >= 2 + 2 * len(run["shortlist"].fits)
+    for heading in ("What was asked", "Candidate terms", "How the searches went", "The shortlist",
+                    "Does the choice survive resampling?", "Before you rely on these models"):
+        assert heading in page
+    assert "optimistic" in page and "not causation" in page.lower()
+    assert "local professional standards" in page
+    assert "[cultivar = Ruby]" in page
+
+
+def test_html_without_checks_or_stability_still_renders(run):
+    page = report_html.render_html(shortlist=run["shortlist"])
+    assert "<script" not in page.lower()
+    assert "assumption checks of this model were not run" in page
+    assert "Does the choice survive resampling?" not in page
+
+
+def test_criterion_by_size_plots_the_best_of_each_size(run):
+    short = run["shortlist"]
+    figure = plots.criterion_by_size(short)
+    line = [ln for ln in figure.axes[0].get_lines() if ln.get_marker() == "o"][0]
+    expected = short.scored.groupby("n_terms")["bic"].min()
+    np.testing.assert_allclose(line.get_xdata(), expected.index.to_numpy())
+    np.testing.assert_allclose(line.get_ydata(), expected.to_numpy())
+
+
+def test_every_figure_draws(run):
+    d = run["diagnoses"][0]
+    short = run["shortlist"]
+    figures = [plots.criterion_by_size(short), plots.variable_support(short), plots.residuals_vs_fitted(d),
+               plots.normal_qq(d), plots.scale_location(d), plots.cooks_distance(d), plots.residual_panel(d),
+               plots.residuals_vs_terms(d)]
+    for figure in figures:
+        assert figure is not None and figure.axes
+        assert plots.to_png_base64(figure).startswith("iVBOR")  # PNG signature in base64
+    bars = plots.variable_support(short).axes[0].patches
+    assert sorted(b.get_width() for b in bars) == pytest.approx(sorted(short.variable_support["support"]))
+
+
+def test_text_summary(run):
+    summary = text.summary(shortlist=run["shortlist"], settings=run["settings"], founds=[run["found"]],
+                           diagnoses=run["diagnoses"], paths=run["paths"])
+    assert "yield_kg_m2" in summary
+    assert "Ranked by BIC" in summary
+    assert run["shortlist"].fits[0].equation in summary
+    assert "optimistic" in summary and "not causation" in summary
+    assert str(run["paths"]["report_html"]) in summary
+    assert "linearity" in summary
+
+
+def test_outputs_replace_older_files(run, tmp_path):
+    old = tmp_path / "shortlist.csv"
+    old.write_text("stale", encoding="utf-8")
+    paths = report.write_outputs(tmp_path, settings={}, candidates=run["candidates"], founds=[],
+                                 shortlist=run["shortlist"], diagnoses=[])
+    assert paths["shortlist_csv"].read_text(encoding="utf-8").startswith("position,terms")
+    assert sorted(os.listdir(tmp_path)) == ["report.html", "shortlist.csv", "shortlist.json"]
