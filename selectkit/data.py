@@ -317,7 +317,8 @@ def read_table(source, *, encoding: str | None = None, **unknown) -> tuple[pd.Da
     _refuse_unknown(unknown, _READ_OPTIONS, "read_table")
     if isinstance(source, pd.DataFrame):
         if encoding is not None:
-            raise OptionError("encoding= applies to CSV files only; the source here is a DataFrame — leave encoding out")
+            raise OptionError("encoding= applies to CSV files only; the source here is a DataFrame — "
+                              "leave encoding out")
         return _read_frame(source)
     if not isinstance(source, (str, os.PathLike)):
         raise InputError(
@@ -1045,7 +1046,8 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
 
     # all-missing predictors
     for name in list(pool):
-        count_missing = int(np.isnan(values[name]).sum()) if kinds[name] == "numeric" else int(values[name].isna().sum())
+        v = values[name]
+        count_missing = int(np.isnan(v).sum()) if kinds[name] == "numeric" else int(v.isna().sum())
         if count_missing == n_read:
             if name in forced:
                 raise InputError(f"forced column '{name}' has no values (all {n_read} rows are missing); "

@@ -97,6 +97,40 @@ def test_tab_pipe_and_comma_files(tmp_path, delimiter):
     pd.testing.assert_frame_equal(got, pd.read_csv(path, sep=delimiter))
 
 
+@settings(max_examples=25, deadline=None)
+@given(st.integers(0, 2**32 - 1), st.sampled_from([(",", "."), (";", ","), (";", "."), ("\t", "."), ("\t", ","),
+                                                   ("|", ".")]), st.booleans())
+def test_sniffing_round_trip(tmp_path_factory, seed, style, bom):
+    # reference: the file is written by pandas' own writer with the delimiter and decimal mark given
+    delimiter, decimal = style
+    rng = np.random.default_rng(seed)
+    n = int(rng.integers(2, 30))
+    frame = pd.DataFrame({
+        "yield_kg_m2": rng.normal(40, 5, n).round(3),
+        "co2_ppm": rng.integers(400, 1200, n),
+        "humidity_deficit_kpa": rng.uniform(0.2, 1.5, n).round(4),
+        "cultivar": rng.choice(["Roma", "Ailsa Craig", "Cœur de bœuf"], n),
+    })
+    path = tmp_path_factory.mktemp("sniff") / "bays.csv"
+    frame.to_csv(path, sep=delimiter, decimal=decimal, index=False, encoding="utf-8-sig" if bom else "utf-8")
+    got, report = read_table(path)
+    assert report.delimiter == delimiter
+    if delimiter != ",":
+        assert report.decimal == decimal
+    pd.testing.assert_frame_equal(got, frame, check_dtype=False)
+
+
+def test_nothing_is_printed(capsys, tmp_path):
+    path = write_text(tmp_path / "latin.csv", "yield_kg_m2;co2_ppm;cultivar\n40,1;800;Rosé\n42,0;;Roma\n"
+                                              "43,5;950;Roma\n44,0;990;Roma\n45,1;1010;Rosé\n46;1100;Roma\n",
+                      encoding="latin-1")
+    data = prepare(path, response="yield_kg_m2", missing="drop")
+    assert data.n == 5 and data.frame["cultivar"].cat.categories.tolist() == ["Roma", "Rosé"]
+    assert [n.kind for n in data.report.notes].count("warning") == 1  # the Latin-1 fallback
+    captured = capsys.readouterr()
+    assert captured.out == "" and captured.err == ""
+
+
 def test_utf8_file_with_byte_order_mark(tmp_path):
     path = tmp_path / "bom.csv"
     path.write_bytes(b"\xef\xbb\xbf" + "yield_kg_m2,cultivar\n40.1,Montfavet\n42.0,Cœur de bœuf\n".encode())
