@@ -949,9 +949,14 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
        categoricals get sorted levels with the **most frequent level first as
        the reference** (ties: the first in sort order), and levels with a
        single row are noted (their indicator fits that row exactly);
-    6. drop exact duplicates and exact linear combinations (see
-       :data:`COLLINEARITY_TOLERANCE`), keeping the first column in order
-       (forced ones count as first);
+    6. drop exact duplicates and exact linear combinations of numeric columns
+       (see :data:`COLLINEARITY_TOLERANCE`), keeping the first column in order
+       (forced ones count as first).  Categorical blocks are checked before the
+       numeric columns, since a block cannot be dropped in part: a categorical
+       grouping the rows exactly as an earlier one is dropped, a numeric column
+       that is a function of a categorical's levels (e.g. a numeric code of
+       the cultivar) is dropped, and a categorical partly determined by others
+       is only warned about;
     7. check that there are more rows than coefficients (:func:`check_enough_rows`).
 
     Parameters
