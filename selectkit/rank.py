@@ -560,6 +560,24 @@ def rank(
     ----------
     Burnham, K. P. and Anderson, D. R. (2002). Model Selection and Multimodel
     Inference, 2nd ed. Springer.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from selectkit.moments import compute_moments
+    >>> from selectkit.search import Found
+    >>> from tests.factories import make_candidates
+    >>> rng = np.random.default_rng(0)
+    >>> X = rng.normal(size=(50, 2)); y = 1 + 2 * X[:, 0] + rng.normal(size=50)
+    >>> cands = make_candidates(X, y, names=["light", "noise"])
+    >>> def rss(cols):
+    ...     design = np.column_stack([np.ones(50)] + [X[:, c] for c in cols])
+    ...     return float(np.sum((y - design @ np.linalg.lstsq(design, y, rcond=None)[0]) ** 2))
+    >>> subsets = [(), (0,), (1,), (0, 1)]
+    >>> found = Found("listed", subsets, [rss(s) for s in subsets], [1 + len(s) for s in subsets], 50)
+    >>> short = rank([found], cands, compute_moments(X, y), scores=False)
+    >>> short.terms(0), short.criterion
+    (('light',), 'bic')
     """
     if isinstance(size, bool) or not isinstance(size, (int, np.integer)) or size < 1:
         raise OptionError(f"size must be a whole number of models ≥ 1 (got {size!r})")

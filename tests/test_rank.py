@@ -353,3 +353,30 @@ def test_stability_ranks_replicates_by_aicc_when_asked_for_a_cross_validated_cri
     assert any("AICc" in note for note in result.notes)
     with pytest.raises(OptionError, match="bic"):
         stability(strong, brute_force_runner, n_boot=3, criterion="bicc")
+
+
+# --------------------------------------------------------------------------- determinism
+
+
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+
+@settings(max_examples=15, deadline=None)
+@given(order_seed=st.integers(0, 10_000), split=st.integers(1, 15))
+def test_ranking_does_not_depend_on_the_order_or_split_of_search_results(simple, order_seed, split):
+    cands, moments = simple
+    full = brute_force(cands)
+    reference = rank([full], cands, moments, criterion="aicc", scores=False)
+    order = np.random.default_rng(order_seed).permutation(len(full))
+    first, second = order[:split], order[split:]
+
+    def part(name, rows):
+        return Found(method=name, subsets=[full.subsets[i] for i in rows], rss=full.rss[rows], k=full.k[rows],
+                     n=full.n)
+
+    founds = [part("a", first)] + ([part("b", second)] if len(second) else [])
+    shuffled = rank(founds, cands, moments, criterion="aicc", scores=False)
+    assert shuffled.all_subsets == reference.all_subsets
+    np.testing.assert_allclose(shuffled.scored["model_weight"], reference.scored["model_weight"])
+    pd.testing.assert_frame_equal(shuffled.variable_support, reference.variable_support)

@@ -130,6 +130,9 @@ def _candidate_section(candidates) -> str:
              f"refused, with the reason. A model holds at most one form of each variable. "
              f"Response modelled as <b>{_e(scale)}</b>.</p>")
     notes = "".join(f"<p class=\"note\">{_e(n)}</p>" for n in getattr(candidates, "notes", ()))
+    if len(frame) > 25:
+        return (intro + f"<details><summary>Show all {len(frame)} rows (kept terms, then refused forms)</summary>"
+                + _table(frame) + "</details>" + notes)
     return intro + _table(frame) + notes
 
 
@@ -150,6 +153,15 @@ def _search_section(founds, shortlist) -> str:
     return (_table(pd.DataFrame(rows))
             + f"<p>{len(shortlist.scored)} distinct models were pooled from these searches; a model found by "
               "several searches appears once and lists them all.</p>")
+
+
+def _support_note(founds, shortlist) -> str:
+    text = (f"Support is the summed {shortlist.weight_criterion.upper()} weight of the {len(shortlist.scored)} "
+            "pooled models that hold the variable in any form; it is relative to that list.")
+    if founds and not any(f.exact for f in founds):
+        text += (" No search here was exact, so the list is the path of a heuristic search rather than every "
+                 "competitive subset, and the support leans on the few models it visited.")
+    return f'<p class="note">{_e(text)}</p>'
 
 
 def _criterion_text(shortlist) -> str:
@@ -273,7 +285,7 @@ def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnos
         ("support", "How strongly each variable is supported",
          _figure(plots.variable_support(shortlist),
                  "Summed weight of the pooled models that hold each variable (any form).")
-         + _table(shortlist.variable_support)),
+         + _support_note(founds, shortlist) + _table(shortlist.variable_support)),
         ("shortlist", "The shortlist", _shortlist_section(shortlist)),
     ]
     body = [_section(a, t, b) for a, t, b in sections]
