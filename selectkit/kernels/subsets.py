@@ -335,7 +335,7 @@ def _family_count(terms, start, stop, t_fam, scratch):
 
 @njit(cache=True)
 def _small_quadratic(G, b, w):
-    """bᵀ G⁻¹ b for a small SPD matrix G (w × w) by Cholesky; inf when not SPD."""
+    """bᵀ G⁻¹ b for a small SPD matrix G (w × w) by Cholesky; 0 when not SPD."""
     Lw = np.zeros((w, w))
     for j in range(w):
         for l in range(j):
@@ -347,7 +347,7 @@ def _small_quadratic(G, b, w):
         for l in range(j):
             d -= Lw[j, l] * Lw[j, l]
         if d <= 0.0:
-            return np.inf
+            return 0.0  # not positive definite numerically: claim no rise (a safe bound)
         Lw[j, j] = np.sqrt(d)
     v = np.empty(w)
     total = 0.0
@@ -361,10 +361,45 @@ def _small_quadratic(G, b, w):
 
 
 @njit(cache=True)
+def _drop_increase(W, L, c, fw, q, idx, nidx, G, bvec):
+    """Rise in rss when the free columns ``idx`` (local to the free block) are dropped.
+
+    With W = L_ff⁻¹ (lower), β_B = (Wᵀ z)_B and (G⁻¹)_BB = (WᵀW)_BB, the rise is
+    β_Bᵀ [(G⁻¹)_BB]⁻¹ β_B (the extra-sum-of-squares of the block).
+    """
+    for u in range(nidx):
+        a = idx[u]
+        s = 0.0
+        for l in range(a, q):
+            s += W[l, a] * L[c, fw + l]
+        bvec[u] = s
+        for v in range(u + 1):
+            b = idx[v]
+            start = a if a > b else b
+            s2 = 0.0
+            for l in range(start, q):
+                s2 += W[l, a] * W[l, b]
+            G[u, v] = s2
+            G[v, u] = s2
+    if nidx == 1:
+        return bvec[0] * bvec[0] / G[0, 0]
+    return _small_quadratic(G, bvec, nidx)
+
+
+@njit(cache=True)
+def _order_before(a, b, tier, fam_inc, inc):
+    if tier[a] != tier[b]:
+        return tier[a] < tier[b]
+    if fam_inc[a] != fam_inc[b]:
+        return fam_inc[a] > fam_inc[b]
+    return inc[a] > inc[b]
+
+
+@njit(cache=True)
 def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, tol,
                      init_thr, thr, best_rss, best_mask, best_count,
                      st_terms, st_len, st_k, st_bound, st_root, top_arr,
-                     counts, pruned_count, node_budget):
+                     counts, pruned_count, node_budget, family_tiers):
     """Run up to ``node_budget`` nodes of the depth-first best-subset search.
 
     The tree is the dropping-columns tree of Gatu & Kontoghiorghes (2006) over
@@ -401,10 +436,13 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
     order = np.zeros(n_terms, dtype=np.int64)
     scratch = np.zeros(n_terms + 64, dtype=np.int64)
     W = np.zeros((total_cols, total_cols))
-    G = np.zeros((64, 64))
-    bvec = np.zeros(64)
+    G = np.zeros((total_cols + 1, total_cols + 1))
+    bvec = np.zeros(total_cols + 1)
     terms = np.zeros(n_terms, dtype=np.int64)
     child = np.zeros(n_terms, dtype=np.int64)
+    idx = np.zeros(total_cols + 1, dtype=np.int64)
+    fam_inc = np.zeros(n_terms)
+    tier = np.zeros(n_terms, dtype=np.int64)
     nodes = 0
     while top_arr[0] >= 0 and nodes < node_budget:
         nodes += 1
@@ -485,6 +523,7 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
         # exact increase of rss when dropping each free term
         for i in range(k, n_s):
             inc[i] = 0.0
+            fam_inc[i] = 0.0
         if not any_skipped and n_s - k > 1:
             q = c - fw
             # W = inverse of the trailing lower block L[fw:c, fw:c]
@@ -498,33 +537,48 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
                     for l in range(jj, ii):
                         s += L[fw + ii, fw + l] * W[l, jj]
                     W[ii, jj] = -s / L[fw + ii, fw + ii]
-            for i in range(k, n_s - 1):
-                a0 = col_start[i] - fw
-                w = col_start[i + 1] - col_start[i]
-                # beta_B = W[:, B]^T z_f ; (G^-1)_BB = W[:, B]^T W[:, B]
-                for u in range(w):
-                    s = 0.0
-                    for l in range(a0 + u, q):
-                        s += W[l, a0 + u] * L[c, fw + l]
-                    bvec[u] = s
-                    for v in range(u + 1):
-                        s2 = 0.0
-                        for l in range(a0 + (u if u > v else v), q):
-                            s2 += W[l, a0 + u] * W[l, a0 + v]
-                        G[u, v] = s2
-                        G[v, u] = s2
-                if w == 1:
-                    inc[i] = bvec[0] * bvec[0] / G[0, 0]
-                else:
-                    inc[i] = _small_quadratic(G, bvec, w)
-        # free positions sorted by decreasing increase (stable)
+            for i in range(k, n_s):
+                nidx = 0
+                for j in range(col_start[i], col_start[i + 1]):
+                    idx[nidx] = j - fw
+                    nidx += 1
+                inc[i] = _drop_increase(W, L, c, fw, q, idx, nidx, G, bvec)
+            if family_tiers:
+                # increase when dropping every form of a variable at once
+                for i in range(k, n_s):
+                    fam_inc[i] = -1.0
+                for i in range(k, n_s):
+                    if fam_inc[i] >= 0.0:
+                        continue
+                    f = t_fam[terms[i]]
+                    nidx = 0
+                    members = 0
+                    for p in range(k, n_s):
+                        if t_fam[terms[p]] == f:
+                            members += 1
+                            for j in range(col_start[p], col_start[p + 1]):
+                                idx[nidx] = j - fw
+                                nidx += 1
+                    value = inc[i] if members == 1 else _drop_increase(W, L, c, fw, q, idx, nidx, G, bvec)
+                    for p in range(k, n_s):
+                        if t_fam[terms[p]] == f:
+                            fam_inc[p] = value
         n_free = n_s - k
+        # tier of a free term: how many forms of its variable rank above it
+        for i in range(k, n_s):
+            tier[i] = 0
+            if family_tiers:
+                for p in range(k, n_s):
+                    if p != i and t_fam[terms[p]] == t_fam[terms[i]] and (
+                            inc[p] > inc[i] or (inc[p] == inc[i] and p < i)):
+                        tier[i] += 1
+        # free positions sorted by (tier, decreasing variable increase, decreasing increase), stable
         for i in range(n_free):
             order[i] = k + i
         for i in range(1, n_free):
             v = order[i]
             j = i - 1
-            while j >= 0 and inc[order[j]] < inc[v]:
+            while j >= 0 and _order_before(v, order[j], tier, fam_inc, inc):
                 order[j + 1] = order[j]
                 j -= 1
             order[j + 1] = v

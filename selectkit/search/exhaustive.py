@@ -439,7 +439,7 @@ def run_unit(unit: WorkUnit) -> dict:
             problem.A, problem.t_cols, problem.t_width, problem.t_fam, problem.t_req, problem.t_bit,
             problem.max_size, n_best, PIVOT_TOLERANCE, init_thr, thr, best_rss, best_mask, best_count,
             st_terms, st_len, st_k, st_bound, st_root, top, counts, pruned,
-            _NODES_PER_SLICE if deadline is not None else 1 << 62,
+            _NODES_PER_SLICE if deadline is not None else 1 << 62, p.get("family_tiers", True),
         )
         if complete:
             break
