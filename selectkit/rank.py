@@ -294,7 +294,11 @@ def _joined(names: Sequence[str]) -> str:
 
 def _pool(founds, n_terms_total: int):
     """Merge Founds: one entry per distinct subset, keeping the smallest rss."""
-    if isinstance(founds, Mapping) or not isinstance(founds, Sequence):
+    from .search._found import Found
+
+    if isinstance(founds, Found):
+        founds = [founds]
+    elif isinstance(founds, Mapping) or not isinstance(founds, Sequence):
         founds = list(founds.values()) if isinstance(founds, Mapping) else list(founds)
     if not founds:
         raise SearchError("no search results to rank; run at least one search method first")
@@ -806,8 +810,10 @@ def _replicate(payload):
     moments = compute_moments(sample.matrix, sample.y, sample.weights)
     try:
         found = _call_runner(runner, sample, moments)
-    except SelectkitError as err:
-        return None, str(err)
+    except (SelectkitError, np.linalg.LinAlgError) as err:
+        # A resample can make a model singular (a rare level drawn zero times): the replicate
+        # is counted as failed and reported, never silently dropped.
+        return None, f"{type(err).__name__}: {err}"
     if len(found) == 0:
         return None, "the search kept no model"
     names = [_term_names(candidates, s) for s in found.subsets]

@@ -174,3 +174,15 @@ def test_outputs_replace_older_files(run, tmp_path):
                                  shortlist=run["shortlist"], diagnoses=[])
     assert paths["shortlist_csv"].read_text(encoding="utf-8").startswith("position,terms")
     assert sorted(os.listdir(tmp_path)) == ["report.html", "shortlist.csv", "shortlist.json"]
+
+
+def test_large_data_are_thinned_in_the_plots():
+    rng = np.random.default_rng(9)
+    n = 12_000
+    X = rng.normal(size=(n, 2))
+    d = diagnose(make_candidates(X, X @ [1.0, -1.0] + rng.normal(size=n)), (0, 1))
+    figure = plots.residuals_vs_fitted(d)
+    points = figure.axes[0].collections[0].get_offsets()
+    assert len(points) <= plots.MAX_POINTS
+    np.testing.assert_allclose(points[:, 0], d.fitted[:: int(np.ceil(n / plots.MAX_POINTS))])
+    assert any("row shown" in t.get_text() for t in figure.axes[0].texts)

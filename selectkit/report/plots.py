@@ -113,16 +113,41 @@ def variable_support(shortlist, *, top=25):
     return figure
 
 
+#: Most points drawn in one scatter; larger data are thinned to every k-th row (deterministic).
+MAX_POINTS = 5000
+#: Most points the lowess line is computed from (its cost grows with n²).
+MAX_SMOOTH_POINTS = 1500
+
+
+def _thin(count: int, cap: int) -> np.ndarray:
+    """Row positions kept when at most ``cap`` of ``count`` points are drawn: every k-th row."""
+    if count <= cap:
+        return np.arange(count)
+    return np.arange(0, count, int(np.ceil(count / cap)))
+
+
+def _scatter(axes, x, y, **style):
+    keep = _thin(len(x), MAX_POINTS)
+    axes.scatter(np.asarray(x)[keep], np.asarray(y)[keep], s=10, color=_INK, alpha=0.7, **style)
+    if len(keep) < len(x):
+        axes.text(0.99, 0.01, f"every {int(np.ceil(len(x) / MAX_POINTS))}th row shown", ha="right",
+                  va="bottom", fontsize=7, color=_MUTED, transform=axes.transAxes)
+
+
 def _lowess_line(axes, x, y):
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
     if len(x) >= 10 and np.ptp(x) > 0:
         from statsmodels.nonparametric.smoothers_lowess import lowess
 
-        smooth = lowess(y, x, frac=0.6, return_sorted=True)
+        order = np.argsort(x, kind="stable")
+        keep = order[_thin(len(x), MAX_SMOOTH_POINTS)]
+        smooth = lowess(y[keep], x[keep], frac=0.6, return_sorted=True)
         axes.plot(smooth[:, 0], smooth[:, 1], color=_ACCENT, linewidth=1.2)
 
 
 def _residuals_vs_fitted(axes, diagnosis):
-    axes.scatter(diagnosis.fitted, diagnosis.residuals, s=10, color=_INK, alpha=0.7)
+    _scatter(axes, diagnosis.fitted, diagnosis.residuals)
     axes.axhline(0.0, color=_MUTED, linewidth=0.8)
     _lowess_line(axes, diagnosis.fitted, diagnosis.residuals)
     axes.set_xlabel("fitted value")
@@ -134,7 +159,7 @@ def _normal_qq(axes, diagnosis):
     r = np.sort(diagnosis.studentized[np.isfinite(diagnosis.studentized)])
     n = r.shape[0]
     theoretical = stats.norm.ppf((np.arange(1, n + 1) - 0.375) / (n + 0.25))  # Blom (1958) positions
-    axes.scatter(theoretical, r, s=10, color=_INK, alpha=0.7)
+    _scatter(axes, theoretical, r)
     if n:
         lim = [min(theoretical[0], r[0]), max(theoretical[-1], r[-1])]
         axes.plot(lim, lim, color=_MUTED, linewidth=0.8)
@@ -146,7 +171,7 @@ def _normal_qq(axes, diagnosis):
 def _scale_location(axes, diagnosis):
     root = np.sqrt(np.abs(diagnosis.studentized))
     keep = np.isfinite(root)
-    axes.scatter(diagnosis.fitted[keep], root[keep], s=10, color=_INK, alpha=0.7)
+    _scatter(axes, diagnosis.fitted[keep], root[keep])
     _lowess_line(axes, diagnosis.fitted[keep], root[keep])
     axes.set_xlabel("fitted value")
     axes.set_ylabel("√|studentised residual|")
@@ -219,7 +244,7 @@ def residuals_vs_terms(diagnosis, *, columns=3):
     axes = np.atleast_1d(figure.subplots(nrows, ncols)).reshape(-1)
     for ax, name in zip(axes, frame.columns):
         x = frame[name].to_numpy(dtype=float)
-        ax.scatter(x, diagnosis.residuals, s=8, color=_INK, alpha=0.7)
+        _scatter(ax, x, diagnosis.residuals)
         ax.axhline(0.0, color=_MUTED, linewidth=0.8)
         _lowess_line(ax, x, diagnosis.residuals)
         ax.set_xlabel(str(name), fontsize=8)
