@@ -354,6 +354,7 @@ def _normalise_scores(scores, subsets) -> tuple[pd.DataFrame, list[str]]:
     if key_column is not None:
         keys = [tuple(sorted(int(i) for i in s)) for s in frame[key_column]]
         frame = frame.set_axis(pd.Index(keys, tupleize_cols=False), axis=0)
+        frame = frame[~frame.index.duplicated(keep="first")]
         frame = frame.reindex(pd.Index(list(subsets), tupleize_cols=False))
     elif len(frame) and isinstance(frame.index[0], tuple):
         frame = frame.reindex(pd.Index(list(subsets), tupleize_cols=False))
