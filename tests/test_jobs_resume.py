@@ -9,6 +9,7 @@ seeded generator, has been committed.
 from __future__ import annotations
 
 import shutil
+from pathlib import Path
 import signal
 import subprocess
 import sys
@@ -142,3 +143,121 @@ def test_moved_output_folder_resumes_from_its_store(tmp_path):
 
     again = run_fake(replace(spec, time_budget=None))
     assert again.complete and again.units_resumed == first.units_done
+
+
+# --------------------------------------------------------------------------- the real searches
+# The same kill-and-resume check with the real pipeline (intake, candidates, exact
+# best subset and stepwise, ranking).  The HTML report is left out to keep the
+# test quick (its figures take seconds each); the shortlist CSV is written by
+# the real writer, ``selectkit.report.tables.write_csv``.
+from selectkit.jobs.runner import _ApiEngine, _run  # noqa: E402
+
+REAL_JOB = """\
+[data]
+table = "bays.csv"
+response = "yield_kg_m2"
+
+[forms]
+offer = ["identity", "log", "sqrt"]
+
+[search]
+methods = ["exhaustive", "both"]
+
+[ranking]
+shortlist_size = 3
+folds = 3
+
+[run]
+seed = 5
+output = "results"
+"""
+
+
+class TablesEngine(_ApiEngine):
+    """The real seams; ``write`` writes only the shortlist CSV (no HTML report)."""
+
+    def write(self, result, folder):
+        from selectkit.report import tables
+
+        return {"shortlist_csv": tables.write_csv(Path(folder) / "shortlist.csv", result.ranking)}
+
+
+class SlowRealEngine(TablesEngine):
+    """Real searches, with a pause after each committed unit so that the child can be killed part-way."""
+
+    def run(self, setup, *, on_unit=None, **options):
+        def slowly(key, result):
+            on_unit(key, result)
+            time.sleep(0.2)
+
+        return super().run(setup, on_unit=slowly if on_unit is not None else None, **options)
+
+
+CHILD_REAL = ("import sys; from selectkit.jobs import load_job; from selectkit.jobs.runner import _run; "
+              "from tests.test_jobs_resume import SlowRealEngine; "
+              "_run(load_job(sys.argv[1]), resume=True, progress=False, engine=SlowRealEngine())")
+
+
+def write_positive_table(path: Path, seed: int = 1, n: int = 200) -> Path:
+    """Invented bay measurements, all positive so that log and sqrt forms exist."""
+    import pandas as pd
+
+    rng = np.random.default_rng(seed)
+    X = rng.uniform(1.0, 10.0, size=(n, 8))
+    y = 3.0 + 2.0 * np.log(X[:, 0]) - 0.8 * np.sqrt(X[:, 2]) + 0.3 * X[:, 5] + rng.normal(scale=0.5, size=n)
+    frame = pd.DataFrame(X, columns=[f"x{j}" for j in range(8)])
+    frame.insert(0, "yield_kg_m2", y)
+    frame.to_csv(path, index=False, float_format="%.8f")
+    return path
+
+
+@pytest.fixture(scope="module")
+def real_straight(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("real-straight")
+    write_positive_table(folder / "bays.csv")
+    (folder / "job.toml").write_text(REAL_JOB)
+    outcome = _run(load_job(folder / "job.toml"), resume=True, progress=False, engine=TablesEngine())
+    assert outcome.complete and outcome.units_total >= 5
+    return outcome
+
+
+def test_real_search_job_matches_the_notebook_face(real_straight, tmp_path):
+    """The job's shortlist equals selectkit.search with the same options (one code path, two faces)."""
+    import pandas as pd
+
+    from selectkit.api import search  # (selectkit.search is shadowed by the subpackage once it is imported)
+
+    spec = load_job(real_straight.store.parent.parent / "job.toml")
+    result = search(str(spec.table), **spec.search_options())
+    from selectkit.report import tables
+
+    expected = tables.write_csv(tmp_path / "shortlist.csv", result.ranking).read_bytes()
+    assert real_straight.outputs["shortlist_csv"].read_bytes() == expected
+    frame = pd.read_csv(real_straight.outputs["shortlist_csv"])
+    # The generating model (invented data: log(x0), sqrt(x2), x5) is shortlisted.
+    assert "log(x0) + sqrt(x2) + x5" in set(frame["terms"])
+
+
+REAL_KILL_POINTS = sorted(np.random.default_rng(7).choice(np.arange(1, 7), size=2, replace=False).tolist())
+
+
+@pytest.mark.parametrize("kill_after", REAL_KILL_POINTS)
+def test_real_search_killed_and_resumed_gives_the_same_shortlist(tmp_path, real_straight, kill_after):
+    write_positive_table(tmp_path / "bays.csv")
+    (tmp_path / "job.toml").write_text(REAL_JOB)
+    child = subprocess.Popen([sys.executable, "-c", CHILD_REAL, str(tmp_path / "job.toml")], cwd=ROOT,
+                             stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+    try:
+        _wait_for_units(tmp_path / "results", kill_after, child, timeout=120)
+        child.send_signal(signal.SIGKILL)
+        child.wait(timeout=30)
+    finally:
+        if child.poll() is None:
+            child.kill()
+            child.wait()
+    killed = store_status(tmp_path / "results")
+    assert killed.state == "interrupted" and kill_after <= killed.units_done < killed.units_total
+    resumed = _run(load_job(tmp_path / "job.toml"), resume=True, progress=False, engine=TablesEngine())
+    assert resumed.complete and resumed.units_resumed == killed.units_done
+    assert resumed.models_evaluated == real_straight.models_evaluated
+    assert resumed.outputs["shortlist_csv"].read_bytes() == real_straight.outputs["shortlist_csv"].read_bytes()
