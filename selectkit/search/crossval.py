@@ -201,6 +201,22 @@ def _columns(candidates, subset):
     return [c for i in subset for c in candidates.terms[i].columns]
 
 
+def _terms_only(candidates):
+    """A copy of ``candidates`` without the rows (for work units that only need terms and moments)."""
+    from dataclasses import fields, replace
+
+    changes = {}
+    for f in fields(candidates):
+        value = getattr(candidates, f.name)
+        if f.name == "matrix":
+            changes[f.name] = np.empty((0, value.shape[1]))
+        elif f.name == "y":
+            changes[f.name] = np.empty(0)
+        elif f.name == "dataset" or isinstance(value, np.ndarray):
+            changes[f.name] = None
+    return replace(candidates, **changes)
+
+
 def _rows_moments(candidates, rows):
     w = None if candidates.weights is None else candidates.weights[rows]
     return compute_moments(candidates.matrix[rows], candidates.y[rows], w)
@@ -413,11 +429,15 @@ def _inner_search(candidates, moments, options: CrossvalOptions) -> Found:
                 f"{len(candidates.terms)} candidate terms exceed the exact-search limit of {options.exact_limit}; "
                 "screen them first (selectkit.search.screen) or use method='stepwise'"
             )
-        from .exhaustive import exhaustive_search
+        from . import exhaustive
 
-        return exhaustive_search(candidates, moments, n_best_per_size=1, max_size=options.max_size,
-                                 forced=options.forced, forbidden=options.forbidden, hierarchy=options.hierarchy,
-                                 time_budget=options.time_budget, n_jobs=1)
+        # The fold is already a work unit: run the exact search as one unit (split_depth=0), through the
+        # method contract of selectkit.search.exhaustive.
+        inner = exhaustive.ExhaustiveOptions(n_best_per_size=1, max_size=options.max_size, forced=options.forced,
+                                             forbidden=options.forbidden, hierarchy=options.hierarchy,
+                                             time_budget=options.time_budget, split_depth=0)
+        units = exhaustive.plan(candidates, moments, inner)
+        return exhaustive.merge(candidates, moments, inner, [exhaustive.run_unit(u) for u in units])
     from .stepwise import stepwise_search
 
     return stepwise_search(candidates, moments, direction="forward", criterion="f_test",
@@ -456,10 +476,11 @@ def plan(candidates, moments, options: CrossvalOptions) -> list[WorkUnit]:
     if moments is None:
         moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
     fold_list = make_folds(options.folds, int(candidates.y.shape[0]), options.seed)
-    units = [WorkUnit("crossval/all-rows", ("all", candidates, moments, None, options))]
+    light = _terms_only(candidates)
+    units = [WorkUnit("crossval/all-rows", ("all", light, moments, None, options))]
     for fold, (train, test) in zip(fold_list, _fold_moments(candidates, moments, fold_list)):
         units.append(WorkUnit(f"crossval/fold-r{fold.repeat:02d}-{fold.index:03d}",
-                              ("fold", candidates, train, test, options, fold.repeat)))
+                              ("fold", light, train, test, options, fold.repeat)))
     return units
 
 
