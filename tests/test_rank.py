@@ -362,7 +362,7 @@ from hypothesis import given, settings  # noqa: E402
 from hypothesis import strategies as st  # noqa: E402
 
 
-@settings(max_examples=15, deadline=None)
+@settings(max_examples=10, deadline=None)
 @given(order_seed=st.integers(0, 10_000), split=st.integers(1, 15))
 def test_ranking_does_not_depend_on_the_order_or_split_of_search_results(simple, order_seed, split):
     cands, moments = simple

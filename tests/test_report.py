@@ -151,7 +151,7 @@ def test_every_figure_draws(run):
                plots.residuals_vs_terms(d)]
     for figure in figures:
         assert figure is not None and figure.axes
-        assert plots.to_png_base64(figure).startswith("iVBOR")  # PNG signature in base64
+        assert plots.to_png_base64(figure, dpi=30).startswith("iVBOR")  # PNG signature in base64
     bars = plots.variable_support(short).axes[0].patches
     assert sorted(b.get_width() for b in bars) == pytest.approx(sorted(short.variable_support["support"]))
 
