@@ -380,3 +380,49 @@ def test_ranking_does_not_depend_on_the_order_or_split_of_search_results(simple,
     assert shuffled.all_subsets == reference.all_subsets
     np.testing.assert_allclose(shuffled.scored["model_weight"], reference.scored["model_weight"])
     pd.testing.assert_frame_equal(shuffled.variable_support, reference.variable_support)
+
+
+def test_predict_aim_and_one_standard_error_rule(simple):
+    cands, moments = simple
+    found = brute_force(cands, max_terms=2)
+    short = rank([found], cands, moments, aim="predict", scores=False)
+    assert short.criterion == "aicc" and "n/K = 60/" in short.criterion_reason
+    rng = np.random.default_rng(0)
+    cv = rng.uniform(1.0, 2.0, size=len(found))
+    se = np.full(len(found), 0.2)
+    scores = pd.DataFrame({"subset": list(found.subsets), "cv_mse": cv, "cv_se": se})
+    by_cv = rank([found], cands, moments, criterion="cv_mse", scores=scores)
+    expected = cv - cv.min() <= 0.2  # within one standard error of the best (Breiman et al. 1984)
+    got = by_cv.scored.set_index("term_indices")["comparable_support"]
+    for s, flag in zip(found.subsets, expected):
+        assert bool(got[" ".join(map(str, s))]) == bool(flag)
+
+
+def test_intercept_only_fit_and_negative_intercept():
+    rng = np.random.default_rng(8)
+    y = -5.0 + rng.normal(scale=0.1, size=20)
+    cands = make_candidates(rng.normal(size=(20, 1)), y)
+    fit = fit_model(cands, ())
+    assert fit.terms == () and fit.k == 1
+    assert fit.equation == f"y = −{abs(y.mean()):.4g}"
+    assert fit.coefficients["estimate"].iloc[0] == pytest.approx(y.mean())
+
+
+def flaky_runner(candidates, threshold):
+    """Fails on resamples whose mean response is above the full data's, like a search meeting singular rows."""
+    if candidates.y.mean() > threshold:
+        raise SearchError("every model is rank-deficient on these rows")
+    return brute_force(candidates)
+
+
+def test_failed_replicates_are_counted_and_reported(strong):
+    import functools
+
+    runner = functools.partial(flaky_runner, threshold=float(strong.y.mean()))
+    result = stability(strong, runner, n_boot=10, seed=3)
+    assert 0 < result.failed < 10
+    assert sum(m is None for m in result.replicate_models) == result.failed
+    assert "rank-deficient" in result.notes[0]
+    ok = [m for m in result.replicate_models if m is not None]
+    share = result.variable_share.set_index("variable")["share_selected"]
+    assert share["strong"] == pytest.approx(np.mean([1 in m for m in ok]))
