@@ -422,13 +422,18 @@ class CrossvalOptions:
         object.__setattr__(self, "forbidden", tuple(self.forbidden))
 
 
+def _check_size(candidates, options: CrossvalOptions) -> None:
+    if options.method == "exhaustive" and len(candidates.terms) > options.exact_limit:
+        raise TooManyCandidatesError(
+            f"{len(candidates.terms)} candidate terms exceed the exact-search limit of {options.exact_limit} "
+            "for cross-validated exhaustive search; screen them first (selectkit.search.screen), raise the "
+            "limit, or use method='stepwise'"
+        )
+
+
 def _inner_search(candidates, moments, options: CrossvalOptions) -> Found:
+    _check_size(candidates, options)
     if options.method == "exhaustive":
-        if len(candidates.terms) > options.exact_limit:
-            raise TooManyCandidatesError(
-                f"{len(candidates.terms)} candidate terms exceed the exact-search limit of {options.exact_limit}; "
-                "screen them first (selectkit.search.screen) or use method='stepwise'"
-            )
         from . import exhaustive
 
         # The fold is already a work unit: run the exact search as one unit (split_depth=0), through the
@@ -473,6 +478,7 @@ def _fold_errors(candidates, train, test, options) -> dict:
 
 def plan(candidates, moments, options: CrossvalOptions) -> list[WorkUnit]:
     """Units: the search on all rows (``crossval/all-rows``), then one per fold."""
+    _check_size(candidates, options)
     if moments is None:
         moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
     fold_list = make_folds(options.folds, int(candidates.y.shape[0]), options.seed)

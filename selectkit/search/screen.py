@@ -142,10 +142,18 @@ def _path_entry(candidates, free, forced, method, l1_ratio, n_alphas):
     ratio = 1.0 if method == "lasso" else float(l1_ratio)
     alpha_max = np.abs(Z[:, cols].T @ yc).max() / (Z.shape[0] * ratio)
     alphas = alpha_max * np.logspace(0.0, -3.0, int(n_alphas))
-    if method == "lasso":
-        _, coefs, _ = lasso_path(Z[:, cols], yc, alphas=alphas)
-    else:
-        _, coefs, _ = enet_path(Z[:, cols], yc, l1_ratio=ratio, alphas=alphas)
+    # Only the order of entry is used, which a not fully converged step at the smallest penalties does
+    # not change in practice; scikit-learn's convergence warnings are therefore silenced here.
+    import warnings
+
+    from sklearn.exceptions import ConvergenceWarning
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        if method == "lasso":
+            _, coefs, _ = lasso_path(Z[:, cols], yc, alphas=alphas, max_iter=5000)
+        else:
+            _, coefs, _ = enet_path(Z[:, cols], yc, l1_ratio=ratio, alphas=alphas, max_iter=5000)
     nonzero = np.abs(coefs) > 0
     first = np.where(nonzero.any(axis=1), nonzero.argmax(axis=1), np.inf)
     by_column = dict(zip(cols, first))
