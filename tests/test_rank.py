@@ -426,3 +426,22 @@ def test_failed_replicates_are_counted_and_reported(strong):
     ok = [m for m in result.replicate_models if m is not None]
     share = result.variable_share.set_index("variable")["share_selected"]
     assert share["strong"] == pytest.approx(np.mean([1 in m for m in ok]))
+
+
+def test_mallows_cp_of_hald_cement_data_matches_published_values():
+    # Hald cement data (Woods, Steinour & Starke 1932) as typed in tests/reference/test_hald.py.
+    # Mallows' Cp of every subset, σ̂² from the full model, as tabulated in Draper & Smith,
+    # Applied Regression Analysis, Ch. 15 (values quoted from memory, 2 decimals).
+    from tests.reference.test_hald import X1, X2, X3, X4, Y
+
+    X = np.column_stack([X1, X2, X3, X4]).astype(float)
+    y = np.asarray(Y, dtype=float)
+    cands = make_candidates(X, y, names=["x1", "x2", "x3", "x4"])
+    short = rank([brute_force(cands)], cands, compute_moments(X, y), criterion="cp", size=16, scores=False)
+    cp = short.scored.set_index("terms")["cp"]
+    published = {"x1 + x2": 2.68, "x1 + x2 + x4": 3.02, "x1 + x2 + x3": 3.04, "x1 + x3 + x4": 3.50,
+                 "x1 + x2 + x3 + x4": 5.00, "x1 + x4": 5.50, "x2 + x3 + x4": 7.34, "x3 + x4": 22.37,
+                 "x2 + x3": 62.44, "x4": 138.73, "x1": 202.55, "x3": 315.15}
+    for terms, value in published.items():
+        assert cp[terms] == pytest.approx(value, abs=0.006)
+    assert short.terms(0) == ("x1", "x2")  # the smallest Cp
