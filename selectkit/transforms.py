@@ -314,18 +314,41 @@ class BoxTidwellResult:
     reference: str = "Box, G. E. P. and Tidwell, P. W. (1962), Technometrics 4(4), 531-550"
 
 
-def _weighted_lstsq(A, y, w):
-    """Coefficients and residual sum of squares of a (weighted) least-squares fit."""
-    if w is not None:
-        s = np.sqrt(w)
-        A = A * s[:, None]
-        y = y * s
-    coef, *_ = np.linalg.lstsq(A, y, rcond=None)
-    resid = y - A @ coef
-    return coef, float(resid @ resid), A
+def _centred_fit(columns, y, w):
+    """Slopes, residual sum of squares and (X'WX)⁻¹ of a weighted least-squares fit with an intercept.
+
+    Columns and response are centred at their (weighted) means, so the intercept
+    drops out and only a k×k system is solved (k ≤ 2 here); a few O(n) passes.
+    """
+    if w is None:
+        centred = [c - c.mean() for c in columns]
+        yc = y - y.mean()
+        weighted = centred
+    else:
+        total = w.sum()
+        centred = [c - (w @ c) / total for c in columns]
+        yc = y - (w @ y) / total
+        weighted = [c * w for c in centred]
+    k = len(columns)
+    G = np.array([[weighted[i] @ centred[j] for j in range(k)] for i in range(k)])
+    r = np.array([weighted[i] @ yc for i in range(k)])
+    d = np.sqrt(np.diag(G))
+    if not (np.all(np.isfinite(G)) and np.all(np.isfinite(r))) or np.any(d == 0):
+        return np.full(k, np.nan), math.inf, None
+    Gs = G / np.outer(d, d)
+    coef = np.linalg.lstsq(Gs, r / d, rcond=None)[0] / d
+    resid = yc.copy()
+    for j in range(k):
+        resid -= coef[j] * centred[j]
+    rss = float(resid @ resid) if w is None else float(w @ (resid * resid))
+    try:
+        inverse = np.linalg.inv(Gs) / np.outer(d, d)
+    except np.linalg.LinAlgError:
+        inverse = None
+    return coef, rss, inverse
 
 
-def box_tidwell(x, y, *, weights=None, max_power=3.0, tol=1e-7, max_iter=100):
+def box_tidwell(x, y, *, weights=None, max_power=3.0, tol=1e-7, max_iter=50):
     """The power α of x that best linearises y on x (Box & Tidwell 1962).
 
     Fits y = β₀ + β₁·g(x, α) by least squares in α, with g the Box-Cox form
@@ -369,38 +392,33 @@ def box_tidwell(x, y, *, weights=None, max_power=3.0, tol=1e-7, max_iter=100):
 def _box_tidwell(x, y, w, max_power, tol, max_iter):
     n = x.shape[0]
     logu = np.log(x) - np.log(x).mean()
-    ones = np.ones(n)
 
     # Test of α = 1: t statistic of x·log x added to the straight line.
     u = np.exp(logu)
-    A = np.column_stack([ones, u, u * logu])
-    coef, rss, Aw = _weighted_lstsq(A, y, w)
+    coef, rss, inverse = _centred_fit([u, u * logu], y, w)
     df = n - 3
     statistic, pvalue = math.nan, math.nan
-    if df > 0 and rss > 0:
-        try:
-            cov = rss / df * np.linalg.inv(Aw.T @ Aw)
-            statistic = float(coef[2] / math.sqrt(cov[2, 2]))
-            pvalue = float(2.0 * stats.t.sf(abs(statistic), df))
-        except np.linalg.LinAlgError:
-            pass
+    if df > 0 and 0 < rss < math.inf and inverse is not None and inverse[1, 1] > 0:
+        statistic = float(coef[1] / math.sqrt(rss / df * inverse[1, 1]))
+        pvalue = float(2.0 * stats.t.sf(abs(statistic), df))
 
     def fit(alpha):
         g = logu if alpha == 0 else np.expm1(alpha * logu) / alpha
         if not np.all(np.isfinite(g)):
             return g, math.nan, math.inf
-        coef, rss, _ = _weighted_lstsq(np.column_stack([ones, g]), y, w)
-        return g, coef[1], rss
+        coef, rss, _ = _centred_fit([g], y, w)
+        return g, coef[0], rss
 
     alpha = 1.0
     g, b1, rss = fit(alpha)
-    _, rss0, _ = _weighted_lstsq(ones[:, None], y, w)
+    yc = y - (y.mean() if w is None else (w @ y) / w.sum())
+    rss0 = float(yc @ yc) if w is None else float(w @ (yc * yc))
     if np.ptp(y) == 0 or rss0 <= 0 or rss >= rss0 * (1.0 - 1e-8):
         return BoxTidwellResult(None, False, 0, "y shows no straight-line association with x", statistic, pvalue)
     for it in range(1, max_iter + 1):
         ga = _boxcox_derivative(logu, alpha)
-        coef, _, _ = _weighted_lstsq(np.column_stack([ones, g, ga]), y, w)
-        step = coef[2] / b1
+        coef, _, _ = _centred_fit([g, ga], y, w)
+        step = coef[1] / b1
         if not np.isfinite(step):
             return BoxTidwellResult(None, False, it, "the iteration broke down (non-finite step)", statistic, pvalue)
         new_alpha = alpha + step
