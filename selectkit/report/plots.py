@@ -30,6 +30,11 @@ _ACCENT = "#c0392b"
 _MUTED = "#8a8f98"
 
 
+def _plain(text) -> str:
+    """A user string shown as typed: ``$`` would otherwise start matplotlib's math mode."""
+    return str(text).replace("$", r"\$")
+
+
 def _figure(width=6.0, height=4.0, layout="tight"):
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
@@ -102,7 +107,7 @@ def variable_support(shortlist, *, top=25):
     support = shortlist.variable_support.head(top)
     figure = _figure(6.0, max(2.0, 0.28 * len(support) + 1.0))
     axes = figure.add_subplot()
-    names = [str(v) for v in support["variable"]][::-1]
+    names = [_plain(v) for v in support["variable"]][::-1]
     values = support["support"].to_numpy(dtype=float)[::-1]
     axes.barh(range(len(names)), values, color=[_INK if v >= 0.5 else _MUTED for v in values])
     axes.set_yticks(range(len(names)), names, fontsize=8)
@@ -247,7 +252,7 @@ def residuals_vs_terms(diagnosis, *, columns=3):
         _scatter(ax, x, diagnosis.residuals)
         ax.axhline(0.0, color=_MUTED, linewidth=0.8)
         _lowess_line(ax, x, diagnosis.residuals)
-        ax.set_xlabel(str(name), fontsize=8)
+        ax.set_xlabel(_plain(name), fontsize=8)
         ax.set_ylabel("residual", fontsize=8)
     for ax in axes[count:]:
         ax.set_visible(False)
