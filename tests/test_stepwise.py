@@ -300,3 +300,25 @@ def test_rank_deficient_start_is_a_clear_error():
     X = np.column_stack([X, X[:, 0] * 2])
     with pytest.raises(SearchError, match="rank-deficient"):
         stepwise_search(make_candidates(X, rng.normal(size=20)), start="full")
+
+
+def test_weighted_path_matches_statsmodels_wls():
+    # Reference: statsmodels WLS refits; the moments carry the weights.
+    rng = np.random.default_rng(21)
+    X = rng.normal(size=(60, 4))
+    w = rng.uniform(0.2, 3.0, size=60)
+    y = X[:, 0] - 0.5 * X[:, 2] + rng.normal(size=60) / np.sqrt(w)
+    found = stepwise_search(make_candidates(X, y, weights=w), direction="both", criterion="bic")
+    for subset, rss, k in zip(found.subsets, found.rss, found.k):
+        A = sm.add_constant(X[:, list(subset)]) if subset else np.ones((60, 1))
+        assert rss == pytest.approx(sm.WLS(y, A, weights=w).fit().ssr, rel=1e-9)
+        assert k == 1 + len(subset)
+    assert found.details["final"][0] == (0, 2)
+
+
+def test_same_result_on_threading_backend():
+    X, y, cand = _blocky()
+    a = stepwise_search(cand, starts=["empty", "full"], n_jobs=1)
+    b = stepwise_search(cand, starts=["empty", "full"], n_jobs=2, backend="threading")
+    assert a.subsets == b.subsets and np.array_equal(a.rss, b.rss)
+    assert [s["term"] for s in a.details["path"]] == [s["term"] for s in b.details["path"]]
