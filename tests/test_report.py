@@ -191,9 +191,9 @@ def test_large_data_are_thinned_in_the_plots():
 def test_dollar_signs_in_names_do_not_break_the_figures():
     rng = np.random.default_rng(10)
     X = rng.normal(size=(40, 2))
-    cands = make_candidates(X, X[:, 0] + rng.normal(size=40), names=["cost_$a$_^", "price$"])
+    cands = make_candidates(X, X[:, 0] + rng.normal(size=40), names=["a$^$b", "price$"])
     short = rank([brute_force(cands)], cands, compute_moments(X, cands.y), scores=False)
     for figure in (plots.variable_support(short), plots.residuals_vs_terms(diagnose(cands, (0, 1)))):
         assert plots.to_png_base64(figure, dpi=30)
     labels = [t.get_text() for t in plots.variable_support(short).axes[0].get_yticklabels()]
-    assert r"cost_\$a\$_^" in labels
+    assert r"a\$^\$b" in labels
