@@ -458,20 +458,24 @@ def _influence_checks(hat, cooks, studentized, n, k):
 
     def listing(indices):
         shown = ", ".join(str(int(i)) for i in indices[:10])
-        return shown + (f" and {len(indices) - 10} more" if len(indices) > 10 else "")
+        return ("row " if len(indices) == 1 else "rows ") + shown + (
+            f" and {len(indices) - 10} more" if len(indices) > 10 else "")
+
+    def count(indices):
+        return f"{len(indices)} row" + ("" if len(indices) == 1 else "s")
 
     top = float(np.nanmax(np.where(np.isfinite(cooks), cooks, np.nan))) if np.isfinite(cooks).any() else np.inf
     cooks_check = Check(
         "cooks_distance", "influence", top, None, bool(high_cooks.size == 0),
         (f"Largest Cook's distance {top:.3g}; no row above 4/n = {cooks_limit:.3g}." if high_cooks.size == 0 else
-         f"Largest Cook's distance {top:.3g}; {high_cooks.size} row(s) above 4/n = {cooks_limit:.3g}: "
-         f"rows {listing(high_cooks)}."),
+         f"Largest Cook's distance {top:.3g}; {count(high_cooks)} above 4/n = {cooks_limit:.3g}: "
+         f"{listing(high_cooks)}."),
         _REFERENCES["cooks_distance"], None if high_cooks.size == 0 else remedy)
     leverage_check = Check(
         "leverage", "influence", float(hat.max()) if hat.size else None, None, bool(high_leverage.size == 0),
         (f"Largest leverage {hat.max():.3g}; no row above 2k/n = {leverage_limit:.3g}." if high_leverage.size == 0
-         else f"Largest leverage {hat.max():.3g}; {high_leverage.size} row(s) above 2k/n = {leverage_limit:.3g}: "
-              f"rows {listing(high_leverage)} lie far from the others in the terms' space."),
+         else f"Largest leverage {hat.max():.3g}; {count(high_leverage)} above 2k/n = {leverage_limit:.3g}, "
+              f"far from the others in the terms' space: {listing(high_leverage)}."),
         _REFERENCES["leverage"], None if high_leverage.size == 0 else remedy)
     return cooks_check, leverage_check, flagged
 

@@ -218,7 +218,10 @@ def _model_section(position, fit, diagnosis, row) -> str:
     if diagnosis is not None:
         parts.append("<h3>Assumption checks</h3>" + _checks_table(diagnosis))
         if len(diagnosis.flagged_rows):
-            parts.append("<h3>Rows to look at</h3>" + _table(diagnosis.flagged_rows)
+            parts.append("<h3>Rows to look at</h3>"
+                         + _table(diagnosis.flagged_rows, headers={"cooks_distance": "Cook's distance",
+                                                                   "studentized_residual": "studentised residual",
+                                                                   "reason": "flagged for"})
                          + '<p class="note">Flagged rows are listed for a check, not removed.</p>')
         parts.append("<h3>Residual plots</h3>")
         parts.append(_figure(plots.residual_panel(diagnosis),
@@ -227,7 +230,9 @@ def _model_section(position, fit, diagnosis, row) -> str:
         parts.append(_figure(plots.residuals_vs_terms(diagnosis),
                              "Residuals against each term: a bend suggests another form of that term."))
         if not diagnosis.vif.empty and len(diagnosis.term_vif) > 1:
-            parts.append("<h3>Collinearity</h3>" + _table(diagnosis.term_vif))
+            parts.append("<h3>Collinearity</h3>"
+                         + _table(diagnosis.term_vif, headers={"gvif": "GVIF", "gvif_per_column": "GVIF^(1/columns)",
+                                                               "columns": "coefficients"}))
     else:
         parts.append('<p class="note">The assumption checks of this model were not run.</p>')
     return _section(f"model-{position}", f"Model {position}: {' + '.join(fit.terms) or 'intercept only'}",
