@@ -1,0 +1,237 @@
+"""Exact best-subset search against a brute-force enumeration refitted with statsmodels."""
+
+import itertools
+
+import numpy as np
+import pytest
+import statsmodels.api as sm
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from selectkit import criteria
+from selectkit.errors import OptionError, SearchError, TooManyCandidatesError
+from selectkit.moments import compute_moments
+from selectkit.parallel import WorkUnit
+from selectkit.search import exhaustive
+from selectkit.search.exhaustive import ExhaustiveOptions, exhaustive_search
+from tests.factories import ar1_design, make_candidates
+
+
+def build_problem(seed, n, n_plain, family_forms, block_levels, interaction, forced_first, weighted):
+    """Random candidates: plain columns, families of 2-3 forms, a dummy block, maybe an interaction."""
+    rng = np.random.default_rng(seed)
+    columns, names, families, blocks, requires = [], [], [], {}, {}
+    for i in range(n_plain):
+        columns.append(rng.normal(size=n))
+        names.append(f"p{i}")
+        families.append(f"p{i}")
+    for f, forms in enumerate(family_forms):
+        base = rng.uniform(0.5, 4.0, size=n)
+        made = [(f"v{f}", base), (f"log(v{f})", np.log(base)), (f"sqrt(v{f})", np.sqrt(base))][:forms]
+        for name, col in made:
+            columns.append(col)
+            names.append(name)
+            families.append(f"v{f}")
+    if block_levels:
+        levels = np.r_[np.arange(block_levels), rng.integers(0, block_levels, n - block_levels)]
+        rng.shuffle(levels)
+        start = len(columns)
+        for level in range(1, block_levels):
+            columns.append((levels == level).astype(float))
+            names.append(f"cultivar[{level}]")
+            families.append("cultivar")
+        blocks["cultivar"] = list(range(start, len(columns)))
+    if interaction and n_plain >= 2:
+        columns.append(columns[0] * columns[1])
+        names.append("p0*p1")
+        families.append("p0*p1")
+        requires["p0*p1"] = ("p0", "p1")
+    X = np.column_stack(columns)
+    effects = rng.normal(size=X.shape[1]) * (rng.uniform(size=X.shape[1]) < 0.6)
+    y = X @ effects + rng.normal(size=n)
+    forced = (names[0],) if forced_first else ()
+    weights = rng.uniform(0.3, 3.0, size=n) if weighted else None
+    cands = make_candidates(X, y, names=names, families=families, blocks=blocks, requires=requires,
+                            forced=forced, weights=weights)
+    return cands
+
+
+def brute_force(cands, n_best, max_size=None, hierarchy=True, forbidden=()):
+    """Every admissible subset of terms refitted with statsmodels OLS/WLS (reference library)."""
+    terms = cands.terms
+    X, y, w = cands.matrix, cands.y, cands.weights
+    n = len(y)
+    forced = [i for i, t in enumerate(terms) if t.forced]
+    free = [i for i, t in enumerate(terms) if not t.forced and t.name not in forbidden]
+    per_size = {}
+    for r in range(len(free) + 1):
+        for extra in itertools.combinations(free, r):
+            model = tuple(sorted(forced + list(extra)))
+            fams = [terms[i].family for i in model]
+            if len(set(fams)) != len(fams):
+                continue
+            if hierarchy and any(f not in fams for i in model for f in terms[i].requires):
+                continue
+            cols = [c for i in model for c in terms[i].columns]
+            if max_size is not None and len(cols) > max_size:
+                continue
+            design = np.column_stack([np.ones(n), X[:, cols]]) if cols else np.ones((n, 1))
+            if np.linalg.matrix_rank(design) < design.shape[1]:
+                continue
+            fit = (sm.OLS(y, design) if w is None else sm.WLS(y, design, weights=w)).fit()
+            names = tuple(sorted(terms[i].name for i in model))
+            per_size.setdefault(len(cols), []).append((fit.ssr, names, model))
+    return {s: sorted(v)[:n_best] for s, v in per_size.items()}
+
+
+def by_size(found):
+    out = {}
+    for model, rss, k in zip(found.subsets, found.rss, found.k):
+        out.setdefault(int(k) - 1, []).append((float(rss), model))
+    return out
+
+
+def assert_matches(found, reference):
+    got = by_size(found)
+    assert sorted(got) == sorted(reference)
+    for size, want in reference.items():
+        have = got[size]
+        assert len(have) == len(want), size
+        np.testing.assert_allclose([r for r, _ in have], [r for r, *_ in want], rtol=1e-9)
+        # subsets must agree except where two rss are too close to order reliably
+        ref_rss = np.array([r for r, *_ in want])
+        for i, ((_, model), (r, _, ref_model)) in enumerate(zip(have, want)):
+            near = np.abs(ref_rss - r) <= 1e-9 * max(r, 1e-300)
+            if near.sum() == 1:
+                assert model == ref_model, (size, i)
+
+
+@settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(
+    seed=st.integers(0, 10**6),
+    n=st.integers(25, 70),
+    n_plain=st.integers(1, 4),
+    family_forms=st.lists(st.integers(2, 3), max_size=2),
+    block_levels=st.sampled_from([0, 3, 4]),
+    interaction=st.booleans(),
+    forced_first=st.booleans(),
+    weighted=st.booleans(),
+    n_best=st.integers(1, 4),
+    hierarchy=st.booleans(),
+)
+def test_equals_brute_force_refit(seed, n, n_plain, family_forms, block_levels, interaction, forced_first,
+                                  weighted, n_best, hierarchy):
+    cands = build_problem(seed, n, n_plain, family_forms, block_levels, interaction, forced_first, weighted)
+    assert cands.matrix.shape[1] <= 12
+    found = exhaustive_search(cands, n_best_per_size=n_best, hierarchy=hierarchy)
+    assert found.exact and found.stopped_by == "completed" and found.method == "exhaustive"
+    assert_matches(found, brute_force(cands, n_best, hierarchy=hierarchy))
+
+
+def test_max_size_forbidden_and_forced_by_name():
+    cands = build_problem(11, 60, 4, [3, 2], 3, True, False, False)
+    found = exhaustive_search(cands, n_best_per_size=3, max_size=4, forbidden=["p2"])
+    assert max(found.k) == 5
+    assert_matches(found, brute_force(cands, 3, max_size=4, forbidden=("p2",)))
+    forced = exhaustive_search(cands, n_best_per_size=2, forced=["log(v0)"])
+    index = [t.name for t in cands.terms].index("log(v0)")
+    assert all(index in s for s in forced.subsets)
+    assert not any({"v0", "sqrt(v0)"} & {cands.terms[i].name for i in s} for s in forced.subsets)
+
+
+def test_best_by_any_rss_criterion_is_among_the_kept_models():
+    cands = build_problem(5, 50, 4, [3], 3, False, False, False)
+    found = exhaustive_search(cands, n_best_per_size=1)
+    every = brute_force(cands, 10**6)
+    rss = np.array([r for v in every.values() for r, *_ in v])
+    k = np.array([s + 1 for s, v in every.items() for _ in v])
+    n = len(cands.y)
+    for fn in (criteria.aic, criteria.bic):
+        assert fn(found.rss, n, found.k).min() == pytest.approx(fn(rss, n, k).min(), rel=1e-12)
+
+
+def test_null_model_and_counts():
+    X = ar1_design(100, 8, seed=2)
+    y = X[:, 1] - X[:, 5] + np.random.default_rng(3).normal(size=100)
+    found = exhaustive_search(make_candidates(X, y), n_best_per_size=2)
+    assert found.subsets[0] == () and found.k[0] == 1
+    assert found.rss[0] == pytest.approx(((y - y.mean()) ** 2).sum())
+    assert found.subsets[-1] == tuple(range(8)) and found.k[-1] == 9
+    assert found.n == 100 and found.evaluated > 0
+    assert found.evaluated + found.pruned + found.singular <= 2**8
+
+
+def test_same_result_on_one_and_two_workers():
+    X = ar1_design(300, 18, seed=4)
+    y = X[:, [0, 4, 9, 15]] @ [1.0, -0.7, 0.5, 0.8] + np.random.default_rng(5).normal(size=300)
+    cands = make_candidates(X, y, families=[f"f{j // 2}" for j in range(18)])
+    one = exhaustive_search(cands, n_best_per_size=5)
+    two = exhaustive_search(cands, n_best_per_size=5, n_jobs=2, backend="loky")
+    assert one.subsets == two.subsets
+    np.testing.assert_array_equal(one.rss, two.rss)
+    np.testing.assert_array_equal(one.k, two.k)
+    assert (one.evaluated, one.pruned, one.singular) == (two.evaluated, two.pruned, two.singular)
+
+
+def test_units_do_not_depend_on_workers_and_cover_the_tree():
+    cands = build_problem(8, 50, 4, [3, 2], 3, False, True, False)
+    options = ExhaustiveOptions(n_best_per_size=2)
+    units = exhaustive.plan(cands, None, options)
+    assert len(units) >= 4 and all(isinstance(u, WorkUnit) for u in units)
+    assert len({u.key for u in units}) == len(units)
+    results = [exhaustive.run_unit(u) for u in reversed(units)][::-1]
+    found = exhaustive.merge(cands, None, options, results)
+    assert_matches(found, brute_force(cands, 2))
+
+
+def test_more_than_64_terms_asks_for_screening():
+    X = np.random.default_rng(0).normal(size=(100, 65))
+    with pytest.raises(TooManyCandidatesError, match="65") as info:
+        exhaustive_search(make_candidates(X, X[:, 0]))
+    assert "screen" in str(info.value)
+
+
+def test_all_constant_candidates_raise():
+    X = np.ones((30, 4)) * [1.0, 2.0, 3.0, 4.0]
+    y = np.random.default_rng(1).normal(size=30)
+    with pytest.raises(SearchError, match="constant"):
+        exhaustive_search(make_candidates(X, y))
+
+
+def test_candidates_collinear_with_forced_terms_raise():
+    rng = np.random.default_rng(2)
+    a = rng.normal(size=40)
+    X = np.column_stack([a, 2 * a + 1, -a])
+    with pytest.raises(SearchError, match="linear combination"):
+        exhaustive_search(make_candidates(X, rng.normal(size=40), forced=("x0",)))
+
+
+def test_constant_response_and_bad_options_raise():
+    X = np.random.default_rng(3).normal(size=(20, 3))
+    with pytest.raises(SearchError, match="no variation"):
+        exhaustive_search(make_candidates(X, np.ones(20)))
+    cands = make_candidates(X, X[:, 0] + 1)
+    with pytest.raises(OptionError, match="unknown terms"):
+        exhaustive_search(cands, forced=["x9"])
+    with pytest.raises(OptionError, match="both forced and forbidden"):
+        exhaustive_search(cands, forced=["x1"], forbidden=["x1"])
+    with pytest.raises(OptionError, match="n_best_per_size"):
+        exhaustive_search(cands, n_best_per_size=0)
+    with pytest.raises(OptionError, match="time_budget"):
+        exhaustive_search(cands, time_budget=-1)
+
+
+def test_expiring_time_budget_returns_best_so_far():
+    rng = np.random.default_rng(6)
+    base = np.exp(0.5 * ar1_design(600, 14, seed=7))
+    cols, fams = [], []
+    for s in range(14):
+        for form in (base[:, s], np.log(base[:, s]), np.sqrt(base[:, s])):
+            cols.append(form)
+            fams.append(f"v{s}")
+    X = np.column_stack(cols)[:, :40]
+    y = X[:, [1, 5, 11, 20, 26, 32]] @ [1, -1, 1, -1, 1, -1.0] + rng.normal(size=600)
+    found = exhaustive_search(make_candidates(X, y, families=fams[:40]), time_budget=0.2)
+    assert not found.exact
+    assert "time budget" in found.stopped_by
+    assert len(found) > 0 and found.subsets[0] == ()
