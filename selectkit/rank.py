@@ -17,8 +17,8 @@ from __future__ import annotations
 import dataclasses
 import inspect
 import math
-from dataclasses import dataclass, field
-from typing import Any, Callable, Mapping, Sequence
+from dataclasses import dataclass
+from typing import Callable, Mapping, Sequence
 
 import numpy as np
 import pandas as pd
@@ -125,8 +125,9 @@ class Shortlist:
         (coefficients including the intercept), ``rss``, ``log_likelihood``,
         ``aic``, ``aicc``, ``bic``, ``cp``, ``r2``, ``adj_r2``, ``press``,
         ``cv_mse``, ``cv_se``, ``holdout_mse``, ``delta_from_best`` (on the
-        primary criterion, ≥ 0), ``model_weight`` (weight of evidence from
-        ``weight_criterion``), ``comparable_support`` (Δ ≤ 2 for an information
+        primary criterion, ≥ 0), ``model_weight`` (exp(−Δ/2) normalised over the
+        pooled models, on ``weight_criterion``: Akaike weights for AIC/AICc,
+        BIC weights — approximate posterior model probabilities — for BIC), ``comparable_support`` (Δ ≤ 2 for an information
         criterion; within one standard error of the best for ``cv_mse``; empty
         otherwise), ``found_by`` (searches that found the model, comma-separated)
         and ``term_indices`` (space-separated indices into ``CandidateSet.terms``).

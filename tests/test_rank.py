@@ -15,7 +15,6 @@ import pandas as pd
 import pytest
 import statsmodels.api as sm
 
-from selectkit import criteria
 from selectkit.candidates import ResponseTransform
 from selectkit.errors import OptionError, SearchError
 from selectkit.moments import compute_moments
