@@ -242,15 +242,7 @@ def test_bad_options_and_mismatched_results_raise(simple):
 def test_press_scores_given_by_the_caller_order_the_models(simple):
     cands, moments = simple
     found = brute_force(cands, max_terms=2)
-    press = []
-    for s in found.subsets:  # leave-one-out by brute force (Allen 1974)
-        errors = []
-        for i in range(len(cands.y)):
-            keep = np.arange(len(cands.y)) != i
-            design = np.column_stack([np.ones(len(cands.y))] + [cands.matrix[:, c] for c in s])
-            beta = np.linalg.lstsq(design[keep], cands.y[keep], rcond=None)[0]
-            errors.append(cands.y[i] - design[i] @ beta)
-        press.append(float(np.sum(np.square(errors))))
+    press = [_loo_press(cands, s) for s in found.subsets]
     frame = pd.DataFrame({"subset": list(found.subsets), "press": press})
     short = rank([found], cands, moments, criterion="press", scores=frame)
     assert short.scored["press"].is_monotonic_increasing
@@ -258,16 +250,30 @@ def test_press_scores_given_by_the_caller_order_the_models(simple):
     assert short.weight_criterion == "aicc"
 
 
-def test_missing_score_function_leaves_columns_empty_with_a_note(simple):
+def _loo_press(cands, subset):
+    """Leave-one-out sum of squared prediction errors by refitting n times (Allen 1974)."""
+    n = len(cands.y)
+    design = np.column_stack([np.ones(n)] + [cands.matrix[:, c] for c in subset])
+    errors = []
+    for i in range(n):
+        keep = np.arange(n) != i
+        beta = np.linalg.lstsq(design[keep], cands.y[keep], rcond=None)[0]
+        errors.append(cands.y[i] - design[i] @ beta)
+    return float(np.sum(np.square(errors)))
+
+
+def test_scores_computed_by_the_ranker_sit_on_the_right_rows(simple):
     cands, moments = simple
-    short = rank([brute_force(cands, max_terms=1)], cands, moments)
+    short = rank([brute_force(cands, max_terms=2)], cands, moments)
     try:
         from selectkit.search.crossval import score_subsets  # noqa: F401
     except ImportError:
         assert short.scored["press"].isna().all()
         assert any("score_subsets" in note for note in short.notes)
-    else:
-        assert short.scored["press"].notna().all()
+        return
+    for subset, press in zip(short.all_subsets, short.scored["press"]):
+        assert press == pytest.approx(_loo_press(cands, subset), rel=1e-8)
+    assert short.scored["cv_mse"].notna().all()
 
 
 # --------------------------------------------------------------------------- refits
