@@ -6,7 +6,14 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from selectkit.kernels import PIVOT_TOLERANCE
-from selectkit.kernels.subsets import add_column, drop_column, factor_columns, scaled_cross, subset_rss
+from selectkit.kernels.subsets import (
+    add_column,
+    all_subsets_rss,
+    drop_column,
+    factor_columns,
+    scaled_cross,
+    subset_rss,
+)
 from selectkit.moments import compute_moments
 
 
@@ -128,3 +135,23 @@ def test_scaled_cross_has_unit_diagonal_and_zero_for_constants():
     np.testing.assert_allclose(np.diag(A), [1.0] * 7 + [0.0, 1.0])
     np.testing.assert_allclose(A[:7, :7], np.corrcoef(X[:, :7].T), rtol=1e-12, atol=1e-14)
     assert subset_rss(A, np.array([7], dtype=np.int64), PIVOT_TOLERANCE) == -1.0
+
+
+def test_all_subsets_rss_equals_numpy_for_every_subset():
+    X, y, A = _problem(n=60, p=7, seed=8)
+    out = all_subsets_rss(A, np.arange(7, dtype=np.int64), PIVOT_TOLERANCE)
+    assert out.shape == (128,)
+    for mask in range(128):
+        cols = [j for j in range(7) if mask >> j & 1]
+        assert out[mask] == pytest.approx(reference_rss(X, y, cols), rel=1e-10, abs=1e-14), cols
+    # a subset of the columns, in another order: bit i stands for cols[i]
+    pick = np.array([5, 1, 3], dtype=np.int64)
+    part = all_subsets_rss(A, pick, PIVOT_TOLERANCE)
+    assert part[0b101] == pytest.approx(reference_rss(X, y, [5, 3]), rel=1e-10)
+
+
+def test_all_subsets_rss_refuses_a_singular_set():
+    X, y, _ = _problem(seed=9)
+    X = np.column_stack([X, X[:, 0] + X[:, 1]])
+    A, _ = scaled_cross(compute_moments(X, y).cross)
+    assert (all_subsets_rss(A, np.arange(8, dtype=np.int64), PIVOT_TOLERANCE) == -1.0).all()
