@@ -41,7 +41,7 @@ def build_problem(seed, n, n_plain, family_forms, block_levels, interaction, for
             names.append(f"cultivar[{level}]")
             families.append("cultivar")
         blocks["cultivar"] = list(range(start, len(columns)))
-    if interaction and n_plain >= 2:
+    if interaction and n_plain >= 2 and len(columns) < 12:
         columns.append(columns[0] * columns[1])
         names.append("p0*p1")
         families.append("p0*p1")
@@ -110,7 +110,7 @@ def assert_matches(found, reference):
 @given(
     seed=st.integers(0, 10**6),
     n=st.integers(25, 70),
-    n_plain=st.integers(1, 4),
+    n_plain=st.integers(1, 3),
     family_forms=st.lists(st.integers(2, 3), max_size=2),
     block_levels=st.sampled_from([0, 3, 4]),
     interaction=st.booleans(),
@@ -222,16 +222,11 @@ def test_constant_response_and_bad_options_raise():
 
 
 def test_expiring_time_budget_returns_best_so_far():
-    rng = np.random.default_rng(6)
-    base = np.exp(0.5 * ar1_design(600, 14, seed=7))
-    cols, fams = [], []
-    for s in range(14):
-        for form in (base[:, s], np.log(base[:, s]), np.sqrt(base[:, s])):
-            cols.append(form)
-            fams.append(f"v{s}")
-    X = np.column_stack(cols)[:, :40]
-    y = X[:, [1, 5, 11, 20, 26, 32]] @ [1, -1, 1, -1, 1, -1.0] + rng.normal(size=600)
-    found = exhaustive_search(make_candidates(X, y, families=fams[:40]), time_budget=0.2)
+    # 40 predictors and a response of pure noise: bounds prune little, the
+    # full search takes seconds, far beyond the budget.
+    X = ar1_design(300, 40, seed=7)
+    y = np.random.default_rng(1).normal(size=300)
+    found = exhaustive_search(make_candidates(X, y), time_budget=0.2)
     assert not found.exact
     assert "time budget" in found.stopped_by
     assert len(found) > 0 and found.subsets[0] == ()

@@ -337,6 +337,24 @@ def _family_count(terms, start, stop, t_fam, scratch):
 
 
 @njit(cache=True)
+def _family_width(terms, start, stop, t_fam, t_width, scratch):
+    """Σ over the variables in terms[start:stop] of the widest form: the most columns a model can add."""
+    for i in range(start, stop):
+        scratch[t_fam[terms[i]]] = 0
+    for i in range(start, stop):
+        f = t_fam[terms[i]]
+        w = t_width[terms[i]]
+        if w > scratch[f]:
+            scratch[f] = w
+    total = 0
+    for i in range(start, stop):
+        f = t_fam[terms[i]]
+        total += scratch[f]
+        scratch[f] = 0
+    return total
+
+
+@njit(cache=True)
 def _small_quadratic(G, b, w):
     """bᵀ G⁻¹ b for a small SPD matrix G (w × w) by Cholesky; 0 when not SPD."""
     Lw = np.zeros((w, w))
@@ -468,7 +486,10 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
         col_start[n_s] = c
         fw = col_start[k]
         lo = fw if is_root else fw + 1
-        hi = c if c < max_size else max_size
+        # largest model below: one form per variable (the widest) on top of the fixed terms
+        hi = fw + _family_width(terms, k, n_s, t_fam, t_width, scratch)
+        if hi > max_size:
+            hi = max_size
         if lo > hi:
             continue
         if not is_root and _prunable(bound, thr, lo, hi):
@@ -610,9 +631,7 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
             if m_child == i:
                 continue
             cw_fixed = col_start[i]
-            cw_all = cw_fixed
-            for p in range(i, m_child):
-                cw_all += t_width[child[p]]
+            cw_all = cw_fixed + _family_width(child, i, m_child, t_fam, t_width, scratch)
             clo = cw_fixed + 1
             chi = cw_all if cw_all < max_size else max_size
             if clo > chi:
