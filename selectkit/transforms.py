@@ -314,44 +314,63 @@ class BoxTidwellResult:
     reference: str = "Box, G. E. P. and Tidwell, P. W. (1962), Technometrics 4(4), 531-550"
 
 
-def _centred_fit(columns, y, w):
-    """Slopes, residual sum of squares and (X'WX)⁻¹ of a weighted least-squares fit with an intercept.
+class _Residualiser:
+    """Projects vectors off the nuisance space of a (weighted) least-squares fit.
 
-    Columns and response are centred at their (weighted) means, so the intercept
-    drops out and only a k×k system is solved (k ≤ 2 here); a few O(n) passes.
+    The nuisance space is spanned by √w·[1, Z] (intercept and covariates held
+    linear); by the Frisch-Waugh-Lovell theorem, a fit of √w·y on √w·[g, 1, Z]
+    gives the same coefficient of g and the same residuals as the fit of the
+    residualised √w·y on the residualised √w·g.
     """
-    if w is None:
-        centred = [c - c.mean() for c in columns]
-        yc = y - y.mean()
-        weighted = centred
-    else:
-        total = w.sum()
-        centred = [c - (w @ c) / total for c in columns]
-        yc = y - (w @ y) / total
-        weighted = [c * w for c in centred]
+
+    def __init__(self, n, w, covariates):
+        self.scale = None if w is None else np.sqrt(w)
+        if covariates is None or np.shape(covariates)[1] == 0:
+            self.basis = None  # the intercept alone: centring
+            self.rank = 1
+            if self.scale is not None:
+                self.basis = (self.scale / np.linalg.norm(self.scale))[:, None]
+            return
+        A = np.column_stack([np.ones(n), covariates])
+        if self.scale is not None:
+            A = A * self.scale[:, None]
+        U, sv, _ = np.linalg.svd(A, full_matrices=False)
+        keep = sv > sv.max() * max(A.shape) * np.finfo(float).eps
+        self.basis = U[:, keep]
+        self.rank = int(keep.sum())
+
+    def __call__(self, v):
+        if self.scale is not None:
+            v = v * self.scale
+        if self.basis is None:
+            return v - v.mean()
+        return v - self.basis @ (self.basis.T @ v)
+
+
+def _fit(columns, y):
+    """Coefficients, residual sum of squares and (XᵀX)⁻¹ of y on residualised columns (k ≤ 2)."""
     k = len(columns)
-    G = np.array([[weighted[i] @ centred[j] for j in range(k)] for i in range(k)])
-    r = np.array([weighted[i] @ yc for i in range(k)])
+    G = np.array([[columns[i] @ columns[j] for j in range(k)] for i in range(k)])
+    r = np.array([c @ y for c in columns])
     d = np.sqrt(np.diag(G))
     if not (np.all(np.isfinite(G)) and np.all(np.isfinite(r))) or np.any(d == 0):
         return np.full(k, np.nan), math.inf, None
     Gs = G / np.outer(d, d)
     coef = np.linalg.lstsq(Gs, r / d, rcond=None)[0] / d
-    resid = yc.copy()
+    resid = y.copy()
     for j in range(k):
-        resid -= coef[j] * centred[j]
-    rss = float(resid @ resid) if w is None else float(w @ (resid * resid))
+        resid -= coef[j] * columns[j]
     try:
         inverse = np.linalg.inv(Gs) / np.outer(d, d)
     except np.linalg.LinAlgError:
         inverse = None
-    return coef, rss, inverse
+    return coef, float(resid @ resid), inverse
 
 
-def box_tidwell(x, y, *, weights=None, max_power=3.0, tol=1e-7, max_iter=50):
+def box_tidwell(x, y, *, weights=None, covariates=None, max_power=3.0, tol=1e-7, max_iter=50):
     """The power α of x that best linearises y on x (Box & Tidwell 1962).
 
-    Fits y = β₀ + β₁·g(x, α) by least squares in α, with g the Box-Cox form
+    Fits y = β₀ + β₁·g(x, α) [+ Zδ] by least squares in α, with g the Box-Cox form
     ((x^α − 1)/α, log x at α = 0), whose span with the intercept equals that of
     {1, x^α}.  Each iteration linearises g around the current α: with β₁ from
     the fit of y on g(x, α) and γ the coefficient of ∂g/∂α added to that fit,
@@ -365,11 +384,14 @@ def box_tidwell(x, y, *, weights=None, max_power=3.0, tol=1e-7, max_iter=50):
     y : array_like
     weights : array_like, optional
         Row weights of a weighted least-squares fit.
+    covariates : array_like, shape (n, q), optional
+        Other columns held linear in every fit (Z above), as Box and Tidwell
+        do with the other regressors; the intercept is always included.
     max_power : float, default 3
         A power with |α| above this is refused as extreme.
     tol : float
         Convergence when |Δα| < tol.
-    max_iter : int
+    max_iter : int, default 50
 
     Returns
     -------
@@ -383,20 +405,24 @@ def box_tidwell(x, y, *, weights=None, max_power=3.0, tol=1e-7, max_iter=50):
     >>> round(box_tidwell(x, 2 + 3 * np.sqrt(x)).power, 4)
     0.5
     """
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    w = None if weights is None else np.asarray(weights, dtype=float)
+    Z = None if covariates is None else np.asarray(covariates, dtype=float).reshape(x.shape[0], -1)
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-        return _box_tidwell(np.asarray(x, dtype=float), np.asarray(y, dtype=float),
-                            None if weights is None else np.asarray(weights, dtype=float),
-                            max_power, tol, max_iter)
+        return _box_tidwell(x, y, w, Z, max_power, tol, max_iter)
 
 
-def _box_tidwell(x, y, w, max_power, tol, max_iter):
+def _box_tidwell(x, y, w, Z, max_power, tol, max_iter):
     n = x.shape[0]
     logu = np.log(x) - np.log(x).mean()
+    project = _Residualiser(n, w, Z)
+    yr = project(y)
 
     # Test of α = 1: t statistic of x·log x added to the straight line.
     u = np.exp(logu)
-    coef, rss, inverse = _centred_fit([u, u * logu], y, w)
-    df = n - 3
+    coef, rss, inverse = _fit([project(u), project(u * logu)], yr)
+    df = n - project.rank - 2
     statistic, pvalue = math.nan, math.nan
     if df > 0 and 0 < rss < math.inf and inverse is not None and inverse[1, 1] > 0:
         statistic = float(coef[1] / math.sqrt(rss / df * inverse[1, 1]))
@@ -406,18 +432,17 @@ def _box_tidwell(x, y, w, max_power, tol, max_iter):
         g = logu if alpha == 0 else np.expm1(alpha * logu) / alpha
         if not np.all(np.isfinite(g)):
             return g, math.nan, math.inf
-        coef, rss, _ = _centred_fit([g], y, w)
+        coef, rss, _ = _fit([project(g)], yr)
         return g, coef[0], rss
 
     alpha = 1.0
     g, b1, rss = fit(alpha)
-    yc = y - (y.mean() if w is None else (w @ y) / w.sum())
-    rss0 = float(yc @ yc) if w is None else float(w @ (yc * yc))
+    rss0 = float(yr @ yr)
     if np.ptp(y) == 0 or rss0 <= 0 or rss >= rss0 * (1.0 - 1e-8):
         return BoxTidwellResult(None, False, 0, "y shows no straight-line association with x", statistic, pvalue)
     for it in range(1, max_iter + 1):
         ga = _boxcox_derivative(logu, alpha)
-        coef, _, _ = _centred_fit([g, ga], y, w)
+        coef, _, _ = _fit([project(g), project(ga)], yr)
         step = coef[1] / b1
         if not np.isfinite(step):
             return BoxTidwellResult(None, False, it, "the iteration broke down (non-finite step)", statistic, pvalue)

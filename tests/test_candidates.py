@@ -463,3 +463,31 @@ def test_property_invariant_to_column_order(case, random):
     for name in ma:
         np.testing.assert_array_equal(ma[name], mb[name])
     assert {(r.family, r.name, r.reason) for r in a.refused} == {(r.family, r.name, r.reason) for r in b.refused}
+
+
+def test_box_tidwell_holds_the_other_predictors_linear():
+    rng = np.random.default_rng(8)
+    n = 150
+    frame = pd.DataFrame({
+        "spacing": rng.uniform(1.0, 10.0, n),
+        "light": rng.normal(20.0, 5.0, n),
+        "cultivar": pd.Categorical(rng.choice(CULTIVARS, n), categories=CULTIVARS),
+    })
+    y = (1.0 + 5.0 / frame["spacing"].to_numpy() + 0.5 * frame["light"].to_numpy()
+         + (frame["cultivar"] == "Sol").to_numpy() * 2.0 + rng.normal(0.0, 0.05, n))
+    ds = Dataset(response="y", y=y, frame=frame, numeric=("spacing", "light"), categorical=("cultivar",))
+    cands = build_candidates(ds, forms=("identity", "boxtidwell"))
+    (t,) = [t for t in cands.terms if t.family == "spacing" and t.transform == "boxtidwell"]
+    # the same fit by hand: covariates = light and the non-reference dummies of cultivar
+    Z = np.column_stack([frame["light"].to_numpy(), pd.get_dummies(frame["cultivar"], drop_first=True).to_numpy(float)])
+    expected = tf.box_tidwell(frame["spacing"].to_numpy(), y, covariates=Z).power
+    assert dict(t.params)["power"] == pytest.approx(expected, abs=1e-7)
+    assert dict(t.params)["power"] == pytest.approx(-1.0, abs=0.05)
+    assert any("other predictors held linear" in note for note in cands.notes)
+    alone = build_candidates(ds, forms=("identity", "boxtidwell"), box_tidwell_adjust=False)
+    alone_terms = [t for t in alone.terms if t.family == "spacing" and t.transform == "boxtidwell"]
+    marginal = tf.box_tidwell(frame["spacing"].to_numpy(), y)
+    if marginal.power is None:
+        assert not alone_terms
+    else:
+        assert dict(alone_terms[0].params)["power"] == pytest.approx(marginal.power, abs=1e-12)

@@ -327,3 +327,35 @@ def test_response_transform_options_are_checked():
     with pytest.raises(OptionError, match="λ"):
         tf.transform_response([1.0], "boxcox")
     assert math.isclose(tf.response_log_jacobian([2.0, 3.0], "boxcox", 0.0), tf.response_log_jacobian([2.0, 3.0], "log"))
+
+
+def test_box_tidwell_with_covariates_matches_brute_force():
+    # Other regressors held linear (Box & Tidwell 1962); independent check: bounded 1-d search of the rss
+    # of y on [1, x^α, Z] by numpy least squares.
+    rng = np.random.default_rng(21)
+    n = 150
+    x = rng.uniform(1.0, 10.0, n)
+    Z = np.column_stack([rng.normal(0, 3, n), rng.uniform(0, 1, n) + 0.3 * x])
+    y = 1.0 + 5.0 / x + Z @ [2.0, -1.0] + rng.normal(0.0, 0.05, n)
+
+    def rss(alpha):
+        A = np.column_stack([np.ones(n), x**alpha, Z])
+        return float(np.linalg.lstsq(A, y, rcond=None)[1][0])
+
+    brute = optimize.minimize_scalar(rss, bounds=(-3, 3), method="bounded", options={"xatol": 1e-10})
+    result = tf.box_tidwell(x, y, covariates=Z)
+    assert result.converged
+    assert result.power == pytest.approx(brute.x, abs=1e-5)
+    assert result.power == pytest.approx(-1.0, abs=0.05)
+    # the test of power 1 with covariates equals the statsmodels t-value of x·log x in the full model
+    fit = sm.OLS(y, np.column_stack([np.ones(n), x, x * np.log(x), Z])).fit()
+    assert result.statistic == pytest.approx(fit.tvalues[2], rel=1e-8)
+    # weights and covariates together: the weighted rss
+    w = rng.uniform(0.5, 2.0, n)
+
+    def wrss(alpha):
+        A = np.column_stack([np.ones(n), x**alpha, Z]) * np.sqrt(w)[:, None]
+        return float(np.linalg.lstsq(A, y * np.sqrt(w), rcond=None)[1][0])
+
+    wbrute = optimize.minimize_scalar(wrss, bounds=(-3, 3), method="bounded", options={"xatol": 1e-10})
+    assert tf.box_tidwell(x, y, weights=w, covariates=Z).power == pytest.approx(wbrute.x, abs=1e-5)
