@@ -571,3 +571,20 @@ def test_cli_status_of_a_store(job_folder):
     assert "complete" in done.stdout and "12 of 12" in done.stdout
     missing = _cli("status", "nowhere", cwd=job_folder)
     assert missing.returncode == 2 and "no run store" in missing.stderr
+
+
+def test_cli_runs_a_real_job_end_to_end(tmp_path):
+    """``selectkit job run`` with the real pipeline (intake to HTML report), then ``job status``."""
+    from tests.test_jobs_resume import REAL_JOB, write_positive_table
+
+    write_positive_table(tmp_path / "bays.csv")
+    (tmp_path / "job.toml").write_text(REAL_JOB.replace("shortlist_size = 3", "shortlist_size = 1"))
+    done = _cli("run", "job.toml", cwd=tmp_path)
+    assert done.returncode == 0, done.stderr
+    assert "job job: complete" in done.stdout and "optimistic" in done.stdout
+    for name in ("shortlist.csv", "shortlist.json", "report.html", "run-summary.json", STORE_NAME):
+        assert (tmp_path / "results" / name).is_file(), name
+    assert pd.read_csv(tmp_path / "results" / "shortlist.csv")["terms"][0] == "log(x0) + sqrt(x2) + x5"
+    status = _cli("status", "results", cwd=tmp_path)
+    assert status.returncode == 0 and "job job: complete" in status.stdout
+    assert "log(x0) + sqrt(x2) + x5" in status.stdout

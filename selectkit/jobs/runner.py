@@ -318,8 +318,12 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
                 founds = engine.run(setup, done=store.finished_units(), should_stop=lambda: True, n_jobs=1)
     except BaseException as err:
         reporter.close()
-        store.set_many({"state": "failed", "stopped_by": f"{type(err).__name__}: {err}"})
-        store.log(f"run failed: {type(err).__name__}: {err}", level="error")
+        if isinstance(err, (KeyboardInterrupt, SystemExit)):
+            store.set_many({"state": "interrupted", "stopped_by": f"stopped at once ({type(err).__name__})"})
+            store.log("run stopped at once; the finished units are kept", level="warning")
+        else:
+            store.set_many({"state": "failed", "stopped_by": f"{type(err).__name__}: {err}"})
+            store.log(f"run failed: {type(err).__name__}: {err}", level="error")
         raise
     reporter.close()
 
