@@ -230,3 +230,9 @@ def test_expiring_time_budget_returns_best_so_far():
     assert not found.exact
     assert "time budget" in found.stopped_by
     assert len(found) > 0 and found.subsets[0] == ()
+
+
+def test_max_size_below_the_forced_width_raises():
+    cands = build_problem(3, 40, 3, [], 4, False, False, False)
+    with pytest.raises(OptionError, match="max_size"):
+        exhaustive_search(cands, forced=["cultivar"], max_size=2)

@@ -87,7 +87,7 @@ class ExhaustiveOptions:
     time_budget : float or None
         Seconds; when reached the search returns the best models found so far
         with ``exact=False``.
-    split_depth : int, default 4
+    split_depth : int, default 5
         The in/out decisions on this many leading free terms define the work
         units (up to 2**split_depth of them).
     """
@@ -98,7 +98,7 @@ class ExhaustiveOptions:
     forbidden: tuple[str, ...] = ()
     hierarchy: bool = True
     time_budget: float | None = None
-    split_depth: int = 4
+    split_depth: int = 5
 
     def __post_init__(self):
         n_best = self.n_best_per_size
@@ -241,6 +241,12 @@ def _prepare(candidates, moments: Moments, options: ExhaustiveOptions) -> _Probl
     max_size = total_cols if options.max_size is None else min(int(options.max_size), total_cols)
     A, _ = scaled_cross(moments.cross)
     forced = tuple(j for j, i in enumerate(allowed) if terms[i].name in forced_names)
+    forced_width = int(sum(t_width[j] for j in forced))
+    if forced_width > max_size:
+        raise OptionError(
+            f"max_size={options.max_size} columns is smaller than the {forced_width} columns of the forced "
+            "terms; raise max_size or force fewer terms"
+        )
     free = [j for j in range(n_terms) if j not in forced]
     problem = _Problem(A, tuple(allowed), t_cols, t_width, t_fam, t_req, t_bit,
                        tuple(terms[i].name for i in allowed), forced, (), max_size, tuple(dropped))
@@ -300,7 +306,7 @@ def _hierarchy_ok(problem: _Problem, model) -> bool:
 
 
 def _starting_thresholds(problem: _Problem, n_best: int) -> np.ndarray:
-    """N-th best rss per size among models met by a beam search of width N.
+    """N-th best rss per size among models met by a beam search of width N, and those models.
 
     A valid upper bound on the true N-th best rss at each size (the models are
     real, distinct and valid), so pruning with it never removes a model that
@@ -312,9 +318,12 @@ def _starting_thresholds(problem: _Problem, n_best: int) -> np.ndarray:
     base = tuple(sorted(problem.forced))
     base_width = int(sum(width[j] for j in base))
     if base_width > problem.max_size:
-        return np.full(sizes, np.inf)
+        return np.full(sizes, np.inf), ()
     beam = [base]
     seen = {base}
+    base_rss = subset_rss(problem.A, _columns_of(problem, base), PIVOT_TOLERANCE)
+    if base_rss >= 0 and _hierarchy_ok(problem, base):
+        pool[base] = (base_width, base_rss)
     for _ in range(len(problem.free)):
         found = {}
         for model in beam:
@@ -343,7 +352,13 @@ def _starting_thresholds(problem: _Problem, n_best: int) -> np.ndarray:
     for s, values in enumerate(per_size):
         if len(values) >= n_best:
             out[s] = sorted(values)[n_best - 1]
-    return out
+    kept = sorted(((s, r, mdl) for mdl, (s, r) in pool.items()), key=lambda e: (e[0], e[1], e[2]))
+    seeds, count = [], {}
+    for s, r, mdl in kept:
+        if count.get(s, 0) < n_best:
+            seeds.append((s, float(r), mdl))
+            count[s] = count.get(s, 0) + 1
+    return out, tuple(seeds)
 
 
 def plan(candidates, moments: Moments | None, options: ExhaustiveOptions) -> list[WorkUnit]:
@@ -369,13 +384,15 @@ def plan(candidates, moments: Moments | None, options: ExhaustiveOptions) -> lis
         moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
     problem = _prepare(candidates, moments, options)
     n_best = int(options.n_best_per_size)
-    init_thr = _starting_thresholds(problem, n_best)
+    init_thr, seeds = _starting_thresholds(problem, n_best)
     deadline = None if options.time_budget is None else time.time() + float(options.time_budget)
     free = list(problem.free)
     depth = min(len(free), int(options.split_depth))
     head, tail = free[:depth], free[depth:]
     units = []
-    for pattern in range(1 << depth):
+    # heaviest branches first (those holding the most important terms), so that
+    # workers do not wait on one long branch at the end
+    for pattern in range((1 << depth) - 1, -1, -1):
         included = [head[b] for b in range(depth) if pattern >> (depth - 1 - b) & 1]
         fams = [int(problem.t_fam[j]) for j in included]
         if len(set(fams)) != len(fams):
@@ -392,6 +409,7 @@ def plan(candidates, moments: Moments | None, options: ExhaustiveOptions) -> lis
             "fixed": tuple(fixed),
             "free": tuple(rest),
             "deadline": deadline,
+            "seeds": seeds,
         }
         units.append(WorkUnit(key=f"exhaustive/branch-{pattern:04d}", payload=payload))
     return units
@@ -462,6 +480,21 @@ def run_unit(unit: WorkUnit) -> dict:
         "nodes": int(counts[2]),
         "pruned": int(pruned[0]),
         "complete": bool(complete),
+        "problem": _summary(problem),
+        # models met while planning: the best found so far when the clock stops a branch
+        "seeds": () if complete else p["seeds"],
+    }
+
+
+def _summary(problem: _Problem) -> dict:
+    """What merge needs to know about the problem (small; travels with every result)."""
+    return {
+        "term_index": problem.term_index,
+        "forced": problem.forced,
+        "free": problem.free,
+        "names": problem.names,
+        "dropped": problem.dropped,
+        "forced_width": int(sum(problem.t_width[j] for j in problem.forced)),
     }
 
 
@@ -475,19 +508,25 @@ def merge(candidates, moments: Moments | None, options: ExhaustiveOptions, resul
         moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
     terms = candidates.terms
     results = list(results)
-    problem: _Problem | None = None
     per_size: dict[int, list] = {}
+    seen = set()
     for res in results:
         for size, rss, model in res["models"]:
             per_size.setdefault(size, []).append((rss, model))
-    prepared = _prepare(candidates, moments, options)
-    problem = prepared
+            seen.add(model)
+    if not all(res["complete"] for res in results):
+        for res in results:
+            for size, rss, model in res["seeds"]:
+                if model not in seen:
+                    seen.add(model)
+                    per_size.setdefault(size, []).append((rss, model))
+    problem = results[0]["problem"] if results else _summary(_prepare(candidates, moments, options))
     n_best = int(options.n_best_per_size)
     subsets, rss_out, k_out = [], [], []
     for size in sorted(per_size):
         entries = []
         for rss, model in per_size[size]:
-            original = tuple(sorted(problem.term_index[j] for j in model))
+            original = tuple(sorted(problem['term_index'][j] for j in model))
             names = tuple(sorted(terms[i].name for i in original))
             entries.append((rss, names, original))
         entries.sort(key=lambda e: (e[0], e[1]))
@@ -495,21 +534,21 @@ def merge(candidates, moments: Moments | None, options: ExhaustiveOptions, resul
             subsets.append(original)
             rss_out.append(rss * moments.tss)
             k_out.append(size + 1)
-    forced_width = int(sum(problem.t_width[j] for j in problem.forced))
-    if not any(len(s) > len(problem.forced) for s in subsets):
-        if not subsets and problem.forced:
+    forced_width = problem["forced_width"]
+    if not any(len(s) > len(problem["forced"]) for s in subsets):
+        if not subsets and problem["forced"]:
             raise SearchError(
-                f"the forced terms {[problem.names[j] for j in problem.forced]} are collinear "
+                f"the forced terms {[problem['names'][j] for j in problem['forced']]} are collinear "
                 f"(rank-deficient over the {moments.n} rows); no model can hold them all"
             )
-        if problem.free or problem.dropped:
+        if problem["free"] or problem["dropped"]:
             raise SearchError(
                 f"no model with a candidate term could be fitted over the {moments.n} rows: every candidate "
                 f"is constant or a linear combination of {'the forced terms' if forced_width else 'the intercept'}"
-                + (f" (set aside: {', '.join(problem.dropped)})" if problem.dropped else "")
+                + (f" (set aside: {', '.join(problem['dropped'])})" if problem["dropped"] else "")
                 + "; check the candidate columns"
             )
-        if not problem.term_index:
+        if not problem["term_index"]:
             raise SearchError("there are no candidate terms to search; add predictors or lift the exclusions")
     complete = all(res["complete"] for res in results)
     stopped_by = "completed" if complete else (
@@ -520,7 +559,7 @@ def merge(candidates, moments: Moments | None, options: ExhaustiveOptions, resul
         "options": asdict(options),
         "units": len(results),
         "nodes": sum(r["nodes"] for r in results),
-        "set_aside": problem.dropped,
+        "set_aside": problem["dropped"],
         "algorithm": "branch and bound on the dropping-columns tree (Gatu & Kontoghiorghes 2006)",
     }
     return Found(
