@@ -438,10 +438,14 @@ def test_property_finite_and_reproducible(case, fp):
     assert np.isfinite(cands.matrix).all()
     assert cands.matrix.shape == (ds.n, len(cands.column_names))
     np.testing.assert_array_equal(cands.transform(ds.frame), cands.matrix)
-    # at most... every family's terms are contiguous and every term has a unique name
+    # every family's terms are contiguous and every term has a unique name
     assert len(set(cands.names)) == len(cands.names)
     idx = cands.family_index
     assert np.all(np.diff(idx) >= 0)
+    # deterministic: the same input gives the same candidates
+    again = build_candidates(ds, shifts=shifts, fractional_polynomials=fp, interactions=True)
+    assert again.names == cands.names and np.array_equal(again.matrix, cands.matrix)
+    assert again.refused == cands.refused
 
 
 @_settings
