@@ -294,12 +294,17 @@ def test_max_steps_and_bad_options():
         stepwise_search(cand, forced=("x",), forbidden=("x",))
 
 
-def test_rank_deficient_start_is_a_clear_error():
+def test_rank_deficient_start():
     rng = np.random.default_rng(3)
     X = rng.normal(size=(20, 2))
     X = np.column_stack([X, X[:, 0] * 2])
+    y = rng.normal(size=20)
     with pytest.raises(SearchError, match="rank-deficient"):
-        stepwise_search(make_candidates(X, rng.normal(size=20)), start="full")
+        stepwise_search(make_candidates(X, y), start=("x0", "x2"))
+    # from "full" the duplicated column is left out, and the start says so
+    found = stepwise_search(make_candidates(X, y), start="full", direction="backward")
+    assert found.subsets[0] == (0, 1)
+    assert "left out as rank-deficient: x2" in found.details["path"][0]["term"]
 
 
 def test_weighted_path_matches_statsmodels_wls():

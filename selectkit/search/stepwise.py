@@ -357,6 +357,41 @@ def _f_tests(rss_small, rss_large, q, n, k_large):
     return np.where(valid, f, np.nan), np.where(valid, p, np.nan)
 
 
+def _enter_start(problem, S, inside):
+    """Sweep the starting model in, forced terms first.
+
+    From ``"full"`` a term whose columns are (numerically) combinations of
+    those already in is left out and named; from ``"empty"`` (forced terms)
+    or a list of names a rank-deficient start is an error.
+    """
+    order = [i for i in problem.start if i in problem.forced] + [i for i in problem.start if i not in problem.forced]
+    model, left_out = [], []
+    for i in order:
+        cols = np.asarray(problem.columns[i], dtype=np.int64)
+        if apply_move(S, inside, cols, PIVOT_TOLERANCE):
+            model.append(i)
+        elif problem.start_label == "full" and i not in problem.forced:
+            left_out.append(problem.names[i])
+        else:
+            raise SearchError(
+                f"the starting model ({problem.start_label}) is rank-deficient: the columns of "
+                f"{problem.names[i]!r} are linear combinations of the other terms' columns; start from 'empty' "
+                "or leave out the duplicated forms"
+            )
+    if problem.options.hierarchy and left_out:  # drop terms that required a family left out
+        changed = True
+        while changed:
+            changed = False
+            families = {problem.families[j] for j in model}
+            for j in list(model):
+                if j not in problem.forced and any(r not in families for r in problem.requires[j]):
+                    apply_move(S, inside, np.asarray(problem.columns[j], dtype=np.int64), PIVOT_TOLERANCE)
+                    model.remove(j)
+                    left_out.append(problem.names[j])
+                    changed = True
+    return tuple(sorted(model)), left_out
+
+
 def run_unit(unit: WorkUnit) -> dict:
     """Run the stepwise path from one start.
 
@@ -372,20 +407,16 @@ def run_unit(unit: WorkUnit) -> dict:
     S = problem.scaled.copy()
     inside = np.zeros(S.shape[0], dtype=np.bool_)
     y_scale2 = problem.scale[-1] ** 2
-    model = tuple(problem.start)
-    start_cols = [c for i in model for c in problem.columns[i]]
-    if start_cols and not apply_move(S, inside, np.asarray(start_cols, dtype=np.int64), PIVOT_TOLERANCE):
-        raise SearchError(
-            f"the starting model ({problem.start_label}) is rank-deficient: some of its columns are linear "
-            "combinations of others; start from 'empty' or leave out the duplicated forms"
-        )
+    model, left_out = _enter_start(problem, S, inside)
     rss = float(max(S[-1, -1], 0.0) / y_scale2)
     k = _k_of(problem, model)
     use_f = opts.criterion == "f_test"
     crit = np.nan if use_f else float(_criterion(problem, rss, k))
     name_of = problem.names
     path = [{
-        "step": 0, "move": "start", "term": problem.start_label, "replaced": None,
+        "step": 0, "move": "start",
+        "term": problem.start_label + (f" (left out as rank-deficient: {', '.join(left_out)})" if left_out else ""),
+        "replaced": None,
         "terms_after": tuple(name_of[i] for i in model), "rss_before": np.nan, "rss_after": rss,
         "k_before": np.nan, "k_after": k, "criterion": opts.criterion,
         "criterion_before": np.nan, "criterion_after": crit, "f_statistic": np.nan, "p_value": np.nan,
