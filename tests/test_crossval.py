@@ -233,3 +233,27 @@ def test_nested_cv_same_for_any_n_jobs(problem):
     sel1 = cv_select(cand, method="stepwise", folds=shuffled_folds(3, repeats=2), seed=4, n_jobs=1)
     sel2 = cv_select(cand, method="stepwise", folds=shuffled_folds(3, repeats=2), seed=4, n_jobs=2, backend="threading")
     pd.testing.assert_frame_equal(sel1.details["table"], sel2.details["table"])
+
+
+def test_nested_unit_repeats_selection_on_training_rows_only(problem):
+    # Each outer fold's choice equals cv_select run on that fold's training rows alone (explicit data), and its
+    # error equals an explicit refit scored on the outer rows, which the selection never saw.
+    from selectkit.parallel import spawn_seeds
+
+    X, y, cand = problem
+    result = nested_cv_error(cand, method="exhaustive", outer_folds=3, inner_folds=4, seed=8)
+    outer = make_folds(3, len(y), 8)
+    children = spawn_seeds(8, 3)
+    for fold, child, row in zip(outer, children, result.folds.itertuples()):
+        train = np.setdiff1d(np.arange(len(y)), fold.test_rows)
+        inner = cv_select(make_candidates(X[train], y[train], blocks={"cultivar": [5, 6]}), method="exhaustive",
+                          folds=4, seed=int(child.generate_state(1)[0]))
+        assert row.terms == (", ".join(inner.details["chosen_terms"]) or "(intercept only)")
+        cols = _cols(cand, inner.details["chosen"])
+        if cols:
+            pred = LinearRegression().fit(X[train][:, cols], y[train]).predict(X[fold.test_rows][:, cols])
+        else:
+            pred = np.full(fold.test_rows.size, y[train].mean())
+        assert row.test_mse == pytest.approx(np.mean((y[fold.test_rows] - pred) ** 2), rel=1e-9)
+    assert result.error == pytest.approx(result.folds["test_mse"].mean())
+    assert "exhaustive search" in result.procedure
