@@ -495,3 +495,26 @@ def test_box_tidwell_holds_the_other_predictors_linear():
         assert not alone_terms
     else:
         assert dict(alone_terms[0].params)["power"] == pytest.approx(marginal.power, abs=1e-12)
+
+
+def test_shipped_dataset_diabetes_raw_features():
+    # Dataset shipped with scikit-learn (diabetes, raw units); reference library: scipy's Box-Cox MLE.
+    from sklearn.datasets import load_diabetes
+
+    bunch = load_diabetes(scaled=False, as_frame=True)
+    frame = bunch.data.astype(float)
+    ds = Dataset(response="progression", y=bunch.target.to_numpy(float), frame=frame, numeric=tuple(frame.columns),
+                 categorical=())
+    cands = build_candidates(ds)
+    assert np.isfinite(cands.matrix).all()
+    np.testing.assert_array_equal(cands.transform(frame), cands.matrix)
+    # 'sex' takes two values (1, 2): each smooth form of it is a straight line of it, so only 'sex' remains
+    assert [t.name for t in cands.terms if t.family == "sex"] == ["sex"]
+    for t in cands.terms:
+        if t.transform == "boxcox":
+            x = frame[t.family].to_numpy()
+            assert dict(t.params)["lambda"] == pytest.approx(scipy.stats.boxcox_normmax(x, method="mle"), abs=1e-6)
+    # every feature is positive, so each gets a Box-Cox form, kept or refused as a near-duplicate
+    boxcox_families = {t.family for t in cands.terms if t.transform == "boxcox"}
+    boxcox_families |= {r.family for r in cands.refused if r.form == "boxcox"}
+    assert boxcox_families == set(frame.columns)
