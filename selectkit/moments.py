@@ -332,6 +332,7 @@ def moments_from_file(
     transform: Callable | None = None,
     chunk_rows: int = DEFAULT_CHUNK_ROWS,
     columns: list | None = None,
+    weights_column: str | None = None,
 ) -> Moments:
     """Moments of a CSV or Parquet file read in chunks, so memory does not grow with n.
 
@@ -341,14 +342,17 @@ def moments_from_file(
         A ``.csv`` (optionally compressed, read with ``pandas.read_csv(chunksize=...)``)
         or ``.parquet``/``.pq`` file (read with ``pyarrow`` ``iter_batches``).
     candidates : CandidateSet, optional
-        Whose ``transform(frame)`` maps a chunk of the raw table to
-        ``(X, y)`` or ``(X, y, w)``.
+        Its ``transform(frame)`` re-applies the stored forms to each chunk;
+        the response column ``candidates.response`` is taken through the
+        candidate set's response transform (same λ).
     transform : callable, optional
         Used instead of ``candidates.transform``: ``frame -> (X, y)`` or ``(X, y, w)``.
     chunk_rows : int
         Rows per chunk.
     columns : list of str, optional
         Only these columns are read from the file.
+    weights_column : str, optional
+        With ``candidates``: the column of row weights, if any.
 
     Returns
     -------
@@ -362,8 +366,8 @@ def moments_from_file(
         When neither ``candidates`` with a ``transform`` method nor ``transform`` is given.
     """
     step = _check_chunk_rows(chunk_rows)
-    if transform is None:
-        transform = getattr(candidates, "transform", None)
+    if transform is None and callable(getattr(candidates, "transform", None)):
+        transform = _candidate_chunks(candidates, weights_column)
     if transform is None or not callable(transform):
         raise InputError(
             "moments_from_file needs a way to turn a chunk of the table into (X, y): pass a candidate set "
@@ -403,6 +407,41 @@ def moments_from_file(
             yield out
 
     return moments_from_chunks(chunks())
+
+
+def _candidate_chunks(candidates, weights_column):
+    """frame -> (X, y[, w]) through a CandidateSet's stored forms and response transform."""
+    from .transforms import transform_response
+
+    response = candidates.response
+    rt = getattr(candidates, "response_transform", None)
+    kind = getattr(rt, "transform", "identity")
+    lam = dict(getattr(rt, "params", ())).get("lambda")
+
+    def chunk(frame):
+        for name in [response] + ([weights_column] if weights_column else []):
+            if name not in frame.columns:
+                raise InputError(
+                    f"the file has no column {name!r}; the candidates were built with it — "
+                    "pass the file the candidates came from",
+                    column=name,
+                )
+        X = np.asarray(candidates.transform(frame), dtype=np.float64)
+        y = frame[response].to_numpy(dtype=np.float64, na_value=np.nan)
+        if kind != "identity":
+            bad = int(np.count_nonzero(~(y > 0)))
+            if bad:
+                raise InputError(
+                    f"response {response!r} has {bad} values ≤ 0 or missing in a chunk of {len(y)} rows; "
+                    f"its {kind} transform needs positive values",
+                    column=response,
+                )
+            y = transform_response(y, kind, lam)
+        if weights_column:
+            return X, y, frame[weights_column].to_numpy(dtype=np.float64, na_value=np.nan)
+        return X, y
+
+    return chunk
 
 
 def _pivoted_factor(A: np.ndarray, tolerance: float):

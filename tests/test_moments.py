@@ -197,12 +197,6 @@ def test_moments_from_file_equals_in_memory(tmp_path, kind):
     np.testing.assert_allclose(got.cross, want.cross, rtol=1e-11, atol=1e-9)
     np.testing.assert_allclose(got.mean, want.mean, rtol=1e-13)
 
-    class WithTransform:
-        transform = staticmethod(_frame_to_xy)
-
-    again = moments_from_file(path, WithTransform(), chunk_rows=1000)
-    np.testing.assert_allclose(again.cross, want.cross, rtol=1e-11, atol=1e-9)
-
 
 def test_bad_input_is_named(tmp_path):
     X, y = _data(n=30)
@@ -228,3 +222,28 @@ def test_bad_input_is_named(tmp_path):
     with pytest.raises(DataFileError, match="csv or .parquet"):
         moments_from_file(tmp_path / "bays.xlsx", transform=_frame_to_xy)
     assert isinstance(whole, Moments)
+
+
+@pytest.mark.parametrize("response_transform", [None, "log"])
+def test_moments_from_file_through_a_candidate_set(tmp_path, response_transform):
+    # The whole intake → candidates path, then the file pass re-applies the stored forms chunk by chunk.
+    from selectkit.candidates import build_candidates
+    from selectkit.data import prepare
+
+    rng = np.random.default_rng(15)
+    n = 300
+    frame = pd.DataFrame({
+        "light": rng.uniform(5, 40, n),
+        "co2": rng.uniform(400, 1200, n),
+        "cultivar": rng.choice(["Alpha", "Brava", "Corre"], n),
+    })
+    frame["yield_kg_m2"] = 20 + 4 * np.log(frame["light"]) + 0.002 * frame["co2"] + rng.normal(size=n)
+    path = tmp_path / "bays.parquet"
+    frame.to_parquet(path)
+    cands = build_candidates(prepare(frame, response="yield_kg_m2"), forms=("identity", "log", "sqrt"),
+                             response_transform=response_transform)
+    got = moments_from_file(path, cands, chunk_rows=70)
+    want = compute_moments(cands.matrix, cands.y)
+    assert got.n == n and got.m == cands.matrix.shape[1]
+    np.testing.assert_allclose(got.cross, want.cross, rtol=1e-9, atol=1e-9)
+    np.testing.assert_allclose(got.mean, want.mean, rtol=1e-12, atol=1e-12)
