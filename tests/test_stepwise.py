@@ -140,18 +140,24 @@ def problems(draw):
     for j in range(1, 1 + n_forms):
         X[:, j] = np.exp(X[:, 0] / (j + 1)) + 0.1 * rng.normal(size=n)
         families[j] = "v0"
-    beta = rng.normal(size=m) * rng.integers(0, 2, size=m)
+    blocks = None
+    if draw(st.booleans()):  # a 3-level categorical as a block of two dummy columns, entering whole
+        level = rng.integers(0, 3, size=n)
+        X = np.column_stack([X, level == 1, level == 2]).astype(float)
+        families += ["group", "group"]
+        blocks = {"group": [m, m + 1]}
+    beta = rng.normal(size=X.shape[1]) * rng.integers(0, 2, size=X.shape[1])
     y = X @ beta + rng.normal(size=n)
     direction = draw(st.sampled_from(["forward", "backward", "both"]))
     criterion = draw(st.sampled_from(["aic", "bic", "aicc", "f_test"]))
-    return X, y, families, direction, criterion
+    return X, y, families, blocks, direction, criterion
 
 
 @settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(problems())
 def test_path_equals_statsmodels_refit_loop(problem):
-    X, y, families, direction, criterion = problem
-    cand = make_candidates(X, y, families=families)
+    X, y, families, blocks, direction, criterion = problem
+    cand = make_candidates(X, y, families=families, blocks=blocks)
     start = "empty" if direction == "forward" else "full"
     found = stepwise_search(cand, direction=direction, criterion=criterion, start=start,
                             alpha_enter=0.1, alpha_remove=0.2)

@@ -102,7 +102,9 @@ class StepwiseOptions:
     starts : tuple
         Starting models, each ``"empty"`` (forced terms only), ``"full"`` (every
         family in its **first form in candidate order**, every block, and the
-        forced terms) or a tuple of term names.  Each start is one work unit;
+        forced terms; a term whose columns are combinations of those already
+        in is left out and named in the path's start record) or a tuple of
+        term names.  Each start is one work unit;
         the models found from all starts are pooled.
     swaps : bool
         Offer family swaps (one form of a variable for another).
