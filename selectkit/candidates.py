@@ -724,10 +724,7 @@ def _with_fix(problem, col, x, c, transform, q):
     elif transform == "boxtidwell":
         target = f"a Box-Tidwell power of {col} + {tf.format_number(suggestion)}"
     else:
-        target = tf.term_name(transform, col, (("shift", suggestion),) if transform != "boxcox" else
-                              (("shift", suggestion), ("lambda", 1.0)))
-        if transform == "boxcox":
-            target = f"boxcox({col} + {tf.format_number(suggestion)}, λ)"
+        target = tf.term_name(transform, col, (("shift", suggestion),))
     if c:
         return f"{problem} — the shift {tf.format_number(c)} is too small; pass shifts={{{col!r}: " \
                f"{tf.format_number(suggestion)}}} to use {target}"

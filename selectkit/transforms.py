@@ -5,20 +5,24 @@ results) out.  Nothing here knows about tables, candidates or searches.
 
 Forms of a predictor ``x`` (``c`` is an optional shift the user asked for)
 
-=================  ==========================================  ======================
-transform          value                                       defined where
-=================  ==========================================  ======================
-``identity``       x                                           everywhere
-``log``            log(x + c)  (natural log)                   x + c > 0
-``sqrt``           √(x + c)                                    x + c ≥ 0
-``reciprocal``     1/(x + c)                                   x + c ≠ 0
-``square``         x²                                          everywhere
-``power``          (x + c)^p, p = 0 meaning log(x + c)         see :func:`domain_problem`
-``boxcox``         ((x + c)^λ − 1)/λ, log(x + c) at λ = 0      x + c > 0
-``yeojohnson``     Yeo & Johnson (2000), see :func:`yeojohnson` everywhere
-``boxtidwell``     (x + c)^α with α from :func:`box_tidwell`   x + c > 0
-``product``        x·z (an interaction)                        everywhere
-=================  ==========================================  ======================
+===============  ===============================================  ================
+transform        value                                            defined where
+===============  ===============================================  ================
+``identity``     x                                                everywhere
+``log``          log(x + c)  (natural log)                        x + c > 0
+``sqrt``         √(x + c)                                         x + c ≥ 0
+``reciprocal``   1/(x + c)                                        x + c ≠ 0
+``square``       x²                                               everywhere
+``power``        (x + c)^p, p = 0 meaning log(x + c)              see below
+``boxcox``       ((x + c)^λ − 1)/λ, log(x + c) at λ = 0           x + c > 0
+``yeojohnson``   Yeo & Johnson (2000), see :func:`yeojohnson`     everywhere
+``boxtidwell``   (x + c)^α, α from :func:`box_tidwell`            x + c > 0
+``product``      x·z (an interaction)                             everywhere
+===============  ===============================================  ================
+
+A power p is defined everywhere for p = 1, 2, 3; where x + c ≥ 0 for p = 0.5;
+where x + c ≠ 0 for p = −1, −2; where x + c > 0 for p = 0, −0.5
+(:func:`domain_problem` says why a form is undefined on given data).
 
 Readable names (:func:`term_name`) use plain notation: ``x``, ``log(x)``,
 ``sqrt(x)``, ``1/x``, ``x^2``, ``x^-0.5``, ``boxcox(x, 0.37)``,
@@ -301,7 +305,8 @@ class BoxTidwellResult:
     statistic, pvalue : float
         t statistic and two-sided p-value of the constructed variable x·log x
         added to the straight-line fit of y on x: the test of α = 1
-        (Box & Tidwell 1962; Fox, Applied Regression Analysis, 3rd ed., §12.5).
+        (Box & Tidwell 1962; Fox, Applied Regression Analysis and Generalized
+        Linear Models, 3rd ed., 2016, ch. 12 — chapter cited from memory).
     reference : str
     """
 
