@@ -333,3 +333,11 @@ def test_same_result_on_threading_backend():
     b = stepwise_search(cand, starts=["empty", "full"], n_jobs=2, backend="threading")
     assert a.subsets == b.subsets and np.array_equal(a.rss, b.rss)
     assert [s["term"] for s in a.details["path"]] == [s["term"] for s in b.details["path"]]
+
+
+def test_time_budget_stops_the_path():
+    X, y, cand = _blocky()
+    found = stepwise_search(cand, time_budget=1e-9)
+    assert found.stopped_by.startswith("time budget") and found.subsets == ((),)
+    with pytest.raises(OptionError, match="time_budget"):
+        stepwise_search(cand, time_budget=-1)

@@ -62,6 +62,7 @@ Goodnight, J. H. (1979). A tutorial on the SWEEP operator. Amer. Statist. 33(3),
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass, field
 from types import MappingProxyType
 from typing import Any, Sequence
@@ -116,6 +117,9 @@ class StepwiseOptions:
         Upper limit on moves per start; ``None`` means ``4 × terms + 10``.
     convention : {"selectkit", "statsmodels"}
         Parameter count of the criterion (see :mod:`selectkit.criteria`).
+    time_budget : float or None
+        Seconds per start; when reached the path stops where it is (and says
+        so).  A path cut by the clock may differ between runs.
     """
 
     direction: str = "both"
@@ -129,6 +133,7 @@ class StepwiseOptions:
     hierarchy: bool = True
     max_steps: int | None = None
     convention: str = "selectkit"
+    time_budget: float | None = None
 
     def __post_init__(self):
         if self.direction not in DIRECTIONS:
@@ -148,6 +153,11 @@ class StepwiseOptions:
             )
         if self.max_steps is not None and (not isinstance(self.max_steps, (int, np.integer)) or self.max_steps < 1):
             raise OptionError(f"max_steps must be a positive whole number or None (got {self.max_steps!r})")
+        if self.time_budget is not None and not (
+            isinstance(self.time_budget, (int, float, np.floating)) and not isinstance(self.time_budget, bool)
+            and self.time_budget > 0
+        ):
+            raise OptionError(f"time_budget must be None or a positive number of seconds (got {self.time_budget!r})")
         if self.convention not in criteria.CONVENTIONS:
             raise OptionError(
                 f"unknown criterion convention {self.convention!r}; choose one of {', '.join(criteria.CONVENTIONS)}"
@@ -429,7 +439,11 @@ def run_unit(unit: WorkUnit) -> dict:
     singular = 0
     max_steps = opts.max_steps if opts.max_steps is not None else 4 * len(problem.names) + 10
     stopped_by = None
+    started = time.perf_counter()
     for step in range(1, max_steps + 1):
+        if opts.time_budget is not None and time.perf_counter() - started > opts.time_budget:
+            stopped_by = f"time budget of {opts.time_budget:g} s reached"
+            break
         moves = _admissible_moves(problem, model)
         if not moves:
             stopped_by = "no admissible move remains"
@@ -593,6 +607,7 @@ def stepwise_search(
     hierarchy: bool = True,
     max_steps: int | None = None,
     convention: str = "selectkit",
+    time_budget: float | None = None,
     n_jobs: int = 1,
     backend: str = "loky",
     scheduler: str | None = None,
@@ -626,6 +641,8 @@ def stepwise_search(
     max_steps : int, optional
         Default ``4 × number of terms + 10`` per start.
     convention : {"selectkit", "statsmodels"}
+    time_budget : float, optional
+        Seconds per start.
     n_jobs, backend, scheduler
         Passed to :func:`selectkit.parallel.run_units` (one unit per start).
 
@@ -651,7 +668,7 @@ def stepwise_search(
         direction=direction, criterion=criterion, alpha_enter=alpha_enter, alpha_remove=alpha_remove,
         starts=tuple(starts) if starts is not None else (start if isinstance(start, str) else tuple(start),),
         swaps=swaps, forced=tuple(forced), forbidden=tuple(forbidden), hierarchy=hierarchy,
-        max_steps=max_steps, convention=convention,
+        max_steps=max_steps, convention=convention, time_budget=time_budget,
     )
     if moments is None:
         moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
