@@ -236,3 +236,15 @@ def test_max_size_below_the_forced_width_raises():
     cands = build_problem(3, 40, 3, [], 4, False, False, False)
     with pytest.raises(OptionError, match="max_size"):
         exhaustive_search(cands, forced=["cultivar"], max_size=2)
+
+
+def test_more_columns_than_rows():
+    # n = 12 rows, 14 columns: models stop at 10 columns (k = 11 ≤ n − 1); rank-deficient ones are skipped.
+    rng = np.random.default_rng(0)
+    X = rng.normal(size=(12, 14))
+    y = X[:, 0] - X[:, 3] + 0.3 * rng.normal(size=12)
+    cands = make_candidates(X, y)
+    found = exhaustive_search(cands, n_best_per_size=2, max_size=5)
+    assert_matches(found, brute_force(cands, 2, max_size=5))
+    whole = exhaustive_search(cands, n_best_per_size=1)
+    assert max(whole.k) == 11 and whole.exact

@@ -10,7 +10,8 @@ columns enter together) under the constraints
 * forced terms (``Term.forced`` or ``forced=``) are in every model, forbidden
   terms in none;
 * size, the number of columns (k − 1, since a block of L levels adds L − 1
-  coefficients), at most ``max_size``,
+  coefficients), at most ``max_size`` and at most n − 2 (every model keeps a
+  residual degree of freedom),
 
 and keeps, for every size, the ``n_best_per_size`` models with the smallest
 residual sum of squares.  At fixed size and fixed n every rss-based criterion
@@ -239,13 +240,16 @@ def _prepare(candidates, moments: Moments, options: ExhaustiveOptions) -> _Probl
         t_bit[j] = np.uint64(1) << np.uint64(rank[i])
     total_cols = int(t_width.sum())
     max_size = total_cols if options.max_size is None else min(int(options.max_size), total_cols)
+    # at least one residual degree of freedom: k = size + 1 ≤ n − 1
+    max_size = max(min(max_size, int(moments.n) - 2), 0)
     A, _ = scaled_cross(moments.cross)
     forced = tuple(j for j, i in enumerate(allowed) if terms[i].name in forced_names)
     forced_width = int(sum(t_width[j] for j in forced))
     if forced_width > max_size:
         raise OptionError(
-            f"max_size={options.max_size} columns is smaller than the {forced_width} columns of the forced "
-            "terms; raise max_size or force fewer terms"
+            f"the forced terms have {forced_width} columns but models may have at most {max_size} "
+            f"(max_size={options.max_size}, and {moments.n} rows leave room for {max(moments.n - 2, 0)}); "
+            "raise max_size, force fewer terms or add rows"
         )
     free = [j for j in range(n_terms) if j not in forced]
     problem = _Problem(A, tuple(allowed), t_cols, t_width, t_fam, t_req, t_bit,
