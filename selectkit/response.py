@@ -62,6 +62,8 @@ class ResponseBoxCox:
     n : int
     verdict : str
         One sentence for the report.
+    caution : str
+        The usual caution about choosing a scale from the same data.
     reference : str
     """
 
@@ -74,6 +76,9 @@ class ResponseBoxCox:
     profile: np.ndarray
     n: int
     verdict: str
+    caution: str = ("λ was chosen from these data, so p-values and intervals of a model fitted on the chosen "
+                    "scale are optimistic; the choice of scale rests with the practitioner and local "
+                    "professional standards.")
     reference: str = "Box, G. E. P. and Cox, D. R. (1964), J. R. Statist. Soc. B 26(2), 211-252"
 
 

@@ -25,6 +25,7 @@ def test_log_scale_truth_gives_interval_with_zero_not_one():
     assert not (low <= 1.0 <= high)
     assert result.suggested == 0.0
     assert "log" in result.verdict
+    assert "optimistic" in result.caution
 
 
 def test_square_scale_truth_gives_interval_with_one_half():
