@@ -606,7 +606,10 @@ def _numeric_family(builder, col, x, y, weights, plan, shift_info, forced, near_
                     covariates=None):
     """Build every form of one numeric predictor (``covariates``: held linear in Box-Tidwell)."""
     c, auto = shift_info if shift_info is not None else (0.0, False)
-    n = x.shape[0]
+    if x.shape[0] == 0 or np.ptp(x) == 0:
+        builder.refuse(col, "every form", f"{col} is constant on these data; no form of it can enter a model",
+                       name=col)
+        return
     if shift_info is not None:
         how = "auto: the smallest shift making every value at least 1" if auto else "as asked"
         builder.notes.append(f"{col}: forms needing positive values use {col} + {tf.format_number(c)} ({how})")

@@ -296,6 +296,14 @@ def test_constant_or_overflowing_forms_are_refused():
     assert np.isfinite(cands.matrix).all()
 
 
+def test_constant_predictor_is_refused_once():
+    ds = small_dataset({"x": np.arange(1.0, 9.0), "flat": np.full(8, 3.0)})
+    cands = build_candidates(ds)
+    assert "flat" not in cands.families
+    (r,) = [r for r in cands.refused if r.family == "flat"]
+    assert "constant" in r.reason
+
+
 def test_too_few_rows_for_the_widest_model():
     rng = np.random.default_rng(0)
     ds = small_dataset({f"x{j}": rng.uniform(1, 2, 6) for j in range(5)})
