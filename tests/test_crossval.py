@@ -257,3 +257,14 @@ def test_nested_unit_repeats_selection_on_training_rows_only(problem):
         assert row.test_mse == pytest.approx(np.mean((y[fold.test_rows] - pred) ** 2), rel=1e-9)
     assert result.error == pytest.approx(result.folds["test_mse"].mean())
     assert "exhaustive search" in result.procedure
+
+
+def test_holdout_scheme_fills_holdout_column(problem):
+    X, y, cand = problem
+    table = score_subsets(cand, [(0,), (0, 2)], folds=holdout_split(0.3), seed=2)
+    rows = make_folds(holdout_split(0.3), len(y), 2)[0].test_rows
+    train = np.setdiff1d(np.arange(len(y)), rows)
+    fit = LinearRegression().fit(X[train][:, [0, 2]], y[train])
+    expected = np.mean((y[rows] - fit.predict(X[rows][:, [0, 2]])) ** 2)
+    assert table["holdout_mse"].iloc[1] == pytest.approx(expected, rel=1e-9)
+    assert np.isnan(table["cv_se"]).all()  # one fold: no spread to measure

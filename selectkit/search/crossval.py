@@ -285,7 +285,9 @@ def score_subsets(candidates, subsets, *, folds=5, seed=0, moments=None, holdout
     holdout : float, array of bool or array of int, optional
         A part of the rows to hold out: a fraction (drawn from ``seed``), a
         boolean mask or row indices.  ``holdout_mse`` is the error on it of the
-        model fitted on the other rows.  PRESS and CV use all rows.
+        model fitted on the other rows.  PRESS and CV use all rows.  When
+        ``folds`` is itself a :func:`holdout_split`, its one fold fills
+        ``holdout_mse`` too.
 
     Returns
     -------
@@ -354,7 +356,10 @@ def score_subsets(candidates, subsets, *, folds=5, seed=0, moments=None, holdout
             "n_folds": len(fold_list), "holdout_mse": hold,
         })
     columns = ["subset", "k", "rss", "press", "cv_mse", "cv_se", "n_folds", "holdout_mse"]
-    return pd.DataFrame.from_records(records, columns=columns)
+    table = pd.DataFrame.from_records(records, columns=columns)
+    if holdout is None and _as_scheme(folds).kind == "holdout":
+        table["holdout_mse"] = table["cv_mse"]  # the one fold is the held-out part
+    return table
 
 
 def _holdout_rows(holdout, n, seed):
