@@ -19,7 +19,6 @@ Box, G. E. P. and Cox, D. R. (1964). An analysis of transformations.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
