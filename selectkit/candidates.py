@@ -808,7 +808,9 @@ def build_candidates(
     fractional_polynomials : bool, default False
         Add the eight powers {−2, −1, −0.5, 0, 0.5, 1, 2, 3} of Royston & Altman
         (1994); powers with a name of their own appear under it (x^0 is log(x),
-        x^0.5 sqrt(x), x^-1 1/x, x^1 x, x^2 x^2).
+        x^0.5 sqrt(x), x^-1 1/x, x^1 x, x^2 x^2).  Since a model holds one form
+        per family, these are first-degree fractional polynomials; pairs of
+        powers (degree two) are not built.
     shifts : dict, optional
         ``{column: c}`` or ``{column: "auto"}``: forms that need positive (or
         non-negative, non-zero) values — log, sqrt, reciprocal, negative and
@@ -909,6 +911,8 @@ def build_candidates(
         with np.errstate(over="ignore", invalid="ignore"):
             values = xa * xb
         problem = _check_column(values, name)
+        if problem is None and name in builder.names:
+            problem = f"{name} is already a candidate under the same name (a column of that name?)"
         if problem:
             builder.refuse(name, "product", problem, name=name)
             continue
