@@ -248,3 +248,18 @@ def test_more_columns_than_rows():
     assert_matches(found, brute_force(cands, 2, max_size=5))
     whole = exhaustive_search(cands, n_best_per_size=1)
     assert max(whole.k) == 11 and whole.exact
+
+
+def test_same_result_on_threads_and_dask():
+    distributed = pytest.importorskip("distributed")
+    X = ar1_design(200, 14, seed=8)
+    y = X[:, [1, 6, 12]] @ [1.0, -0.5, 0.7] + np.random.default_rng(9).normal(size=200)
+    cands = make_candidates(X, y)
+    one = exhaustive_search(cands, n_best_per_size=3)
+    threads = exhaustive_search(cands, n_best_per_size=3, n_jobs=2, backend="threading")
+    with distributed.Client(processes=False, n_workers=1, threads_per_worker=2, dashboard_address=None):
+        on_dask = exhaustive_search(cands, n_best_per_size=3, n_jobs=2, backend="dask")
+    for other in (threads, on_dask):
+        assert other.subsets == one.subsets
+        np.testing.assert_array_equal(other.rss, one.rss)
+        assert (other.evaluated, other.pruned) == (one.evaluated, one.pruned)

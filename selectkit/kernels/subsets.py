@@ -416,7 +416,7 @@ def _order_before(a, b, tier, fam_inc, inc):
     return inc[a] > inc[b]
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, tol,
                      init_thr, thr, best_rss, best_mask, best_count,
                      st_terms, st_len, st_k, st_bound, st_root, top_arr,
@@ -437,6 +437,7 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
 
     State lives in the arrays passed in, so a search can stop after
     ``node_budget`` nodes (a time budget) and be resumed by calling again.
+    Compiled without the GIL, so units run in parallel on the threading backend.
 
     Returns
     -------
@@ -652,7 +653,7 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
     return top_arr[0] < 0
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def all_subsets_rss(A, cols, tol):
     """Scaled rss of every subset of ``cols`` (intercept implied), by the dropping-columns tree.
 
