@@ -822,8 +822,10 @@ def build_candidates(
         ``True`` for every pair of numeric predictors (named with the two
         columns in alphabetical order), or a list of pairs.
     near_duplicate : float or None, default 0.9999
-        A form whose correlation with an earlier form of the same family exceeds
-        this in absolute value is dropped (and reported); None keeps all.
+        A form whose (unweighted Pearson) correlation with an earlier kept form
+        of the same family exceeds this in absolute value is dropped and
+        reported, naming both; None keeps all.  Threshold: common practice, no
+        single source.
     response_transform : None, "identity", "log", "sqrt" or ("boxcox", λ)
         Transform of the response; its log-Jacobian (Σ log|dz/dy|, for Box-Cox
         (λ − 1) Σ log y) is stored so criteria stay comparable across response
