@@ -98,3 +98,22 @@ def test_backward_aic_from_full_matches_statsmodels_aic(hald):
         cols = [NAMES.index(t) for t in step["terms_after"]]
         ref = sm.OLS(y, sm.add_constant(X[:, cols]) if cols else np.ones((13, 1))).fit()
         assert step["criterion_after"] == pytest.approx(ref.aic, rel=1e-9)
+
+
+def test_exact_search_agrees_with_published_best_subsets(hald):
+    exhaustive = pytest.importorskip("selectkit.search.exhaustive")
+    X, y, cand = hald
+    found = exhaustive.exhaustive_search(cand, n_best_per_size=1)
+    tss = float(((y - y.mean()) ** 2).sum())
+    best = {int(k): (s, 1 - r / tss) for s, r, k in zip(found.subsets, found.rss, found.k)}
+    assert best[2][0] == (3,) and best[2][1] == pytest.approx(0.675, abs=1e-3)  # Draper & Smith: x4, 0.675
+    assert best[3][0] == (0, 1) and best[3][1] == pytest.approx(0.979, abs=1e-3)  # Draper & Smith: x1, x2, 0.979
+    # 13 folds of one row are leave-one-out: the CV error of each size equals PRESS/13 (Allen 1974)
+    from selectkit.search.crossval import cv_select, press
+
+    found_cv = cv_select(cand, method="exhaustive", folds=13)
+    for row in found_cv.details["table"].itertuples():
+        assert row.cv_mse == pytest.approx(press(cand, row.subset) / 13, rel=1e-9)
+    # the choice is one of the good models the text singles out ({x1,x2}, {x1,x4}, {x1,x2,x4}, {x1,x2,x3};
+    # from memory of Draper & Smith's discussion)
+    assert found_cv.details["chosen"] in {(0, 1), (0, 3), (0, 1, 3), (0, 1, 2)}
