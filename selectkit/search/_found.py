@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import copyreg
 from dataclasses import dataclass, field
 from types import MappingProxyType
 from typing import Mapping
@@ -9,6 +10,16 @@ from typing import Mapping
 import numpy as np
 
 __all__ = ["Found", "mark_incomplete", "pool"]
+
+
+def _read_only(items: dict) -> MappingProxyType:
+    return MappingProxyType(items)
+
+
+# Frozen values keep their extras in read-only mappings, which the standard
+# pickle cannot handle; register a reducer (pickled as a copy, rebuilt
+# read-only) so Found values travel to worker processes and into saved results.
+copyreg.pickle(MappingProxyType, lambda proxy: (_read_only, (dict(proxy),)))
 
 
 @dataclass(frozen=True, eq=False)
