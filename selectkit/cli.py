@@ -222,6 +222,9 @@ def _run_search(args) -> int:
 
     started = time.perf_counter()
     setup = api.prepare_search(args.table, **_table_options(args), **_search_options(args))
+    for note in setup.dataset.report.notes:
+        if note.kind in ("warning", "dropped"):
+            _say(f"note: {note.message}", quiet=args.quiet)
     _say(f"read {setup.dataset.n} rows; {len(setup.candidates.terms)} candidate terms from "
          f"{len(setup.candidates.families)} variables; running: {', '.join(r.name for r in setup.runs)}",
          quiet=args.quiet)
@@ -248,6 +251,8 @@ def _run_forms(args) -> int:
     cands = _candidates.build_candidates(dataset, **build)
     for note in dataset.report.notes:
         print(f"note: {note.message}")
+    for note in cands.notes:
+        print(f"note: {note}")
     table = cands.describe()
     import pandas as pd
 
