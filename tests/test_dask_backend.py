@@ -36,7 +36,7 @@ def test_dask_backend_gives_the_local_shortlist(tmp_path_factory, cluster):
     local = _run(_job(local_folder), resume=True, progress=False, engine=TablesEngine())
 
     dask_folder = tmp_path_factory.mktemp("dask")
-    spec = _job(dask_folder, f'workers = 2\nbackend = "dask"\nscheduler = "{cluster.scheduler_address}"\n')
+    spec = _job(dask_folder, f'workers = 8\nbackend = "dask"\nscheduler = "{cluster.scheduler_address}"\n')
     assert spec.backend == "dask" and spec.scheduler == cluster.scheduler_address
     on_dask = _run(spec, resume=True, progress=False, engine=TablesEngine())
 

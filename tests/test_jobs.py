@@ -588,3 +588,16 @@ def test_cli_runs_a_real_job_end_to_end(tmp_path):
     status = _cli("status", "results", cwd=tmp_path)
     assert status.returncode == 0 and "job job: complete" in status.stdout
     assert "log(x0) + sqrt(x2) + x5" in status.stdout
+
+
+def test_half_made_store_is_refused_readably(tmp_path):
+    import sqlite3
+
+    with sqlite3.connect(tmp_path / STORE_NAME) as db:
+        db.execute("CREATE TABLE about (name TEXT PRIMARY KEY, value TEXT NOT NULL)")
+    with pytest.raises(StoreError, match="not a complete run store .*try again in a moment"):
+        store_status(tmp_path)
+    (tmp_path / "junk").mkdir()
+    (tmp_path / "junk" / STORE_NAME).write_bytes(b"not a database at all" * 100)
+    with pytest.raises(StoreError, match="not a readable run store"):
+        store_status(tmp_path / "junk")

@@ -32,6 +32,7 @@ __all__ = ["RunStore", "StoreLock", "STORE_NAME", "data_fingerprint", "find_stor
 STORE_NAME = "run-store.sqlite"
 _LOCK_SUFFIX = ".lock"
 SCHEMA_VERSION = 1
+_TABLES = ("about", "units", "pooled", "shortlist", "log")
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS about (name TEXT PRIMARY KEY, value TEXT NOT NULL);
@@ -246,7 +247,7 @@ class RunStore:
             # NORMAL: a commit survives the process being killed (not a power cut
             # between checkpoints), at a fraction of FULL's cost.
             db.execute("PRAGMA synchronous=NORMAL")
-            db.executescript(_SCHEMA)
+            db.executescript("BEGIN IMMEDIATE;" + _SCHEMA + "COMMIT;")  # all tables appear at once
         except sqlite3.DatabaseError as err:
             raise StoreError(f"{str(path)!r} is not a usable run store ({err}); move it away or choose another "
                              f"output folder") from err
@@ -265,9 +266,14 @@ class RunStore:
         path = find_store(folder_or_store)
         try:
             db = sqlite3.connect(f"{path.as_uri()}?mode=ro", uri=True, timeout=30.0, isolation_level=None)
-            db.execute("SELECT count(*) FROM about").fetchone()
+            tables = {name for (name,) in db.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
         except sqlite3.DatabaseError as err:
             raise StoreError(f"{str(path)!r} is not a readable run store ({err})") from err
+        missing = set(_TABLES) - tables
+        if missing:
+            db.close()
+            raise StoreError(f"{str(path)!r} is not a complete run store (no table {', '.join(sorted(missing))}); "
+                             f"if a job is starting, try again in a moment")
         return cls(path, db, read_only=True)
 
     def close(self) -> None:
