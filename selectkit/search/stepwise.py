@@ -297,12 +297,22 @@ def plan(candidates, moments, options: StepwiseOptions) -> list[WorkUnit]:
     return units
 
 
+def _after(model, move):
+    """The sorted model a move leads to."""
+    kind, term, replaced = move
+    if kind == "add":
+        return tuple(sorted(model + (term,)))
+    if kind == "drop":
+        return tuple(j for j in model if j != term)
+    return tuple(sorted([j for j in model if j != replaced] + [term]))
+
+
 def _k_of(problem, model):
     return 1 + sum(len(problem.columns[i]) for i in model)
 
 
 def _admissible_moves(problem, model):
-    """List of (kind, term, replaced, new_model) in a fixed order."""
+    """List of (kind, term, replaced) in a fixed order; see :func:`_after` for the resulting model."""
     opts = problem.options
     in_model = set(model)
     fams_in = {problem.families[i]: i for i in model}
@@ -314,13 +324,17 @@ def _admissible_moves(problem, model):
         return not opts.hierarchy or all(r in families for r in problem.requires[term])
 
     if allow_drop:
+        required_by: dict[str, int] = {}
+        for j in model:
+            for r in problem.requires[j]:
+                required_by[r] = required_by.get(r, 0) + 1
         for i in model:
             if i in problem.forced:
                 continue
             fam = problem.families[i]
-            if opts.hierarchy and any(fam in problem.requires[j] for j in model if j != i):
+            if opts.hierarchy and required_by.get(fam, 0) > 0:
                 continue
-            moves.append(("drop", i, None, tuple(j for j in model if j != i)))
+            moves.append(("drop", i, None))
     if allow_add:
         families = set(fams_in)
         for i in range(len(problem.names)):
@@ -328,7 +342,7 @@ def _admissible_moves(problem, model):
                 continue
             if not requires_ok(i, families):
                 continue
-            moves.append(("add", i, None, tuple(sorted(model + (i,)))))
+            moves.append(("add", i, None))
     if opts.swaps:
         families = set(fams_in)
         for i in range(len(problem.names)):
@@ -338,7 +352,7 @@ def _admissible_moves(problem, model):
             old = fams_in[fam]
             if old in problem.forced or not requires_ok(i, families):
                 continue
-            moves.append(("swap", i, old, tuple(sorted([j for j in model if j != old] + [i]))))
+            moves.append(("swap", i, old))
     return moves
 
 
@@ -448,7 +462,7 @@ def run_unit(unit: WorkUnit) -> dict:
         if not moves:
             stopped_by = "no admissible move remains"
             break
-        col_lists = [_columns_of_move(problem, kind, t, r) for kind, t, r, _ in moves]
+        col_lists = [_columns_of_move(problem, kind, t, r) for kind, t, r in moves]
         width = max(len(c) for c in col_lists)
         table = np.full((len(moves), width), -1, dtype=np.int64)
         for r, cols in enumerate(col_lists):
@@ -457,27 +471,31 @@ def run_unit(unit: WorkUnit) -> dict:
         new_rss = new_rss / y_scale2
         evaluated += len(moves)
         singular += int(bad.sum())
-        new_k = np.array([_k_of(problem, m[3]) for m in moves])
+        width = [len(c) for c in problem.columns]
+        new_k = np.array([k + width[t] if kind == "add" else k - width[t] if kind == "drop"
+                          else k - width[r] + width[t] for kind, t, r in moves])
         choice = None
         info = (np.nan, np.nan)
         if use_f:
-            choice, info = _choose_by_f(problem, moves, new_rss, bad, new_k, rss, k)
+            choice, info = _choose_by_f(problem, moves, new_rss, bad, new_k, rss, k, model)
         else:
             values = _criterion(problem, np.where(bad, 1.0, new_rss), new_k)
             values = np.where(bad | (problem.n - new_k <= 0), np.inf, values)
-            keys = [
-                (values[r], int(new_k[r]), tuple(sorted(name_of[i] for i in moves[r][3])), r)
-                for r in range(len(moves)) if np.isfinite(values[r])
-            ]
-            if keys:
-                best = min(keys)
-                if best[0] < crit - _IMPROVEMENT:
-                    choice = best[3]
+            finite = np.flatnonzero(np.isfinite(values))
+            if finite.size:
+                lowest = values[finite].min()
+                # ties on the criterion (exact equality) are broken by k, then the sorted term names
+                tied = [r for r in finite if values[r] == lowest]
+                best = min((int(new_k[r]), tuple(sorted(name_of[i] for i in _after(model, moves[r]))), r)
+                           for r in tied)
+                if lowest < crit - _IMPROVEMENT:
+                    choice = best[2]
         if choice is None:
             stopped_by = "no move improves the criterion" if not use_f else \
                 "no term passes the entry or removal test and no swap lowers the residual mean square"
             break
-        kind, term, replaced, new_model = moves[choice]
+        kind, term, replaced = moves[choice]
+        new_model = _after(model, moves[choice])
         if new_model in seen:
             stopped_by = (f"cycle detected: {kind} {name_of[term]} would return to a model already on the path "
                           f"({', '.join(name_of[i] for i in new_model) or 'intercept only'})")
@@ -506,14 +524,20 @@ def run_unit(unit: WorkUnit) -> dict:
             "stopped_by": stopped_by, "evaluated": evaluated, "singular": singular}
 
 
-def _choose_by_f(problem, moves, new_rss, bad, new_k, rss, k):
+def _choose_by_f(problem, moves, new_rss, bad, new_k, rss, k, model):
     """Efroymson's order: removal test, then entry test, then the best swap."""
     opts = problem.options
     n = problem.n
     names = problem.names
 
     def key_names(r):
-        return tuple(sorted(names[i] for i in moves[r][3]))
+        return tuple(sorted(names[i] for i in _after(model, moves[r])))
+
+    def best_of(entries):
+        """Lowest (value, k), ties broken by the sorted term names (computed for tied entries only)."""
+        low = min((e[0], e[1]) for e in entries)
+        tied = [e for e in entries if (e[0], e[1]) == low]
+        return min(tied, key=lambda e: key_names(e[2]))
 
     kinds = np.array([m[0] for m in moves])
     good = ~np.asarray(bad)
@@ -522,25 +546,25 @@ def _choose_by_f(problem, moves, new_rss, bad, new_k, rss, k):
     swap_rows = np.flatnonzero((kinds == "swap") & good)
     f_drop, p_drop = _f_tests(new_rss[drop_rows], rss, k - new_k[drop_rows], n, np.full(drop_rows.size, k))
     f_add, p_add = _f_tests(np.full(add_rows.size, rss), new_rss[add_rows], new_k[add_rows] - k, n, new_k[add_rows])
-    drops = [(-p_drop[j], int(new_k[r]), key_names(r), r, f_drop[j], p_drop[j])
+    drops = [(-p_drop[j], int(new_k[r]), r, f_drop[j], p_drop[j])
              for j, r in enumerate(drop_rows) if np.isfinite(p_drop[j])]
-    adds = [(p_add[j], int(new_k[r]), key_names(r), r, f_add[j], p_add[j])
+    adds = [(p_add[j], int(new_k[r]), r, f_add[j], p_add[j])
             for j, r in enumerate(add_rows) if np.isfinite(p_add[j])]
-    swaps = [(new_rss[r] / (n - new_k[r]), int(new_k[r]), key_names(r), r, np.nan, np.nan)
+    swaps = [(new_rss[r] / (n - new_k[r]), int(new_k[r]), r, np.nan, np.nan)
              for r in swap_rows if n - new_k[r] > 0]
     if drops:
-        best = min(drops)
-        if best[5] > opts.alpha_remove:
-            return best[3], (best[4], best[5])
+        best = best_of(drops)
+        if best[4] > opts.alpha_remove:
+            return best[2], (best[3], best[4])
     if adds:
-        best = min(adds)
-        if best[5] < opts.alpha_enter:
-            return best[3], (best[4], best[5])
+        best = best_of(adds)
+        if best[4] < opts.alpha_enter:
+            return best[2], (best[3], best[4])
     if swaps and n - k > 0:
-        best = min(swaps)
+        best = best_of(swaps)
         current = rss / (n - k)
         if best[0] < current * (1.0 - 1e-12):
-            return best[3], (np.nan, np.nan)
+            return best[2], (np.nan, np.nan)
     return None, (np.nan, np.nan)
 
 
