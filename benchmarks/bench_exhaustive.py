@@ -35,7 +35,7 @@ import numpy as np
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
-from _data import candidates_for, family_candidates, family_problem, linear_problem  # noqa: E402
+from _data import candidates_for, family_candidates, linear_problem  # noqa: E402
 
 
 def _table(title, header, rows):

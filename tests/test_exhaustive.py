@@ -10,7 +10,6 @@ from hypothesis import strategies as st
 
 from selectkit import criteria
 from selectkit.errors import OptionError, SearchError, TooManyCandidatesError
-from selectkit.moments import compute_moments
 from selectkit.parallel import WorkUnit
 from selectkit.search import exhaustive
 from selectkit.search.exhaustive import ExhaustiveOptions, exhaustive_search

@@ -49,7 +49,7 @@ Miller, A. J. (2002). Subset Selection in Regression, 2nd ed. Chapman & Hall/CRC
 from __future__ import annotations
 
 import time
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, replace
 from types import MappingProxyType
 
 import numpy as np
@@ -254,9 +254,7 @@ def _prepare(candidates, moments: Moments, options: ExhaustiveOptions) -> _Probl
     free = [j for j in range(n_terms) if j not in forced]
     problem = _Problem(A, tuple(allowed), t_cols, t_width, t_fam, t_req, t_bit,
                        tuple(terms[i].name for i in allowed), forced, (), max_size, tuple(dropped))
-    order = _importance_order(problem, free)
-    return _Problem(A, tuple(allowed), t_cols, t_width, t_fam, t_req, t_bit,
-                    problem.names, forced, tuple(order), max_size, tuple(dropped))
+    return replace(problem, free=tuple(_importance_order(problem, free)))
 
 
 def _columns_of(problem: _Problem, model) -> np.ndarray:
