@@ -18,7 +18,8 @@ Factors are kept in lower-triangular form ``L`` (row-major, ``A = L Lᵀ``) with
 the response as the last row: ``L[c, l]`` is the response's coordinate ``z_l``
 along the ``l``-th orthogonalised column, and the rss of the first ``i``
 columns is ``d + Σ_{l ≥ i} z_l²`` where ``d = L[c, c]`` is the rss of all ``c``
-columns (a sum of non-negative terms, which loses no digits to cancellation).
+columns: only ``d`` carries the cancellation of 1 − R²; the rss of shorter
+leading subsets add non-negative terms to it.
 
 Functions
 ---------
@@ -26,7 +27,7 @@ subset_rss(A, cols, tol)
     rss of one subset by Cholesky; −1 when rank-deficient.
 factor_columns(A, cols, tol)
     the factor ``L`` (response last), its skipped (singular) columns and the rss.
-add_column(A, L, cols, ncols, j, tol) / drop_column(L, ncols, position)
+add_column(A, L, cols, ncols, j, tol) / drop_column(L, cols, ncols, position)
     one-column updates of a factor in O(k²) (bordering; Givens rotations).
 branch_and_bound(...)
     the exact best-subset inner loop used by :mod:`selectkit.search.exhaustive`.
