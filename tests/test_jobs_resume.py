@@ -109,23 +109,31 @@ def test_second_run_on_a_busy_store_is_refused(tmp_path):
     assert store_status(tmp_path / "results").state == "interrupted"
 
 
-def test_sigint_to_a_running_job_writes_an_incomplete_shortlist(tmp_path):
+def test_ctrl_c_to_a_running_job_writes_an_incomplete_shortlist(tmp_path):
+    """SIGINT to the whole process group, as Ctrl-C on a terminal sends it: the loky workers get it too."""
+    import os
+
     write_table(tmp_path / "bays.csv")
-    job = write_job(tmp_path, exhaustive=f"chunks = {UNITS}\ndelay = 0.12")
-    child = _start_child(job)
+    job = write_job(tmp_path, exhaustive="chunks = 12\ndelay = 0.25", extra_run="workers = 2\n")
+    child = subprocess.Popen([sys.executable, "-c", CHILD, str(job)], cwd=ROOT, start_new_session=True,
+                             stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
     try:
         _wait_for_units(tmp_path / "results", 2, child)
-        child.send_signal(signal.SIGINT)
+        os.killpg(child.pid, signal.SIGINT)
         assert child.wait(timeout=60) == 0, child.stderr.read()
     finally:
         if child.poll() is None:
-            child.kill()
+            os.killpg(child.pid, signal.SIGKILL)
             child.wait()
     status = store_status(tmp_path / "results")
     assert status.state == "incomplete" and status.stopped_by == "stopped by SIGINT"
     assert status.not_exact == ("exhaustive",)
-    assert 2 <= status.units_done < UNITS
+    assert 2 <= status.units_done < 12
     assert (tmp_path / "results" / "shortlist.csv").exists()
+    from dataclasses import replace
+
+    resumed = run_fake(replace(load_job(job), workers=1))  # a run setting: may change on resume
+    assert resumed.complete and resumed.units_resumed == status.units_done
 
 
 def test_moved_output_folder_resumes_from_its_store(tmp_path):

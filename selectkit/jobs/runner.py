@@ -311,10 +311,11 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
         with _signals_caught(stop):
             try:
                 founds = engine.run(setup, done=done, on_unit=on_unit, should_stop=stop, **run_options)
-            except Exception:
-                if not stop.requested:
+            except (Exception, KeyboardInterrupt):
+                if not stop.requested or stop.forced:
                     raise
-                # A signal can also reach worker processes and break the pool; pool what the store holds.
+                # Ctrl-C on a terminal reaches the worker processes too, and joblib passes their
+                # KeyboardInterrupt on; the stop was asked for, so pool what the store holds.
                 founds = engine.run(setup, done=store.finished_units(), should_stop=lambda: True, n_jobs=1)
     except BaseException as err:
         reporter.close()
@@ -416,6 +417,7 @@ class _StopFlag:
         self.budget = budget
         self.started = started
         self.requested = False
+        self.forced = False
         self.reason = ""
 
     def request(self, reason: str) -> None:
@@ -439,6 +441,7 @@ class _signals_caught:
     def _handle(self, signum, frame):
         name = signal.Signals(signum).name
         if self.stop.requested and signum == signal.SIGINT:
+            self.stop.forced = True
             raise KeyboardInterrupt
         self.stop.request(f"stopped by {name}")
 
