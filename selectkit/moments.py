@@ -384,7 +384,9 @@ def moments_from_file(
             raise DataFileError("reading Parquet needs pyarrow; install it with: pip install pyarrow") from err
 
         def frames():
-            handle = pq.ParquetFile(path)
+            # pre_buffer=False: the default read-ahead keeps the buffers of earlier
+            # row groups alive, and the memory of the pass then grows with the file
+            handle = pq.ParquetFile(path, pre_buffer=False)
             for batch in handle.iter_batches(batch_size=step, columns=columns):
                 yield batch.to_pandas()
     elif lower.endswith((".csv", ".csv.gz", ".csv.bz2", ".csv.xz", ".txt", ".tsv")):
