@@ -601,3 +601,15 @@ def test_half_made_store_is_refused_readably(tmp_path):
     (tmp_path / "junk" / STORE_NAME).write_bytes(b"not a database at all" * 100)
     with pytest.raises(StoreError, match="not a readable run store"):
         store_status(tmp_path / "junk")
+
+
+def test_moving_the_data_file_keeps_the_store_usable(job_folder, tmp_path_factory):
+    """The data's content is fingerprinted, not its path: a moved table resumes, an edited one does not."""
+    spec = load_job(write_job(job_folder, exhaustive="chunks = 12\ndelay = 0.02", extra_run='time_budget = "0.1s"\n'))
+    first = run_fake(spec)
+    assert not first.complete
+    elsewhere = tmp_path_factory.mktemp("moved-data")
+    (job_folder / "bays.csv").rename(elsewhere / "bays.csv")
+    moved = replace(spec, table=elsewhere / "bays.csv", time_budget=None)
+    again = run_fake(moved)
+    assert again.complete and again.units_resumed == first.units_done

@@ -310,10 +310,11 @@ _SCHEMA: dict[str, dict[str, tuple[Callable, Any]]] = {
 
 #: Keys whose values change what the search finds; a store refuses to resume
 #: when one of them differs.  Everything in ``[run]`` except ``seed`` may change
-#: between a run and its resume (more workers, another backend, a new budget).
+#: between a run and its resume (more workers, another backend, a new budget),
+#: and so may the data file's path: its content is checked by SHA-256 instead.
 RESULT_KEYS = tuple(
     f"{section}.{key}" for section, keys in _SCHEMA.items() for key in keys
-    if section != "run" or key == "seed"
+    if (section != "run" or key == "seed") and (section, key) != ("data", "table")
 ) + ("search.settings",)
 
 
