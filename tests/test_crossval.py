@@ -9,7 +9,6 @@ from sklearn.linear_model import LinearRegression
 from sklearn.model_selection import LeaveOneOut, cross_val_predict
 
 from selectkit.errors import InputError, OptionError, TooManyCandidatesError
-from selectkit.moments import compute_moments
 from selectkit.search import crossval as cv
 from selectkit.search.crossval import (
     blocked_folds, cv_select, group_folds, holdout_split, make_folds, nested_cv_error, press, score_subsets,

@@ -1,6 +1,5 @@
 """Stepwise search: sweep kernels against numpy, paths against a statsmodels refit loop."""
 
-import itertools
 
 import numpy as np
 import pytest

@@ -63,7 +63,7 @@ Goodnight, J. H. (1979). A tutorial on the SWEEP operator. Amer. Statist. 33(3),
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from types import MappingProxyType
 from typing import Any, Sequence
 
