@@ -267,3 +267,23 @@ def test_holdout_scheme_fills_holdout_column(problem):
     expected = np.mean((y[rows] - fit.predict(X[rows][:, [0, 2]])) ** 2)
     assert table["holdout_mse"].iloc[1] == pytest.approx(expected, rel=1e-9)
     assert np.isnan(table["cv_se"]).all()  # one fold: no spread to measure
+
+
+def test_blocked_and_group_schemes_in_selection(problem):
+    X, y, cand = problem
+    blocked = cv_select(cand, method="stepwise", folds=blocked_folds(3))
+    assert blocked.details["folds"] == "3 contiguous blocks in row order"
+    assert set(blocked.details["table"]["n_folds"]) == {3}
+    # blocked folds: the k=2 error equals explicit refits of each fold's chosen model on the other blocks
+    row = blocked.details["table"].set_index("k").loc[2]
+    errs = []
+    for part, models in zip(np.array_split(np.arange(len(y)), 3), blocked.details["fold_models"]):
+        train = np.setdiff1d(np.arange(len(y)), part)
+        cols = _cols(cand, models[2])
+        pred = LinearRegression().fit(X[train][:, cols], y[train]).predict(X[part][:, cols])
+        errs.append(np.mean((y[part] - pred) ** 2))
+    assert row["cv_mse"] == pytest.approx(np.mean(errs), rel=1e-9)
+    labels = np.repeat(["bay A", "bay B", "bay C", "bay D", "bay E"], 9)
+    grouped = cv_select(cand, method="stepwise", folds=group_folds(labels))
+    assert set(grouped.details["table"]["n_folds"]) == {5}
+    assert "5 groups" in grouped.details["folds"]
