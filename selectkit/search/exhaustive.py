@@ -642,13 +642,17 @@ def exhaustive_search(
 
     Examples
     --------
-    >>> import numpy as np
-    >>> from tests.factories import make_candidates
+    >>> import numpy as np, pandas as pd
+    >>> from selectkit.data import prepare
+    >>> from selectkit.candidates import build_candidates
     >>> rng = np.random.default_rng(0)
-    >>> X = rng.normal(size=(60, 5)); y = X[:, 0] - 2 * X[:, 3] + rng.normal(size=60)
-    >>> found = exhaustive_search(make_candidates(X, y), n_best_per_size=1)
-    >>> found.subsets[2], found.exact
-    ((0, 3), True)
+    >>> bays = pd.DataFrame({"light": rng.uniform(5, 40, 80), "co2": rng.uniform(400, 1200, 80),
+    ...                      "humidity": rng.uniform(0.2, 1.5, 80)})
+    >>> bays["yield_kg_m2"] = 20 + 4 * np.log(bays["light"]) + rng.normal(size=80)
+    >>> cands = build_candidates(prepare(bays, response="yield_kg_m2"), forms=("identity", "log"))
+    >>> found = exhaustive_search(cands, n_best_per_size=1)
+    >>> [cands.terms[i].name for i in found.subsets[1]], found.exact
+    (['log(light)'], True)
     """
     options = ExhaustiveOptions(
         n_best_per_size=n_best_per_size, max_size=max_size, forced=tuple(forced), forbidden=tuple(forbidden),
