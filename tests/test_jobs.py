@@ -542,35 +542,57 @@ def _cli(*args, cwd):
                           cwd=cwd, timeout=120, env={**os.environ, "PYTHONPATH": str(ROOT)})
 
 
-@pytest.mark.parametrize("edit, words", [
-    (("[run]", "[run]\nwokers = 2"), "did you mean 'workers'"),
-    (('workers = 2', 'workers = "two"'), "whole number"),
-    (('table = "bays.csv"', 'table = "nowhere.csv"'), "does not exist"),
-    (('time_budget = "1h30m"', 'time_budget = -1'), "positive"),
-])
-def test_cli_bad_job_file_exit_code_2_and_one_line(job_folder, edit, words):
+def _main(*args, cwd, capsys, monkeypatch):
+    """The command line in this process (``python -m selectkit`` exits with ``main()``'s return value)."""
+    from selectkit.cli import main
+
+    monkeypatch.chdir(cwd)
+    capsys.readouterr()
+    code = main(["job", *args])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def test_cli_bad_job_file_exit_code_2_and_one_line(job_folder):
+    """Through a real ``python -m selectkit`` process."""
     path = job_folder / "bad.toml"
-    path.write_text(FULL_JOB.replace(*edit, 1))
+    path.write_text(FULL_JOB.replace("[run]", "[run]\nwokers = 2", 1))
     done = _cli("run", str(path), cwd=job_folder)
     assert done.returncode == 2, done.stderr
     lines = done.stderr.strip().splitlines()
-    assert len(lines) == 1 and words in lines[0], done.stderr
+    assert len(lines) == 1 and "did you mean 'workers'" in lines[0], done.stderr
     assert done.stdout == ""
 
 
-def test_cli_job_new_writes_a_valid_starter(job_folder):
-    done = _cli("new", "bays.csv", "-o", "starter.toml", "--response", "yield_kg_m2", cwd=job_folder)
-    assert done.returncode == 0, done.stderr
+@pytest.mark.parametrize("edit, words", [
+    (('workers = 2', 'workers = "two"'), "whole number"),
+    (('table = "bays.csv"', 'table = "nowhere.csv"'), "does not exist"),
+    (('time_budget = "1h30m"', 'time_budget = -1'), "positive"),
+    (("[ranking]", "[ranking]\nseed = 2"), "belongs in [run]"),
+])
+def test_cli_more_bad_job_files(job_folder, edit, words, capsys, monkeypatch):
+    path = job_folder / "bad.toml"
+    path.write_text(FULL_JOB.replace(*edit, 1))
+    code, out, err = _main("run", str(path), cwd=job_folder, capsys=capsys, monkeypatch=monkeypatch)
+    assert code == 2 and out == ""
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("selectkit: error: ") and words in lines[0], err
+
+
+def test_cli_job_new_writes_a_valid_starter(job_folder, capsys, monkeypatch):
+    code, out, err = _main("new", "bays.csv", "-o", "starter.toml", "--response", "yield_kg_m2", cwd=job_folder,
+                           capsys=capsys, monkeypatch=monkeypatch)
+    assert code == 0, err
     assert load_job(job_folder / "starter.toml").response == "yield_kg_m2"
 
 
-def test_cli_status_of_a_store(job_folder):
+def test_cli_status_of_a_store(job_folder, capsys, monkeypatch):
     run_fake(load_job(write_job(job_folder)))
-    done = _cli("status", "results", cwd=job_folder)
-    assert done.returncode == 0, done.stderr
-    assert "complete" in done.stdout and "12 of 12" in done.stdout
-    missing = _cli("status", "nowhere", cwd=job_folder)
-    assert missing.returncode == 2 and "no run store" in missing.stderr
+    code, out, err = _main("status", "results", cwd=job_folder, capsys=capsys, monkeypatch=monkeypatch)
+    assert code == 0, err
+    assert "complete" in out and "12 of 12" in out
+    code, out, err = _main("status", "nowhere", cwd=job_folder, capsys=capsys, monkeypatch=monkeypatch)
+    assert code == 2 and "no run store" in err
 
 
 def test_cli_runs_a_real_job_end_to_end(tmp_path):
@@ -585,9 +607,8 @@ def test_cli_runs_a_real_job_end_to_end(tmp_path):
     for name in ("shortlist.csv", "shortlist.json", "report.html", "run-summary.json", STORE_NAME):
         assert (tmp_path / "results" / name).is_file(), name
     assert pd.read_csv(tmp_path / "results" / "shortlist.csv")["terms"][0] == "log(x0) + sqrt(x2) + x5"
-    status = _cli("status", "results", cwd=tmp_path)
-    assert status.returncode == 0 and "job job: complete" in status.stdout
-    assert "log(x0) + sqrt(x2) + x5" in status.stdout
+    status = store_status(tmp_path / "results").render()
+    assert "job job: complete" in status and "log(x0) + sqrt(x2) + x5" in status
 
 
 def test_half_made_store_is_refused_readably(tmp_path):
