@@ -26,6 +26,7 @@ __version__ = "0.1.0"
 __all__ = [
     "search",
     "load",
+    "Result",
     "__version__",
     "SelectkitError",
     "InputError",
@@ -39,11 +40,10 @@ __all__ = [
 ]
 
 
-def __getattr__(name):
-    # The facade imports every stage; load it on first use so that
-    # ``import selectkit`` stays light for the command line.
-    if name in ("search", "load", "Result", "SelectedModel"):
-        from . import api
-
-        return getattr(api, name)
-    raise AttributeError(f"module 'selectkit' has no attribute {name!r}")
+# The search methods live in the subpackage ``selectkit.search``; importing it
+# first and binding the facade function afterwards keeps ``selectkit.search``
+# the function however often the subpackage's modules are imported later
+# (``from selectkit.search.stepwise import ...`` still works: it reads
+# ``sys.modules``).
+from . import search as _search_methods  # noqa: E402,F401
+from .api import Result, load, search  # noqa: E402
