@@ -52,19 +52,24 @@ class FakeOptions:
 
     chunks: int = 12
     delay: float = 0.0
+    fail_at: int = -1  # this unit raises while the file ``fail_while`` exists
+    fail_while: str = ""
 
 
 def plan(candidates, moments, options):
     m = len(candidates.terms)
     masks = list(range(1, 2 ** m))
+    failing = (options.fail_at, options.fail_while)
     return [WorkUnit(key=f"chunk-{i:03d}", payload=(candidates.matrix, candidates.y, tuple(masks[i::options.chunks]),
-                                                  options.delay))
+                                                  options.delay, i, failing))
             for i in range(options.chunks)]
 
 
 def run_unit(unit):
-    X, y, masks, delay = unit.payload
+    X, y, masks, delay, index, (fail_at, fail_while) = unit.payload
     time.sleep(delay)
+    if index == fail_at and os.path.exists(fail_while):
+        raise RuntimeError(f"unit {index} failed on purpose")
     n, m = X.shape
     subsets, rss = [], []
     for mask in masks:
@@ -633,4 +638,35 @@ def test_moving_the_data_file_keeps_the_store_usable(job_folder, tmp_path_factor
     (job_folder / "bays.csv").rename(elsewhere / "bays.csv")
     moved = replace(spec, table=elsewhere / "bays.csv", time_budget=None)
     again = run_fake(moved)
+    assert again.complete and again.units_resumed == first.units_done
+
+
+def test_a_failing_unit_marks_the_store_failed_and_keeps_the_finished_units(job_folder):
+    marker = job_folder / "fail-now"
+    marker.write_text("")
+    spec = load_job(write_job(job_folder, exhaustive=f'chunks = 12\nfail_at = 5\nfail_while = "{marker}"'))
+    with pytest.raises(RuntimeError, match="unit 5 failed on purpose"):
+        run_fake(spec)
+    status = store_status(job_folder / "results")
+    assert status.state == "failed" and "unit 5 failed on purpose" in status.stopped_by
+    assert status.units_done == 5 and "error" in status.render()
+    marker.unlink()
+    again = run_fake(spec)
+    assert again.complete and again.units_resumed == 5
+
+
+def test_resume_may_change_run_settings_only(job_folder, monkeypatch):
+    from selectkit.jobs import runner
+
+    spec = load_job(write_job(job_folder, exhaustive="chunks = 12\ndelay = 0.02", extra_run='time_budget = "0.1s"\n'))
+    first = run_fake(spec)
+    assert not first.complete
+    monkeypatch.setattr(runner, "_API", FakeEngine())
+    with pytest.raises(OptionError, match="'seed' cannot be changed when resuming"):
+        runner.resume_job(job_folder / "results", seed=4)
+    with pytest.raises(OptionError, match="time_budget must be"):
+        runner.resume_job(job_folder / "results", time_budget=-5)
+    with pytest.raises(OptionError, match="needs backend='dask'"):
+        runner.resume_job(job_folder / "results", scheduler="tcp://127.0.0.1:1")
+    again = runner.resume_job(job_folder / "results", progress=False, time_budget=None, workers=1)
     assert again.complete and again.units_resumed == first.units_done

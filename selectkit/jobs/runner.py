@@ -28,7 +28,7 @@ from ..errors import JobFileError, OptionError, SelectkitError, StoreError
 from .spec import JobSpec, load_job
 from .store import STORE_NAME, RunStore, StoreLock, data_fingerprint, find_store
 
-__all__ = ["JobOutcome", "JobProgress", "run_job", "resume_job", "SUMMARY_NAME", "format_seconds"]
+__all__ = ["JobOutcome", "JobProgress", "run_job", "resume_job", "RUN_SETTINGS", "SUMMARY_NAME", "format_seconds"]
 
 #: Name of the small JSON file, beside the store, that says how the last run ended.
 SUMMARY_NAME = "run-summary.json"
@@ -224,13 +224,57 @@ def run_job(spec_or_path, *, resume: bool = True, progress=None) -> JobOutcome:
     return _run(spec, resume=resume, progress=progress, engine=_API)
 
 
-def resume_job(folder_or_store, *, progress=None) -> JobOutcome:
+#: Settings a resumed job may change (they do not change what is found).
+RUN_SETTINGS = ("workers", "backend", "scheduler", "time_budget")
+
+
+def resume_job(folder_or_store, *, progress=None, **run_settings) -> JobOutcome:
     """Continue the job recorded in an output folder (or its run store).
 
     The job's settings come from the store, so the job file is not needed;
     the data file must be where it was and unchanged.  See :func:`run_job`.
+
+    Parameters
+    ----------
+    folder_or_store : str or Path
+        The job's output folder, or its ``run-store.sqlite``.
+    progress : see :func:`run_job`
+    **run_settings
+        New values for ``workers``, ``backend``, ``scheduler`` or
+        ``time_budget`` (seconds or text such as ``"8h"``), e.g. to continue
+        on a Dask cluster a job started on a laptop.
+
+    Examples
+    --------
+    >>> resume_job("bays-results", workers=8, backend="dask",
+    ...            scheduler="tcp://10.0.0.5:8786")  # doctest: +SKIP
     """
-    return _run(_spec_from_store(folder_or_store), resume=True, progress=progress, engine=_API)
+    spec = _spec_from_store(folder_or_store)
+    if run_settings:
+        spec = _with_run_settings(spec, run_settings)
+    return _run(spec, resume=True, progress=progress, engine=_API)
+
+
+def _with_run_settings(spec: JobSpec, run_settings: dict) -> JobSpec:
+    from .spec import _SCHEMA
+
+    changes = {}
+    for key, value in run_settings.items():
+        if key not in RUN_SETTINGS:
+            raise OptionError(f"{key!r} cannot be changed when resuming; the settings that can are "
+                              f"{', '.join(RUN_SETTINGS)} (the others would change what is found)")
+        if value is None and key in ("scheduler", "time_budget"):
+            changes[key] = None
+            continue
+        check = _SCHEMA["run"][key][0]
+        try:
+            changes[key] = check(value, key)
+        except JobFileError as err:
+            raise OptionError(str(err)) from err
+    spec = replace(spec, **changes)
+    if spec.scheduler is not None and spec.backend != "dask":
+        raise OptionError(f"a scheduler address needs backend='dask' (got backend={spec.backend!r})")
+    return spec
 
 
 def _spec_from_store(folder_or_store) -> JobSpec:
