@@ -537,6 +537,12 @@ def test_progress_lines_when_not_on_a_terminal(job_folder, capsys):
     run_fake(spec, progress="lines")
     err = capsys.readouterr().err.strip().splitlines()
     assert err and "units" in err[-1] and "12/12" in err[-1]
+    run_fake(spec, progress=None)  # standard error is not a terminal here: plain lines
+    err = capsys.readouterr().err
+    assert "12/12 units" in err and "\r" not in err
+    run_fake(spec, progress="bar")
+    err = capsys.readouterr().err
+    assert "12/12" in err and "models" in err
     with pytest.raises(OptionError, match="unknown progress"):
         run_fake(spec, progress="fancy")
 

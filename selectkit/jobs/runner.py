@@ -564,8 +564,9 @@ class _LineReporter(_Reporter):
         self.stream.flush()
 
     def close(self):
-        if self.snap is not None and self.snap is not self.written:
-            self._write(self.snap)
+        # A last line with the final count, unless the last line written already shows it.
+        if self.written is None or self.written.units_done != self.done:
+            self._write(self.snap if self.snap is not None else self.snapshot(""))
 
 
 class _BarReporter(_Reporter):
