@@ -12,8 +12,10 @@ A job killed at any moment continues with ``run_job(spec)`` (or
 run.  See ``docs/overnight-jobs.md``.
 """
 
-from .runner import JobOutcome, JobProgress, resume_job, run_job
-from .spec import JobSpec, load_job, parse_duration, parse_job, starter_job
+from .progress import JobProgress
+from .runner import JobOutcome, resume_job, run_job
+from .spec import JobSpec, load_job, parse_duration, parse_job
+from .starter import starter_job
 from .status import StoreStatus, store_status
 from .store import STORE_NAME, RunStore, data_fingerprint
 

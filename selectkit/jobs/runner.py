@@ -14,17 +14,16 @@ straight through.
 from __future__ import annotations
 
 import json
-import math
 import signal
-import sys
 import threading
 import time
 from dataclasses import dataclass, field, replace
 from pathlib import Path
-from typing import Any, Callable, Mapping
+from typing import Any, Mapping
 
 from .._io import atomic_write_text
-from ..errors import JobFileError, OptionError, SelectkitError, StoreError
+from ..errors import JobFileError, OptionError, StoreError
+from .progress import JobProgress, format_seconds, make_reporter
 from .spec import JobSpec, load_job
 from .store import STORE_NAME, RunStore, StoreLock, data_fingerprint, find_store
 
@@ -35,32 +34,6 @@ SUMMARY_NAME = "run-summary.json"
 
 
 # --------------------------------------------------------------------------- values
-@dataclass(frozen=True)
-class JobProgress:
-    """A snapshot handed to a progress callable after each finished unit.
-
-    Attributes
-    ----------
-    units_done, units_total : int
-        Units finished (including those finished by earlier runs) and planned.
-    models_evaluated : int
-        Models scored by the finished units, as far as their results say.
-    elapsed : float
-        Seconds since this run started.
-    eta : float or None
-        Estimated seconds left, from this run's pace (None before the first unit).
-    key : str
-        Key of the unit that just finished.
-    """
-
-    units_done: int
-    units_total: int
-    models_evaluated: int
-    elapsed: float
-    eta: float | None
-    key: str
-
-
 @dataclass(frozen=True, eq=False)
 class JobOutcome:
     """How a run of a job ended.
@@ -125,20 +98,6 @@ class JobOutcome:
 
     def __str__(self) -> str:
         return self.render()
-
-
-def format_seconds(seconds: float | None) -> str:
-    """``3725`` → ``"1h 2m 5s"``."""
-    if seconds is None or not math.isfinite(seconds):
-        return "unknown"
-    seconds = int(round(seconds))
-    hours, rest = divmod(seconds, 3600)
-    minutes, secs = divmod(rest, 60)
-    if hours:
-        return f"{hours}h {minutes}m {secs}s"
-    if minutes:
-        return f"{minutes}m {secs}s"
-    return f"{secs}s"
 
 
 # --------------------------------------------------------------------------- the api seams
@@ -339,7 +298,7 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
               + (f"; time budget {format_seconds(spec.time_budget)}" if spec.time_budget else ""))
 
     stop = _StopFlag(spec.time_budget, started)
-    reporter = _make_reporter(progress, spec.name, total=len(keys), initial=len(done),
+    reporter = make_reporter(progress, spec.name, total=len(keys), initial=len(done),
                               initial_models=store.unit_counts()[1], started=started)
     last = [time.monotonic()]
 
@@ -499,111 +458,4 @@ class _signals_caught:
         for sig, handler in self.previous.items():
             signal.signal(sig, handler)
         self.previous.clear()
-        return False
-
-
-# --------------------------------------------------------------------------- progress
-class _Reporter:
-    def __init__(self, name, total, initial, initial_models, started):
-        self.name = name
-        self.total = total
-        self.done = initial
-        self.initial = initial
-        self.models = initial_models
-        self.started = started
-
-    def snapshot(self, key) -> JobProgress:
-        elapsed = time.monotonic() - self.started
-        new = self.done - self.initial
-        eta = elapsed / new * (self.total - self.done) if new > 0 else None
-        return JobProgress(self.done, self.total, self.models, elapsed, eta, key)
-
-    def unit(self, key, models):
-        self.done += 1
-        self.models += models or 0
-        self.show(self.snapshot(key))
-
-    def show(self, snap: JobProgress):
-        pass
-
-    def close(self):
-        pass
-
-
-class _CallbackReporter(_Reporter):
-    def __init__(self, callback, *args):
-        super().__init__(*args)
-        self.callback = callback
-
-    def show(self, snap):
-        self.callback(snap)
-
-
-class _LineReporter(_Reporter):
-    """Plain lines on standard error, at most one per ``interval`` seconds (and one at the end)."""
-
-    def __init__(self, *args, interval: float = 30.0, stream=None):
-        super().__init__(*args)
-        self.interval = interval
-        self.stream = stream if stream is not None else sys.stderr
-        self.last_line = -math.inf
-        self.snap = None
-        self.written = None
-
-    def show(self, snap):
-        self.snap = snap
-        if time.monotonic() - self.last_line >= self.interval:
-            self._write(snap)
-
-    def _write(self, snap):
-        self.last_line = time.monotonic()
-        self.written = snap
-        self.stream.write(f"[{time.strftime('%H:%M:%S')}] job {self.name}: {snap.units_done}/{snap.units_total} "
-                          f"units, {snap.models_evaluated:,} models, {format_seconds(snap.elapsed)} elapsed, "
-                          f"about {format_seconds(snap.eta)} left\n")
-        self.stream.flush()
-
-    def close(self):
-        # A last line with the final count, unless the last line written already shows it.
-        if self.written is None or self.written.units_done != self.done:
-            self._write(self.snap if self.snap is not None else self.snapshot(""))
-
-
-class _BarReporter(_Reporter):
-    def __init__(self, *args):
-        super().__init__(*args)
-        from tqdm.auto import tqdm
-
-        self.bar = tqdm(total=self.total, initial=self.done, unit="unit", desc=f"job {self.name}",
-                        file=sys.stderr, dynamic_ncols=True)
-        self.bar.set_postfix_str(f"{self.models:,} models")
-
-    def show(self, snap):
-        self.bar.update(1)
-        self.bar.set_postfix_str(f"{snap.models_evaluated:,} models", refresh=False)
-
-    def close(self):
-        self.bar.close()
-
-
-def _make_reporter(progress, name, *, total, initial, initial_models, started) -> _Reporter:
-    args = (name, total, initial, initial_models, started)
-    if progress is False:
-        return _Reporter(*args)
-    if callable(progress):
-        return _CallbackReporter(progress, *args)
-    if progress is None:
-        progress = "bar" if _stderr_is_terminal() else "lines"
-    if progress == "bar":
-        return _BarReporter(*args)
-    if progress == "lines":
-        return _LineReporter(*args)
-    raise OptionError(f"unknown progress {progress!r}; choose None (automatic), False, 'bar', 'lines' "
-                      f"or a callable")
-
-
-def _stderr_is_terminal() -> bool:
-    try:
-        return sys.stderr.isatty()
-    except (AttributeError, ValueError):
         return False

@@ -50,11 +50,8 @@ See ``docs/overnight-jobs.md`` for a walk through.
 
 from __future__ import annotations
 
-import difflib
 import hashlib
 import json
-import math
-import re
 import sys
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -62,204 +59,35 @@ from types import MappingProxyType
 from typing import Any, Callable, Mapping
 
 from ..errors import JobFileError
+from ._checks import (
+    AIM_NAMES,
+    BACKEND_NAMES,
+    CONVENTION_NAMES,
+    FORM_NAMES,
+    METHOD_NAMES,
+    _is_address,
+    _is_flag,
+    _is_forms,
+    _is_interactions_or_flag,
+    _is_method_list,
+    _is_name,
+    _is_names,
+    _is_response_form,
+    _is_shifts,
+    _one_of,
+    _positive_number,
+    _suggest,
+    _type_name,
+    _whole,
+    parse_duration,
+)
 
 if sys.version_info >= (3, 11):
     import tomllib
 else:  # pragma: no cover - Python 3.10
     import tomli as tomllib
 
-__all__ = ["JobSpec", "load_job", "parse_job", "starter_job", "parse_duration", "RESULT_KEYS"]
-
-BACKEND_NAMES = ("loky", "threading", "multiprocessing", "sequential", "dask")
-CONVENTION_NAMES = ("selectkit", "statsmodels")
-AIM_NAMES = ("explain", "predict")
-#: Search methods a job may name (those of :data:`selectkit.api.METHODS`).
-METHOD_NAMES = ("auto", "exhaustive", "forward", "backward", "both", "crossval", "screen")
-FORM_NAMES = ("identity", "log", "sqrt", "reciprocal", "square", "boxcox", "boxtidwell", "yeojohnson")
-
-
-# --------------------------------------------------------------------------- checkers
-# Each checker takes (value, where) and returns the cleaned value or raises JobFileError.
-
-def _type_name(value) -> str:
-    return {bool: "true/false", int: "a whole number", float: "a number", str: "text",
-            list: "a list", dict: "a table"}.get(type(value), type(value).__name__)
-
-
-def _is_text(value, where):
-    if not isinstance(value, str):
-        raise JobFileError(f"{where} must be text in quotes (got {_type_name(value)} {value!r})")
-    return value
-
-
-def _is_name(value, where):
-    value = _is_text(value, where).strip()
-    if not value:
-        raise JobFileError(f"{where} is empty; give a column name")
-    return value
-
-
-def _is_flag(value, where):
-    if not isinstance(value, bool):
-        raise JobFileError(f"{where} must be true or false (got {_type_name(value)} {value!r})")
-    return value
-
-
-def _is_names(value, where):
-    if isinstance(value, str):
-        raise JobFileError(f"{where} must be a list of names, e.g. [{value!r}] (got a single text)")
-    if not isinstance(value, list):
-        raise JobFileError(f"{where} must be a list of names (got {_type_name(value)} {value!r})")
-    cleaned = []
-    for i, item in enumerate(value):
-        cleaned.append(_is_name(item, f"{where}[{i}]"))
-    duplicates = sorted({c for c in cleaned if cleaned.count(c) > 1})
-    if duplicates:
-        raise JobFileError(f"{where} lists {', '.join(map(repr, duplicates))} more than once; keep one")
-    return tuple(cleaned)
-
-
-def _whole(low=None, allow_minus_one=False):
-    def check(value, where):
-        if isinstance(value, bool) or not isinstance(value, int):
-            raise JobFileError(f"{where} must be a whole number (got {_type_name(value)} {value!r})")
-        if allow_minus_one and value == -1:
-            return value
-        if low is not None and value < low:
-            extra = " or -1 for every core" if allow_minus_one else ""
-            raise JobFileError(f"{where} must be at least {low}{extra} (got {value})")
-        return value
-
-    return check
-
-
-def _positive_number(value, where):
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
-        raise JobFileError(f"{where} must be a number (got {_type_name(value)} {value!r})")
-    if not math.isfinite(value) or value <= 0:
-        raise JobFileError(f"{where} must be a positive number (got {value})")
-    return float(value)
-
-
-def _one_of(choices):
-    def check(value, where):
-        value = _is_text(value, where)
-        if value.lower() not in choices:
-            hint = _suggest(value.lower(), choices)
-            raise JobFileError(f"{where} = {value!r} is not known{hint}; choose one of {', '.join(choices)}")
-        return value.lower()
-
-    return check
-
-
-def _is_address(value, where):
-    value = _is_text(value, where).strip()
-    if not re.match(r"^[a-z][a-z0-9+]*://\S+$", value):
-        raise JobFileError(f"{where} must be a scheduler address like 'tcp://10.0.0.5:8786' (got {value!r})")
-    return value
-
-
-_DURATION_PART = re.compile(r"(\d+(?:\.\d+)?)\s*(d|h|m|s)")
-
-
-def parse_duration(value, where="time_budget") -> float:
-    """Seconds from a number of seconds or a text such as ``"8h"``, ``"90m"``, ``"1h30m"``.
-
-    Units: ``d`` days, ``h`` hours, ``m`` minutes, ``s`` seconds; parts add up
-    (``"1h 30m"`` is 5400 s).  The result must be positive.
-
-    Examples
-    --------
-    >>> parse_duration("1h30m")
-    5400.0
-    >>> parse_duration(90)
-    90.0
-    """
-    if isinstance(value, str):
-        text = value.strip().lower().replace(" ", "")
-        parts = _DURATION_PART.findall(text)
-        if not text or "".join(a + b for a, b in parts) != text:
-            raise JobFileError(
-                f"{where} = {value!r} is not a duration; write seconds (3600) or text such as "
-                f"'8h', '90m', '1h30m', '45s'"
-            )
-        scale = {"d": 86400.0, "h": 3600.0, "m": 60.0, "s": 1.0}
-        seconds = sum(float(a) * scale[b] for a, b in parts)
-        if seconds <= 0:
-            raise JobFileError(f"{where} must be longer than zero (got {value!r})")
-        return seconds
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
-        raise JobFileError(f"{where} must be seconds or text such as '8h' (got {_type_name(value)} {value!r})")
-    if not math.isfinite(value) or value <= 0:
-        raise JobFileError(f"{where} must be a positive number of seconds (got {value}); leave it out for no limit")
-    return float(value)
-
-
-def _is_interactions(value, where):
-    names = _is_names(value, where)
-    for i, pair in enumerate(names):
-        parts = [p.strip() for p in pair.split("*")]
-        if len(parts) != 2 or not all(parts):
-            raise JobFileError(f"{where}[{i}] = {pair!r} must name two columns joined by '*', e.g. 'light*co2'")
-    return tuple("*".join(p.strip() for p in pair.split("*")) for pair in names)
-
-
-def _is_method_list(value, where):
-    names = tuple(n.lower() for n in _is_names(value, where))
-    if not names:
-        raise JobFileError(f"{where} is empty; name at least one search method, e.g. [\"exhaustive\"]")
-    for name in names:
-        if name not in METHOD_NAMES:
-            raise JobFileError(f"{where}: unknown search method {name!r}{_suggest(name, METHOD_NAMES)}; "
-                               f"choose from {', '.join(METHOD_NAMES)}")
-    return names
-
-
-def _is_interactions_or_flag(value, where):
-    if isinstance(value, bool):
-        return value
-    return _is_interactions(value, where)
-
-
-def _is_shifts(value, where):
-    """An inline table ``{column = number or "auto"}`` → sorted tuple of pairs."""
-    if not isinstance(value, dict):
-        raise JobFileError(f"{where} must be a table such as {{ bay_age_years = 1, irrigation = \"auto\" }} "
-                           f"(got {_type_name(value)} {value!r})")
-    pairs = []
-    for column, shift in value.items():
-        if isinstance(shift, str):
-            if shift != "auto":
-                raise JobFileError(f"{where}.{column} must be a number or \"auto\" (got {shift!r})")
-        elif isinstance(shift, bool) or not isinstance(shift, (int, float)) or not math.isfinite(shift):
-            raise JobFileError(f"{where}.{column} must be a number or \"auto\" (got {_type_name(shift)} {shift!r})")
-        pairs.append((column, shift))
-    return tuple(sorted(pairs))
-
-
-def _is_response_form(value, where):
-    """``"log"``, ``"sqrt"`` or ``"boxcox:0.5"``."""
-    text = _is_text(value, where).strip().lower()
-    if text in ("log", "sqrt", "identity"):
-        return text
-    if text.startswith("boxcox:"):
-        try:
-            float(text.split(":", 1)[1])
-        except ValueError:
-            pass
-        else:
-            return text
-    raise JobFileError(f"{where} = {value!r} is not known; write \"log\", \"sqrt\" or \"boxcox:LAMBDA\" "
-                       f"with a number, e.g. \"boxcox:0.5\"")
-
-
-def _is_forms(value, where):
-    names = tuple(n.lower() for n in _is_names(value, where))
-    for name in names:
-        if name not in FORM_NAMES:
-            raise JobFileError(f"{where}: unknown form {name!r}{_suggest(name, FORM_NAMES)}; "
-                               f"choose from {', '.join(FORM_NAMES)}")
-    return names
+__all__ = ["JobSpec", "load_job", "parse_job", "parse_duration", "RESULT_KEYS", "METHOD_NAMES", "FORM_NAMES"]
 
 
 # --------------------------------------------------------------------------- schema
@@ -316,11 +144,6 @@ RESULT_KEYS = tuple(
     f"{section}.{key}" for section, keys in _SCHEMA.items() for key in keys
     if (section != "run" or key == "seed") and (section, key) != ("data", "table")
 ) + ("search.settings",)
-
-
-def _suggest(word: str, choices) -> str:
-    close = difflib.get_close_matches(word, list(choices), n=1, cutoff=0.5)
-    return f" (did you mean {close[0]!r}?)" if close else ""
 
 
 def _unknown_key_message(section: str | None, key: str, valid) -> str:
@@ -655,116 +478,3 @@ def parse_job(text: str, *, base=".", name: str = "job", source=None, check_tabl
         {m: MappingProxyType(dict(s)) for m, s in sorted(method_settings.items())}
     )
     return JobSpec(name=name, source=None if source is None else Path(source), **values)
-
-
-# --------------------------------------------------------------------------- starter
-def starter_job(table_path, *, response=None) -> str:
-    """A commented starter job file for a table.
-
-    The columns are read from the table's header (CSV, or Parquet when pyarrow
-    is installed); the response is ``response`` when given, else guessed from a
-    column name that reads like an outcome (``yield``, ``response``, ``y``...),
-    else left empty for the user to fill in.
-
-    Parameters
-    ----------
-    table_path : str or Path
-    response : str, optional
-
-    Returns
-    -------
-    str
-        TOML text; write it next to the table (the table path inside is
-        relative to the job file's folder when it is written there).
-
-    Raises
-    ------
-    JobFileError
-        When the table cannot be read or ``response`` is not one of its columns.
-    """
-    table_path = Path(table_path).expanduser()
-    columns = _read_columns(table_path)
-    if response is not None and response not in columns:
-        hint = _suggest(response, columns)
-        raise JobFileError(f"response {response!r} is not a column of {str(table_path)!r}{hint}; "
-                           f"columns: {', '.join(columns)}")
-    guessed = response is None
-    if response is None:
-        response = _guess_response(columns)
-    predictors = [c for c in columns if c != response]
-    response_line = (f'response = "{response}"' + ("   # guessed: check it" if guessed else "")
-                     if response else 'response = ""   # fill in: the column to explain')
-    columns_text = "\n".join(f"#   {c}" for c in columns)
-    return f"""\
-# selectkit job file for {table_path.name} (TOML; see docs/overnight-jobs.md).
-# Run it with:     selectkit job run {table_path.stem}.toml
-# Watch it with:   selectkit job status {table_path.stem}-results
-# Resume it with:  selectkit job resume {table_path.stem}-results
-# Columns found in the table:
-{columns_text}
-
-[data]
-table = "{table_path.name}"
-{response_line}
-predictors = []            # empty: every column except the response and leave_out
-always_include = []        # predictors every model must hold
-leave_out = []             # columns never to use (identifiers, duplicates)
-# row_weights = "column"   # optional positive weights per row
-time_ordered = false       # true when rows are in time order (checks serial correlation)
-
-[forms]
-# offer = ["identity", "log", "sqrt", "reciprocal", "square", "boxcox"]   # default: the library's list
-fractional_polynomials = false
-# shifts = {{ column = 1 }}   # allow log/sqrt/reciprocal of column + 1 ("auto" picks the shift)
-interactions = []          # pairs such as "{predictors[0] if predictors else 'a'}*{predictors[1] if len(predictors) > 1 else 'b'}"
-
-[search]
-methods = ["auto"]         # auto, exhaustive, forward, backward, both, crossval, screen
-# [search.exhaustive]      # settings of one method, handed to it as given
-
-[ranking]
-aim = "explain"            # "explain" ranks by BIC, "predict" by AICc
-# criterion = "bic"        # or name one: aic, aicc, bic, cp, adj_r2, press, cv_mse
-convention = "selectkit"   # "selectkit" counts the error variance as a parameter; "statsmodels" does not
-shortlist_size = 10
-# keep_within = 4.0        # keep only models within this criterion distance of the best
-folds = 5
-resamples = 0              # bootstrap resamples for the stability of the selection (0: skip)
-
-[run]
-seed = 0
-workers = 1                # -1: every core
-backend = "loky"           # "dask" to use a cluster; then set scheduler = "tcp://host:8786"
-# time_budget = "8h"       # seconds, or text such as "8h", "90m", "1h30m"
-output = "{table_path.stem}-results"
-"""
-
-
-def _read_columns(path: Path) -> list[str]:
-    if not path.is_file():
-        raise JobFileError(f"table {str(path)!r} does not exist; give the path of a CSV or Parquet file")
-    try:
-        if path.suffix.lower() in (".parquet", ".pq"):
-            import pyarrow.parquet as pq
-
-            return list(pq.read_schema(path).names)
-        import pandas as pd
-
-        return [str(c) for c in pd.read_csv(path, nrows=0, sep=None, engine="python").columns]
-    except Exception as err:  # noqa: BLE001 - any reader failure becomes one readable line
-        raise JobFileError(f"cannot read the column names of {str(path)!r}: {err}") from err
-
-
-_OUTCOME_WORDS = ("yield", "response", "outcome", "target", "y")
-
-
-def _guess_response(columns) -> str | None:
-    lowered = {c.lower(): c for c in columns}
-    for word in _OUTCOME_WORDS:
-        if word in lowered:
-            return lowered[word]
-    for word in _OUTCOME_WORDS[:-1]:
-        for c in columns:
-            if word in c.lower():
-                return c
-    return None

@@ -6,7 +6,7 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-from .runner import format_seconds
+from .progress import format_seconds
 from .store import RunStore, find_store, is_running
 
 __all__ = ["StoreStatus", "store_status"]

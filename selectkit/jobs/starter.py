@@ -1,0 +1,122 @@
+"""A commented starter job file for a table: its columns listed, the response guessed or left to fill in."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from ..errors import JobFileError
+from ._checks import _suggest
+
+__all__ = ["starter_job"]
+
+
+def starter_job(table_path, *, response=None) -> str:
+    """A commented starter job file for a table.
+
+    The columns are read from the table's header (CSV, or Parquet when pyarrow
+    is installed); the response is ``response`` when given, else guessed from a
+    column name that reads like an outcome (``yield``, ``response``, ``y``...),
+    else left empty for the user to fill in.
+
+    Parameters
+    ----------
+    table_path : str or Path
+    response : str, optional
+
+    Returns
+    -------
+    str
+        TOML text; write it next to the table (the table path inside is
+        relative to the job file's folder when it is written there).
+
+    Raises
+    ------
+    JobFileError
+        When the table cannot be read or ``response`` is not one of its columns.
+    """
+    table_path = Path(table_path).expanduser()
+    columns = _read_columns(table_path)
+    if response is not None and response not in columns:
+        hint = _suggest(response, columns)
+        raise JobFileError(f"response {response!r} is not a column of {str(table_path)!r}{hint}; "
+                           f"columns: {', '.join(columns)}")
+    guessed = response is None
+    if response is None:
+        response = _guess_response(columns)
+    predictors = [c for c in columns if c != response]
+    response_line = (f'response = "{response}"' + ("   # guessed: check it" if guessed else "")
+                     if response else 'response = ""   # fill in: the column to explain')
+    columns_text = "\n".join(f"#   {c}" for c in columns)
+    return f"""\
+# selectkit job file for {table_path.name} (TOML; see docs/overnight-jobs.md).
+# Run it with:     selectkit job run {table_path.stem}.toml
+# Watch it with:   selectkit job status {table_path.stem}-results
+# Resume it with:  selectkit job resume {table_path.stem}-results
+# Columns found in the table:
+{columns_text}
+
+[data]
+table = "{table_path.name}"
+{response_line}
+predictors = []            # empty: every column except the response and leave_out
+always_include = []        # predictors every model must hold
+leave_out = []             # columns never to use (identifiers, duplicates)
+# row_weights = "column"   # optional positive weights per row
+time_ordered = false       # true when rows are in time order (checks serial correlation)
+
+[forms]
+# offer = ["identity", "log", "sqrt", "reciprocal", "square", "boxcox"]   # default: the library's list
+fractional_polynomials = false
+# shifts = {{ column = 1 }}   # allow log/sqrt/reciprocal of column + 1 ("auto" picks the shift)
+interactions = []          # pairs such as "{predictors[0] if predictors else 'a'}*{predictors[1] if len(predictors) > 1 else 'b'}"
+
+[search]
+methods = ["auto"]         # auto, exhaustive, forward, backward, both, crossval, screen
+# [search.exhaustive]      # settings of one method, handed to it as given
+
+[ranking]
+aim = "explain"            # "explain" ranks by BIC, "predict" by AICc
+# criterion = "bic"        # or name one: aic, aicc, bic, cp, adj_r2, press, cv_mse
+convention = "selectkit"   # "selectkit" counts the error variance as a parameter; "statsmodels" does not
+shortlist_size = 10
+# keep_within = 4.0        # keep only models within this criterion distance of the best
+folds = 5
+resamples = 0              # bootstrap resamples for the stability of the selection (0: skip)
+
+[run]
+seed = 0
+workers = 1                # -1: every core
+backend = "loky"           # "dask" to use a cluster; then set scheduler = "tcp://host:8786"
+# time_budget = "8h"       # seconds, or text such as "8h", "90m", "1h30m"
+output = "{table_path.stem}-results"
+"""
+
+
+def _read_columns(path: Path) -> list[str]:
+    if not path.is_file():
+        raise JobFileError(f"table {str(path)!r} does not exist; give the path of a CSV or Parquet file")
+    try:
+        if path.suffix.lower() in (".parquet", ".pq"):
+            import pyarrow.parquet as pq
+
+            return list(pq.read_schema(path).names)
+        import pandas as pd
+
+        return [str(c) for c in pd.read_csv(path, nrows=0, sep=None, engine="python").columns]
+    except Exception as err:  # noqa: BLE001 - any reader failure becomes one readable line
+        raise JobFileError(f"cannot read the column names of {str(path)!r}: {err}") from err
+
+
+_OUTCOME_WORDS = ("yield", "response", "outcome", "target", "y")
+
+
+def _guess_response(columns) -> str | None:
+    lowered = {c.lower(): c for c in columns}
+    for word in _OUTCOME_WORDS:
+        if word in lowered:
+            return lowered[word]
+    for word in _OUTCOME_WORDS[:-1]:
+        for c in columns:
+            if word in c.lower():
+                return c
+    return None
