@@ -782,7 +782,7 @@ def build_candidates(
     interactions=False,
     near_duplicate=0.9999,
     response_transform=None,
-    box_tidwell_adjust=True,
+    box_tidwell_adjust=False,
 ) -> CandidateSet:
     """Build every candidate form of every predictor of a dataset.
 
@@ -830,12 +830,16 @@ def build_candidates(
         Transform of the response; its log-Jacobian (Σ log|dz/dy|, for Box-Cox
         (λ − 1) Σ log y) is stored so criteria stay comparable across response
         scales (Box & Cox 1964).
-    box_tidwell_adjust : bool, default True
-        Estimate each Box-Tidwell power with the other predictors (raw numeric
-        columns and categorical dummies) held linear in the fit, as Box and
-        Tidwell (1962) do with the other regressors; False fits the response on
-        x alone.  Falls back to x alone (with a note) when there are too few
-        rows for the other predictors.
+    box_tidwell_adjust : bool, default False
+        False (the default) estimates the power that best linearises the
+        response on x alone.  True estimates each power with the other
+        predictors (raw numeric columns and categorical dummies) held linear
+        in the fit, as Box and Tidwell (1962) do with the other regressors;
+        it can find a shape that x alone hides, but its powers are noisier
+        and, being estimated from the response, they make a data-chosen form
+        look better than its one coefficient suggests: use it knowingly.
+        Falls back to x alone (with a note) when there are too few rows for
+        the other predictors.
 
     Returns
     -------

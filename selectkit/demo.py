@@ -9,12 +9,12 @@ True model (``TRUE_TERMS``)::
 
     yield_kg_m2 = 6 + 5.5·log(light_mol_m2_day) + 0.15·sqrt(co2_above_ambient_ppm)
                   + 0.45·night_temp_c − 10/plant_density_m2
-                  + cultivar effect (Ruby 0, Amber +1.6, Garnet −1.1) + ε,   ε ~ N(0, 1.1²)
+                  + cultivar effect (Ruby 0, Amber +1.6, Garnet −1.1) + ε,   ε ~ N(0, 0.9²)
 
 Everything else is a decoy: a second light sensor that tracks the first
 (r ≈ 0.97), day temperature that follows night temperature, irrigation that
 follows light, a CO₂ set-point that is an exact shift of the CO₂ excess (intake
-reports it as collinear), bay and sensor identifiers, and a dozen auxiliary
+reports it as collinear), bay and sensor identifiers, and six auxiliary
 probe readings of pure noise.  Four bays carry outlying yields (a pest
 outbreak in the story), which the influence checks should flag.
 """
@@ -38,7 +38,7 @@ TRUE_TERMS = (
     "cultivar",
 )
 SEED = 20261202
-N_ROWS = 240
+N_ROWS = 300
 
 
 def make_greenhouse(n_rows: int = N_ROWS, seed: int = SEED) -> pd.DataFrame:
@@ -46,7 +46,7 @@ def make_greenhouse(n_rows: int = N_ROWS, seed: int = SEED) -> pd.DataFrame:
 
     Parameters
     ----------
-    n_rows : int, default 240
+    n_rows : int, default 300
         Number of bay-seasons.
     seed : int
         Seed of the numpy Generator; the bundled CSV uses the default.
@@ -66,12 +66,12 @@ def make_greenhouse(n_rows: int = N_ROWS, seed: int = SEED) -> pd.DataFrame:
     n = int(n_rows)
     light = rng.uniform(8.0, 30.0, n)
     co2_above = np.round(rng.uniform(0.0, 700.0, n) * (rng.random(n) > 0.08), 0)  # some bays unenriched: zeros
-    night_temp = rng.uniform(14.0, 20.0, n)
-    density = rng.uniform(2.0, 4.0, n)
+    night_temp = rng.uniform(12.0, 22.0, n)
+    density = rng.uniform(1.5, 4.5, n)
     cultivar = rng.choice(np.array(["Ruby", "Amber", "Garnet"]), size=n, p=[0.45, 0.35, 0.20])
     cultivar_effect = np.select([cultivar == "Amber", cultivar == "Garnet"], [1.6, -1.1], 0.0)
 
-    noise = rng.normal(0.0, 1.1, n)
+    noise = rng.normal(0.0, 0.9, n)
     y = (
         6.0
         + 5.5 * np.log(light)
@@ -104,7 +104,7 @@ def make_greenhouse(n_rows: int = N_ROWS, seed: int = SEED) -> pd.DataFrame:
             "sensor_serial": rng.permutation(np.arange(10_000, 10_000 + n)),
         }
     )
-    for j in range(1, 13):
+    for j in range(1, 7):
         frame[f"aux_probe_{j:02d}"] = np.round(rng.normal(50.0, 10.0, n), 3)
     return frame
 
