@@ -488,7 +488,7 @@ def test_box_tidwell_holds_the_other_predictors_linear():
     y = (1.0 + 5.0 / frame["spacing"].to_numpy() + 0.5 * frame["light"].to_numpy()
          + (frame["cultivar"] == "Sol").to_numpy() * 2.0 + rng.normal(0.0, 0.05, n))
     ds = Dataset(response="y", y=y, frame=frame, numeric=("spacing", "light"), categorical=("cultivar",))
-    cands = build_candidates(ds, forms=("identity", "boxtidwell"))
+    cands = build_candidates(ds, forms=("identity", "boxtidwell"), box_tidwell_adjust=True)
     (t,) = [t for t in cands.terms if t.family == "spacing" and t.transform == "boxtidwell"]
     # the same fit by hand: covariates = light and the non-reference dummies of cultivar
     Z = np.column_stack([frame["light"].to_numpy(), pd.get_dummies(frame["cultivar"], drop_first=True).to_numpy(float)])
