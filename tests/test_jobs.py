@@ -676,3 +676,15 @@ def test_resume_may_change_run_settings_only(job_folder, monkeypatch):
         runner.resume_job(job_folder / "results", scheduler="tcp://127.0.0.1:1")
     again = runner.resume_job(job_folder / "results", progress=False, time_budget=None, workers=1)
     assert again.complete and again.units_resumed == first.units_done
+
+
+def test_stop_before_any_model_writes_no_shortlist_but_says_so(job_folder):
+    spec = load_job(write_job(job_folder, exhaustive="chunks = 12\ndelay = 0.05", extra_run='time_budget = 1e-9\n'))
+    outcome = run_fake(spec)
+    assert not outcome.complete and outcome.units_done == 0 and outcome.result is None
+    assert "no model was scored yet" in outcome.stopped_by
+    assert set(outcome.outputs) == {"run summary"}
+    assert not (job_folder / "results" / "shortlist.csv").exists()
+    summary = json.loads(outcome.outputs["run summary"].read_text())
+    assert summary["complete"] is False and "no shortlist" in summary["stopped_by"]
+    assert "selectkit job resume" in outcome.render()

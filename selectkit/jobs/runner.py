@@ -335,9 +335,14 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
     complete = set(keys) <= store.finished_keys()
     stopped_by = "completed" if complete else (stop.reason or "stopped before every unit finished")
     store.record_pooled(founds)
-    result = engine.finish(setup, founds, **run_options)
-    outputs = engine.write(result, store.path.parent)
-    store.record_shortlist(engine.shortlist_rows(result))
+    if any(len(f) for f in founds):
+        result = engine.finish(setup, founds, **run_options)
+        outputs = engine.write(result, store.path.parent)
+        store.record_shortlist(engine.shortlist_rows(result))
+    else:
+        # Stopped before any model was scored: nothing to rank; the summary says so.
+        result, outputs = None, {}
+        stopped_by = f"{stopped_by}; no model was scored yet, so no shortlist was written"
     not_exact = tuple(dict.fromkeys(str(f.method) for f in founds if not getattr(f, "exact", False)))
     models = int(sum(int(getattr(f, "evaluated", 0)) for f in founds))
     seconds = time.monotonic() - started
