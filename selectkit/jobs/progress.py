@@ -42,6 +42,8 @@ def format_seconds(seconds: float | None) -> str:
     """``3725`` → ``"1h 2m 5s"``."""
     if seconds is None or not math.isfinite(seconds):
         return "unknown"
+    if seconds < 1:
+        return f"{seconds:.2g}s"
     seconds = int(round(seconds))
     hours, rest = divmod(seconds, 3600)
     minutes, secs = divmod(rest, 60)
