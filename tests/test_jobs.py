@@ -688,3 +688,11 @@ def test_stop_before_any_model_writes_no_shortlist_but_says_so(job_folder):
     summary = json.loads(outcome.outputs["run summary"].read_text())
     assert summary["complete"] is False and "no shortlist" in summary["stopped_by"]
     assert "selectkit job resume" in outcome.render()
+
+
+def test_starter_job_survives_awkward_names(tmp_path):
+    frame = pd.DataFrame({'yield "kg"': [1.0, 2.0, 3.0], "light\\dli": [1.0, 2.0, 4.0], "CO₂ ppm": [3.0, 1.0, 2.0]})
+    frame.to_csv(tmp_path / 'bay "A".csv', index=False)
+    (tmp_path / "job.toml").write_text(starter_job(tmp_path / 'bay "A".csv', response='yield "kg"'))
+    spec = load_job(tmp_path / "job.toml")
+    assert spec.response == 'yield "kg"' and spec.table.name == 'bay "A".csv'

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 
 from ..errors import JobFileError
@@ -44,9 +45,9 @@ def starter_job(table_path, *, response=None) -> str:
     if response is None:
         response = _guess_response(columns)
     predictors = [c for c in columns if c != response]
-    response_line = (f'response = "{response}"' + ("   # guessed: check it" if guessed else "")
+    response_line = (f'response = {_toml_text(response)}' + ("   # guessed: check it" if guessed else "")
                      if response else 'response = ""   # fill in: the column to explain')
-    columns_text = "\n".join(f"#   {c}" for c in columns)
+    columns_text = "\n".join(f"#   {_one_line(c)}" for c in columns)
     return f"""\
 # selectkit job file for {table_path.name} (TOML; see docs/overnight-jobs.md).
 # Run it with:     selectkit job run {table_path.stem}.toml
@@ -56,7 +57,7 @@ def starter_job(table_path, *, response=None) -> str:
 {columns_text}
 
 [data]
-table = "{table_path.name}"
+table = {_toml_text(table_path.name)}
 {response_line}
 predictors = []            # empty: every column except the response and leave_out
 always_include = []        # predictors every model must hold
@@ -68,7 +69,7 @@ time_ordered = false       # true when rows are in time order (checks serial cor
 # offer = ["identity", "log", "sqrt", "reciprocal", "square", "boxcox"]   # default: the library's list
 fractional_polynomials = false
 # shifts = {{ column = 1 }}   # allow log/sqrt/reciprocal of column + 1 ("auto" picks the shift)
-interactions = []          # pairs such as "{predictors[0] if predictors else 'a'}*{predictors[1] if len(predictors) > 1 else 'b'}"
+interactions = []          # pairs such as {_toml_text(_example_pair(predictors))}
 
 [search]
 methods = ["auto"]         # auto, exhaustive, forward, backward, both, crossval, screen
@@ -88,8 +89,23 @@ seed = 0
 workers = 1                # -1: every core
 backend = "loky"           # "dask" to use a cluster; then set scheduler = "tcp://host:8786"
 # time_budget = "8h"       # seconds, or text such as "8h", "90m", "1h30m"
-output = "{table_path.stem}-results"
+output = {_toml_text(table_path.stem + "-results")}
 """
+
+
+def _toml_text(text: str) -> str:
+    """A TOML basic string (JSON's escapes are TOML's)."""
+    return json.dumps(str(text), ensure_ascii=False)
+
+
+def _one_line(text: str) -> str:
+    return " ".join(str(text).split())
+
+
+def _example_pair(predictors) -> str:
+    first = predictors[0] if predictors else "a"
+    second = predictors[1] if len(predictors) > 1 else "b"
+    return f"{first}*{second}"
 
 
 def _read_columns(path: Path) -> list[str]:
