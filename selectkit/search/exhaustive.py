@@ -69,6 +69,9 @@ MAX_TERMS = 64
 #: Nodes per call of the compiled loop between two looks at the clock.
 _NODES_PER_SLICE = 2000
 
+#: Free terms decided at each step of the split into work units.
+_SPLIT_STEP = 2
+
 
 @dataclass(frozen=True)
 class ExhaustiveOptions:
@@ -88,9 +91,9 @@ class ExhaustiveOptions:
     time_budget : float or None
         Seconds; when reached the search returns the best models found so far
         with ``exact=False``.
-    split_depth : int, default 5
-        The in/out decisions on this many leading free terms define the work
-        units (up to 2**split_depth of them).
+    split_depth : int, default 16
+        The in/out decisions on up to this many leading free terms, two at a
+        time, define the work units (about 1.5 units per term; 0 gives one unit).
     """
 
     n_best_per_size: int = 10
@@ -99,7 +102,7 @@ class ExhaustiveOptions:
     forbidden: tuple[str, ...] = ()
     hierarchy: bool = True
     time_budget: float | None = None
-    split_depth: int = 5
+    split_depth: int = 16
 
     def __post_init__(self):
         n_best = self.n_best_per_size
@@ -114,8 +117,8 @@ class ExhaustiveOptions:
         ):
             raise OptionError(f"time_budget must be None or a positive number of seconds (got {self.time_budget!r})")
         if isinstance(self.split_depth, bool) or not isinstance(self.split_depth, (int, np.integer)) \
-                or not 0 <= self.split_depth <= 10:
-            raise OptionError(f"split_depth must be a whole number from 0 to 10 (got {self.split_depth!r})")
+                or not 0 <= self.split_depth <= 64:
+            raise OptionError(f"split_depth must be a whole number from 0 to 64 (got {self.split_depth!r})")
         for name in ("forced", "forbidden"):
             value = getattr(self, name)
             if isinstance(value, str):
@@ -376,7 +379,7 @@ def plan(candidates, moments: Moments | None, options: ExhaustiveOptions) -> lis
     Returns
     -------
     list of WorkUnit
-        Keys ``"exhaustive/branch-XXXX"``; payloads hold the scaled cross-products
+        Keys ``"exhaustive/step-LL-PATTERN"``; payloads hold the scaled cross-products
         (m × m), the term tables, starting thresholds and the unit's fixed and
         free terms.
     """
@@ -390,20 +393,10 @@ def plan(candidates, moments: Moments | None, options: ExhaustiveOptions) -> lis
     deadline = None if options.time_budget is None else time.time() + float(options.time_budget)
     free = list(problem.free)
     depth = min(len(free), int(options.split_depth))
-    head, tail = free[:depth], free[depth:]
-    units = []
-    # heaviest branches first (those holding the most important terms), so that
-    # workers do not wait on one long branch at the end
-    for pattern in range((1 << depth) - 1, -1, -1):
-        included = [head[b] for b in range(depth) if pattern >> (depth - 1 - b) & 1]
-        fams = [int(problem.t_fam[j]) for j in included]
-        if len(set(fams)) != len(fams):
-            continue
-        fixed = list(problem.forced) + included
-        if int(sum(problem.t_width[j] for j in fixed)) > problem.max_size:
-            continue
-        used = set(fams)
-        rest = [j for j in tail if int(problem.t_fam[j]) not in used]
+    width = problem.t_width
+    fam = problem.t_fam
+
+    def unit(key, fixed, rest):
         payload = {
             "problem": problem,
             "n_best": n_best,
@@ -413,7 +406,39 @@ def plan(candidates, moments: Moments | None, options: ExhaustiveOptions) -> lis
             "deadline": deadline,
             "seeds": seeds,
         }
-        units.append(WorkUnit(key=f"exhaustive/branch-{pattern:04d}", payload=payload))
+        return WorkUnit(key=key, payload=payload)
+
+    # In/out decisions on the leading (most important) free terms, two at a time.
+    # The three patterns other than "both in" become units; "both in" is split
+    # again, because the models holding the most important terms are where the
+    # work is.  The units partition the tree and depend only on the problem.
+    units = []
+    chain, rest, decided, level, ended = list(problem.forced), free, 0, 0, False
+    while decided < depth and rest:
+        w = min(_SPLIT_STEP, depth - decided, len(rest))
+        head, tail = rest[:w], rest[w:]
+        for pattern in range((1 << w) - 2, -1, -1):
+            included = [head[b] for b in range(w) if pattern >> (w - 1 - b) & 1]
+            fams = {int(fam[j]) for j in included}
+            if len(fams) != len(included):
+                continue
+            fixed = chain + included
+            if int(sum(width[j] for j in fixed)) > problem.max_size:
+                continue
+            units.append(unit(f"exhaustive/step-{level:02d}-{pattern:0{w}b}", fixed,
+                              [j for j in tail if int(fam[j]) not in fams]))
+        fams = {int(fam[j]) for j in head}
+        chain = chain + head
+        rest = [j for j in tail if int(fam[j]) not in fams]
+        decided += w
+        level += 1
+        if len(fams) != len(head) or int(sum(width[j] for j in chain)) > problem.max_size:
+            ended = True
+            break
+    if not ended:
+        units.append(unit(f"exhaustive/step-{level:02d}-rest", chain, rest))
+    # the deepest units (most important terms fixed) are usually the longest: start them first
+    units.reverse()
     return units
 
 
