@@ -32,9 +32,11 @@ N best models at every step), so that every work unit prunes from its first
 node; the answer does not depend on these starting values, only the work does.
 
 Work is split at the top of the tree into units by the in/out decisions on the
-first few (most important) free terms; the units depend only on the problem
-and the options, never on ``n_jobs``, and results are merged in plan order, so
-the answer is identical on one or many workers and on any backend.
+most important free terms, two at a time, splitting further only the branch
+that holds both (where the good models, hence the work, are); the units
+depend only on the problem and the options, never on ``n_jobs``, and results
+are merged in plan order, so the answer is identical on one or many workers
+and on any backend.
 
 References
 ----------
@@ -509,7 +511,7 @@ def run_unit(unit: WorkUnit) -> dict:
         "complete": bool(complete),
         "problem": _summary(problem),
         # models met while planning: the best found so far when the clock stops a branch
-        "seeds": () if complete else p["seeds"],
+        "seeds": () if complete else p.get("seeds", ()),
     }
 
 
