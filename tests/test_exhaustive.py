@@ -294,3 +294,11 @@ def test_hald_cement_best_subsets_match_the_published_example():
     assert order.index(("x1", "x2")) < order.index(("x1", "x4"))
     assert order.index(("x1", "x2", "x4")) < order.index(("x1", "x2", "x3"))
     assert found.rss[0] == pytest.approx(2715.76, abs=0.01)  # total sum of squares
+
+
+def test_time_budget_across_worker_processes():
+    X = ar1_design(300, 40, seed=7)
+    y = np.random.default_rng(1).normal(size=300)
+    found = exhaustive_search(make_candidates(X, y), time_budget=0.3, n_jobs=2, backend="loky")
+    assert not found.exact and "time budget" in found.stopped_by
+    assert found.subsets[0] == ()

@@ -247,3 +247,23 @@ def test_moments_from_file_through_a_candidate_set(tmp_path, response_transform)
     assert got.n == n and got.m == cands.matrix.shape[1]
     np.testing.assert_allclose(got.cross, want.cross, rtol=1e-9, atol=1e-9)
     np.testing.assert_allclose(got.mean, want.mean, rtol=1e-12, atol=1e-12)
+
+
+def test_moments_from_file_with_a_weights_column(tmp_path):
+    from selectkit.candidates import build_candidates
+    from selectkit.data import prepare
+
+    rng = np.random.default_rng(16)
+    frame = pd.DataFrame({"light": rng.uniform(5, 40, 200), "density": rng.uniform(2, 4, 200),
+                          "bay_area_m2": rng.uniform(50, 120, 200)})
+    frame["yield_kg_m2"] = 30 + np.log(frame["light"]) - 2 / frame["density"] + rng.normal(size=200)
+    path = tmp_path / "bays.csv"
+    frame.to_csv(path, index=False, float_format="%.17g")
+    cands = build_candidates(prepare(frame, response="yield_kg_m2", weights="bay_area_m2"),
+                             forms=("identity", "reciprocal"))
+    got = moments_from_file(path, cands, chunk_rows=45, weights_column="bay_area_m2")
+    want = compute_moments(cands.matrix, cands.y, frame["bay_area_m2"].to_numpy())
+    assert got.weight_sum == pytest.approx(frame["bay_area_m2"].sum())
+    np.testing.assert_allclose(got.cross, want.cross, rtol=1e-9, atol=1e-9)
+    with pytest.raises(InputError, match="no column 'area'"):
+        moments_from_file(path, cands, weights_column="area")
