@@ -271,3 +271,37 @@ def test_real_search_killed_and_resumed_gives_the_same_shortlist(tmp_path, real_
     assert resumed.complete and resumed.units_resumed == killed.units_done
     assert resumed.models_evaluated == real_straight.models_evaluated
     assert resumed.outputs["shortlist_csv"].read_bytes() == real_straight.outputs["shortlist_csv"].read_bytes()
+
+
+def test_real_search_stopped_by_a_signal_then_resumed(tmp_path_factory):
+    """Cross-validated search stopped after two units (SIGTERM from the progress hook) and resumed.
+
+    The stopped run pools the finished units into a shortlist marked not proven exact; the resumed
+    run ends with the shortlist of an uninterrupted run.
+    """
+    import os
+    from dataclasses import replace
+
+    job = REAL_JOB.replace('methods = ["exhaustive", "both"]', 'methods = ["crossval"]')
+    straight_folder = tmp_path_factory.mktemp("cv-straight")
+    write_positive_table(straight_folder / "bays.csv")
+    (straight_folder / "job.toml").write_text(job)
+    straight = _run(load_job(straight_folder / "job.toml"), resume=True, progress=False, engine=TablesEngine())
+    assert straight.complete and straight.units_total >= 3
+
+    folder = tmp_path_factory.mktemp("cv-stopped")
+    write_positive_table(folder / "bays.csv")
+    (folder / "job.toml").write_text(job)
+    spec = load_job(folder / "job.toml")
+
+    def stop_after_two(snapshot):
+        if snapshot.units_done == 2:
+            os.kill(os.getpid(), signal.SIGTERM)
+
+    stopped = _run(spec, resume=True, progress=stop_after_two, engine=TablesEngine())
+    assert not stopped.complete and stopped.units_done == 2 and stopped.stopped_by == "stopped by SIGTERM"
+    assert "crossval" in stopped.not_exact
+    assert stopped.outputs["shortlist_csv"].is_file()
+    resumed = _run(replace(spec), resume=True, progress=False, engine=TablesEngine())
+    assert resumed.complete and resumed.units_resumed == 2
+    assert resumed.outputs["shortlist_csv"].read_bytes() == straight.outputs["shortlist_csv"].read_bytes()
