@@ -62,3 +62,20 @@ def test_dask_job_resumes_a_store_started_locally(tmp_path, cluster):
     on_dask = _run(replace(spec, time_budget=None, workers=2, backend="dask", scheduler=cluster.scheduler_address),
                    resume=True, progress=False, engine=TablesEngine())
     assert on_dask.complete and on_dask.units_resumed == first.units_done
+
+
+def test_unreachable_scheduler_is_one_clear_error(tmp_path):
+    import socket
+
+    from selectkit.errors import OptionError
+    from selectkit.jobs import runner
+
+    with socket.socket() as probe:  # a free port nobody listens on
+        probe.bind(("127.0.0.1", 0))
+        port = probe.getsockname()[1]
+    spec = _job(tmp_path, f'backend = "dask"\nscheduler = "tcp://127.0.0.1:{port}"\n')
+    with pytest.raises(OptionError, match="cannot reach the Dask scheduler"):
+        runner._check_dask(spec.scheduler, timeout=2)
+    with pytest.raises(OptionError, match="needs the address of a scheduler"):
+        _run(replace(spec, scheduler=None), resume=True, progress=False, engine=TablesEngine())
+    assert not (tmp_path / "results").exists()  # refused before the store was made

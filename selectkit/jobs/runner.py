@@ -254,6 +254,8 @@ def _run(spec: JobSpec, *, resume: bool, progress, engine) -> JobOutcome:
     if not spec.table.is_file():
         raise JobFileError(f"the data file {str(spec.table)!r} of job {spec.name!r} does not exist; "
                            f"put it back or fix [data] table in the job file")
+    if spec.backend == "dask":
+        _check_dask(spec.scheduler)
     lock = StoreLock(store_path).acquire()
     try:
         store = RunStore.create_or_open(folder)
@@ -263,6 +265,27 @@ def _run(spec: JobSpec, *, resume: bool, progress, engine) -> JobOutcome:
             store.close()
     finally:
         lock.release()
+
+
+def _check_dask(scheduler: str | None, timeout: float = 10.0) -> None:
+    """Refuse early, in one line, when the Dask cluster cannot be used."""
+    try:
+        import distributed
+    except ImportError as err:
+        raise OptionError("backend 'dask' needs the dask extra; install it with: pip install 'selectkit[dask]'") from err
+    if scheduler is None:
+        try:
+            distributed.get_client()
+        except ValueError as err:
+            raise OptionError("backend 'dask' needs the address of a scheduler: set [run] scheduler = "
+                              "\"tcp://HOST:8786\" (no Dask client runs in this process)") from err
+        return
+    try:
+        client = distributed.Client(scheduler, timeout=timeout)
+    except (OSError, TimeoutError) as err:
+        raise OptionError(f"cannot reach the Dask scheduler at {scheduler!r} within {timeout:.0f} s ({err}); "
+                          f"check the address and that the scheduler runs") from err
+    client.close()
 
 
 def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> JobOutcome:
