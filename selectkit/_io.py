@@ -15,6 +15,10 @@ def atomic_write_bytes(path, data: bytes) -> Path:
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
     try:
+        # mkstemp makes the file private (0600); give it the mode a plain open() would.
+        umask = os.umask(0)
+        os.umask(umask)
+        os.fchmod(fd, 0o666 & ~umask)
         with os.fdopen(fd, "wb") as handle:
             handle.write(data)
             handle.flush()

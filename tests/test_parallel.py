@@ -41,3 +41,19 @@ def test_bad_n_jobs_is_refused(bad):
 def test_unknown_backend_lists_valid_ones():
     with pytest.raises(OptionError, match="loky"):
         run_units(_square_with_draw, _units(2), n_jobs=2, backend="spark")
+
+
+def test_atomic_write_replaces_whole_file_with_normal_permissions(tmp_path):
+    import os
+    import stat
+
+    from selectkit._io import atomic_write_text
+
+    target = tmp_path / "shortlist.csv"
+    target.write_text("old contents that are longer than the new ones\n")
+    atomic_write_text(target, "new\n")
+    assert target.read_text() == "new\n"
+    umask = os.umask(0)
+    os.umask(umask)
+    assert stat.S_IMODE(target.stat().st_mode) == 0o666 & ~umask
+    assert [p.name for p in tmp_path.iterdir()] == ["shortlist.csv"]  # no temporary file left behind
