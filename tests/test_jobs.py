@@ -25,7 +25,7 @@ import pandas as pd
 import pytest
 
 from selectkit import criteria
-from selectkit.errors import JobFileError, OptionError, StoreBusyError, StoreError
+from selectkit.errors import JobFileError, OptionError, SelectkitError, StoreBusyError, StoreError
 from selectkit.jobs import (
     RunStore,
     STORE_NAME,
@@ -696,3 +696,14 @@ def test_starter_job_survives_awkward_names(tmp_path):
     (tmp_path / "job.toml").write_text(starter_job(tmp_path / 'bay "A".csv', response='yield "kg"'))
     spec = load_job(tmp_path / "job.toml")
     assert spec.response == 'yield "kg"' and spec.table.name == 'bay "A".csv'
+
+
+def test_a_unit_key_the_runner_did_not_plan_is_never_stored(job_folder):
+    class Drifting(FakeEngine):
+        def unit_keys(self, setup):
+            return [f"other/{key}" for key in super().unit_keys(setup)]
+
+    spec = load_job(write_job(job_folder))
+    with pytest.raises(SelectkitError, match="not among the planned units"):
+        _run(spec, resume=True, progress=False, engine=Drifting())
+    assert store_status(job_folder / "results").units_done == 0

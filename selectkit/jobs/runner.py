@@ -22,7 +22,7 @@ from pathlib import Path
 from typing import Any, Mapping
 
 from .._io import atomic_write_text
-from ..errors import JobFileError, OptionError, StoreError
+from ..errors import JobFileError, OptionError, SelectkitError, StoreError
 from .progress import JobProgress, format_seconds, make_reporter
 from .spec import JobSpec, load_job
 from .store import STORE_NAME, RunStore, StoreLock, data_fingerprint, find_store
@@ -110,6 +110,10 @@ class _ApiEngine:
         return api.prepare_search(str(spec.table), **spec.search_options())
 
     def unit_keys(self, setup) -> list[str]:
+        from .. import api
+
+        if hasattr(api, "unit_keys"):  # the api's own list, when it offers one
+            return list(api.unit_keys(setup))
         # The keys run_methods gives its units: "<method>/<unit key>" in plan order.
         keys = []
         for run in setup.runs:
@@ -325,7 +329,12 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
                               initial_models=store.unit_counts()[1], started=started)
     last = [time.monotonic()]
 
+    planned = set(keys)
+
     def on_unit(key, result):
+        if key not in planned:  # the runner and the searches disagree on unit keys: never store it
+            raise SelectkitError(f"internal error: finished unit {key!r} is not among the planned units "
+                                 f"({len(planned)} planned); please report it")
         now = time.monotonic()
         models = _count_models(result)
         store.record_unit(key, result, models=models, seconds=now - last[0])
