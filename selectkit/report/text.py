@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import textwrap
+
 import math
 
 __all__ = ["CAUTIONS", "SHORT_CAUTION", "summary"]
@@ -29,6 +31,9 @@ CAUTIONS = (
 SHORT_CAUTION = ("Caution: p-values and intervals of a selected model are optimistic (trust the CV error "
                  "and a held-out check); association is not causation; do not extrapolate beyond the "
                  "data; the decision rests with you and local professional standards.")
+
+
+_TERMS_WIDTH = 78
 
 
 def _number(value) -> str:
@@ -78,15 +83,15 @@ def summary(*, shortlist, settings=None, founds=(), diagnoses=(), paths=None, to
     lines.append(f"Ranked by {shortlist.criterion.upper()}: {shortlist.criterion_reason}")
     lines.append("")
     table = shortlist.table.head(top)
-    width = max([len(str(t)) for t in table["terms"]] + [5])
-    width = min(width, 70)
-    lines.append(f"  {'#':>2}  {'terms':<{width}}  {'Δ':>7}  {'weight':>6}")
+    # Terms are the point of the table: print them whole, wrapped at the "+" between terms.
+    lines.append(f"  {'#':>2}  {'Δ':>7}  {'weight':>6}  terms")
+    indent = " " * 21
     for _, row in table.iterrows():
-        terms = str(row["terms"])
-        if len(terms) > width:
-            terms = terms[: width - 1] + "…"
-        lines.append(f"  {int(row['position']):>2}  {terms:<{width}}  {_number(row['delta_from_best']):>7}  "
-                     f"{_number(row['model_weight']):>6}")
+        terms = str(row["terms"]) or "(intercept only)"
+        wrapped = textwrap.wrap(terms, width=_TERMS_WIDTH, break_long_words=False, break_on_hyphens=False)
+        lines.append(f"  {int(row['position']):>2}  {_number(row['delta_from_best']):>7}  "
+                     f"{_number(row['model_weight']):>6}  {wrapped[0] if wrapped else ''}")
+        lines.extend(indent + part for part in wrapped[1:])
     if shortlist.fits:
         lines.append("")
         lines.append("Best model: " + shortlist.fits[0].equation)
