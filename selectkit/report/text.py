@@ -85,12 +85,12 @@ def summary(*, shortlist, settings=None, founds=(), diagnoses=(), paths=None, to
     table = shortlist.table.head(top)
     # Terms are the point of the table: print them whole, wrapped at the "+" between terms.
     lines.append(f"  {'#':>2}  {'Δ':>7}  {'weight':>6}  terms")
-    indent = " " * 21
+    indent = " " * 23
     for _, row in table.iterrows():
         terms = str(row["terms"]) or "(intercept only)"
         wrapped = textwrap.wrap(terms, width=_TERMS_WIDTH, break_long_words=False, break_on_hyphens=False)
-        lines.append(f"  {int(row['position']):>2}  {_number(row['delta_from_best']):>7}  "
-                     f"{_number(row['model_weight']):>6}  {wrapped[0] if wrapped else ''}")
+        lines.append(f"  {int(row['position']):>2}  {float(row['delta_from_best']):>7.2f}  "
+                     f"{float(row['model_weight']):>6.3f}  {wrapped[0] if wrapped else ''}")
         lines.extend(indent + part for part in wrapped[1:])
     if shortlist.fits:
         lines.append("")
