@@ -95,6 +95,7 @@ def test_second_run_on_a_busy_store_is_refused(tmp_path):
     try:
         status = _wait_for_units(tmp_path / "results", 1, child)
         assert status.state == "running" and "running" in status.render()
+        assert status.eta is not None and status.eta > 0 and "left at this run's pace" in status.render()
         with pytest.raises(StoreBusyError, match=f"in use by another job \\(process {child.pid}\\)"):
             run_fake(load_job(job))
         done = _cli("run", str(job), cwd=tmp_path)

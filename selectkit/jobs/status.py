@@ -42,6 +42,8 @@ class StoreStatus:
         The first rows of the stored shortlist (after a run ended).
     data : str
         The data file the store belongs to.
+    eta : float or None
+        While running: seconds left, from the pace of the units finished in this run.
     """
 
     store: Path
@@ -58,6 +60,7 @@ class StoreStatus:
     log: tuple[str, ...]
     shortlist: tuple[dict, ...]
     data: str
+    eta: float | None = None
 
     def render(self) -> str:
         """Readable lines for a person."""
@@ -70,6 +73,8 @@ class StoreStatus:
             lines.append(f"  last run started {format_seconds(now - self.started_at)} ago")
         if self.updated_at is not None:
             lines.append(f"  last unit finished {format_seconds(now - self.updated_at)} ago")
+        if self.running and self.eta is not None:
+            lines.append(f"  about {format_seconds(self.eta)} left at this run's pace")
         if self.stopped_by and self.state not in ("running", "complete"):
             lines.append(f"  stopped by: {self.stopped_by}")
         if self.not_exact:
@@ -122,6 +127,9 @@ def store_status(folder_or_store, *, log_lines: int = 5, shortlist_rows: int = 5
         about = store.about()
         done, models = store.unit_counts()
         updated = store._db.execute("SELECT max(finished_at) FROM units").fetchone()[0]
+        started = about.get("run_started_at")
+        this_run = 0 if started is None else store._db.execute(
+            "SELECT count(*) FROM units WHERE finished_at >= ?", (started,)).fetchone()[0]
         log = tuple(f"{time.strftime('%Y-%m-%d %H:%M:%S', time.localtime(at))} {level}: {message}"
                     for at, level, message in store.log_lines(last=log_lines))
         shortlist = tuple(store.shortlist()[:shortlist_rows])
@@ -134,6 +142,10 @@ def store_status(folder_or_store, *, log_lines: int = 5, shortlist_rows: int = 5
         state = "interrupted"
     else:
         state = recorded_state
+    total = int(about.get("units_total", 0) or 0)
+    eta = None
+    if running and this_run > 0 and started is not None:
+        eta = (time.time() - started) / this_run * max(0, total - done)
     if about.get("state") in ("complete", "incomplete"):
         models = int(about.get("models_evaluated", models))
     return StoreStatus(
@@ -142,7 +154,7 @@ def store_status(folder_or_store, *, log_lines: int = 5, shortlist_rows: int = 5
         state=state,
         running=running,
         units_done=done,
-        units_total=int(about.get("units_total", 0) or 0),
+        units_total=total,
         models_evaluated=models,
         stopped_by=str(about.get("stopped_by", "")),
         not_exact=tuple(about.get("not_exact", ())),
@@ -151,4 +163,5 @@ def store_status(folder_or_store, *, log_lines: int = 5, shortlist_rows: int = 5
         log=log,
         shortlist=shortlist if state != "running" else (),
         data=str((about.get("data") or {}).get("path", "")),
+        eta=eta,
     )
