@@ -93,7 +93,7 @@ class JobOutcome:
         if not self.complete:
             lines.append(f"  continue with: selectkit job resume {self.store.parent}")
         lines.append("  note: p-values of a selected model are optimistic; association is not causation; "
-                     "the decision rests with the practitioner.")
+                     "the decision rests with the practitioner and local professional standards.")
         return "\n".join(lines)
 
     def __str__(self) -> str:
