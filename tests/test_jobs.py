@@ -707,3 +707,28 @@ def test_a_unit_key_the_runner_did_not_plan_is_never_stored(job_folder):
     with pytest.raises(SelectkitError, match="not among the planned units"):
         _run(spec, resume=True, progress=False, engine=Drifting())
     assert store_status(job_folder / "results").units_done == 0
+
+
+def test_a_search_that_cannot_pool_a_partial_run_still_stops_cleanly(job_folder):
+    """When a search's merge refuses unfinished units, the stop keeps the units and says why there is no shortlist."""
+    class Strict(FakeEngine):
+        def run(self, setup, **options):
+            founds = super().run(setup, **options)
+            if not founds[0].exact:
+                raise TypeError("merge needs every unit")
+            return founds
+
+    spec = load_job(write_job(job_folder, exhaustive="chunks = 12\ndelay = 0.02"))
+
+    def stop_after_three(snapshot):
+        if snapshot.units_done == 3:
+            os.kill(os.getpid(), signal.SIGTERM)
+
+    outcome = _run(spec, resume=True, progress=stop_after_three, engine=Strict())
+    assert not outcome.complete and outcome.units_done == 3
+    assert "could not pool the finished units (TypeError: merge needs every unit)" in outcome.stopped_by
+    assert outcome.not_exact == ("exhaustive",) and set(outcome.outputs) == {"run summary"}
+    status = store_status(job_folder / "results")
+    assert status.state == "incomplete" and "pooling the finished units failed" in status.render()
+    again = _run(spec, resume=True, progress=False, engine=Strict())
+    assert again.complete and again.units_resumed == 3

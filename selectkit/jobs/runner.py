@@ -342,6 +342,7 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
         reporter.unit(key, models)
 
     run_options = dict(n_jobs=spec.workers, backend=spec.backend, scheduler=spec.scheduler)
+    pooling_error = None
     try:
         with _signals_caught(stop):
             try:
@@ -351,7 +352,10 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
                     raise
                 # Ctrl-C on a terminal reaches the worker processes too, and joblib passes their
                 # KeyboardInterrupt on; the stop was asked for, so pool what the store holds.
-                founds = engine.run(setup, done=store.finished_units(), should_stop=lambda: True, n_jobs=1)
+                try:
+                    founds = engine.run(setup, done=store.finished_units(), should_stop=lambda: True, n_jobs=1)
+                except Exception as err:  # a search that cannot merge a partial set of units
+                    pooling_error, founds = err, []
     except BaseException as err:
         reporter.close()
         if isinstance(err, (KeyboardInterrupt, SystemExit)):
@@ -367,7 +371,15 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
     complete = set(keys) <= store.finished_keys()
     stopped_by = "completed" if complete else (stop.reason or "stopped before every unit finished")
     store.record_pooled(founds)
-    if any(len(f) for f in founds):
+    not_exact = tuple(dict.fromkeys(str(f.method) for f in founds if not getattr(f, "exact", False)))
+    if pooling_error is not None:
+        result, outputs = None, {}
+        not_exact = tuple(str(run.name) for run in getattr(setup, "runs", ()))
+        stopped_by = (f"{stopped_by}; the searches could not pool the finished units "
+                      f"({type(pooling_error).__name__}: {pooling_error}), so no shortlist was written")
+        store.log(f"pooling the finished units failed: {type(pooling_error).__name__}: {pooling_error}",
+                  level="warning")
+    elif any(len(f) for f in founds):
         result = engine.finish(setup, founds, **run_options)
         outputs = engine.write(result, store.path.parent)
         store.record_shortlist(engine.shortlist_rows(result))
@@ -375,7 +387,6 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
         # Stopped before any model was scored: nothing to rank; the summary says so.
         result, outputs = None, {}
         stopped_by = f"{stopped_by}; no model was scored yet, so no shortlist was written"
-    not_exact = tuple(dict.fromkeys(str(f.method) for f in founds if not getattr(f, "exact", False)))
     models = int(sum(int(getattr(f, "evaluated", 0)) for f in founds))
     seconds = time.monotonic() - started
     outcome = JobOutcome(
