@@ -217,7 +217,7 @@ response_form = "boxcox:0.5"
 methods = ["exhaustive", "both"]
 exact_limit = 30
 [search.exhaustive]
-max_terms = 3
+max_size = 3
 
 [ranking]
 aim = "predict"
@@ -247,7 +247,7 @@ def test_full_job_file_is_read(job_folder):
     assert spec.predictors == ("x0", "x1", "x2", "x3")
     assert spec.time_budget == 5400.0
     assert spec.workers == 2 and spec.backend == "dask" and spec.scheduler == "tcp://127.0.0.1:8786"
-    assert dict(spec.method_settings["exhaustive"]) == {"max_terms": 3}
+    assert dict(spec.method_settings["exhaustive"]) == {"max_size": 3}
     options = spec.search_options()
     assert options["shifts"] == {"x1": 1, "x2": "auto"}
     assert options["interactions"] == [("x0", "x1")]
@@ -293,7 +293,11 @@ def test_run_settings_do_not_change_the_fingerprint(job_folder):
 @pytest.mark.parametrize("edit, words", [
     (("[run]", "[run]\nwokers = 2"), ["'wokers'", "did you mean 'workers'"]),
     (("[ranking]", "[ranking]\nseed = 2"), ["'seed'", "belongs in [run]"]),
-    (("[ranking]", "[rankng]"), ["unknown section 'rankng'", "did you mean 'ranking'"]),
+    (("[ranking]", "[rankng]"), ["unknown section [rankng]", "did you mean 'ranking'"]),
+    (("max_size = 3", "time_budget = 60"), ["[search.exhaustive] time_budget", "[run] time_budget"]),
+    (('[search.exhaustive]', '[search.exhaustve]'), ["[search.exhaustve]", "did you mean 'exhaustive'"]),
+    (('methods = ["exhaustive", "both"]\nexact_limit = 30\n[search.exhaustive]',
+      'methods = ["auto"]\nexact_limit = 30\n[search.auto]'), ["[search.auto] cannot hold settings"]),
     (('workers = 2', 'workers = "two"'), ["[run] workers", "whole number"]),
     (('workers = 2', 'workers = 0'), ["[run] workers", "at least 1"]),
     (('time_budget = "1h30m"', 'time_budget = -60'), ["time_budget", "positive"]),
@@ -326,6 +330,12 @@ def test_malformed_job_files_give_one_clear_line(job_folder, edit, words):
 def test_missing_job_file(tmp_path):
     with pytest.raises(JobFileError, match="does not exist"):
         load_job(tmp_path / "none.toml")
+
+
+def test_settings_for_what_auto_may_run_are_accepted(job_folder):
+    text = FULL_JOB.replace('methods = ["exhaustive", "both"]', 'methods = ["auto"]')
+    spec = parse_job(text, base=job_folder)
+    assert spec.methods == ("auto",) and dict(spec.method_settings["exhaustive"]) == {"max_size": 3}
 
 
 def test_job_file_never_executes_code(job_folder):
@@ -732,3 +742,17 @@ def test_a_search_that_cannot_pool_a_partial_run_still_stops_cleanly(job_folder)
     assert status.state == "incomplete" and "pooling the finished units failed" in status.render()
     again = _run(spec, resume=True, progress=False, engine=Strict())
     assert again.complete and again.units_resumed == 3
+
+
+def test_a_method_setting_the_search_refuses_is_a_job_file_error(tmp_path):
+    """Checked by the real search before any work: the message names the valid settings."""
+    from selectkit.jobs.runner import _API
+    from tests.test_jobs_resume import REAL_JOB, write_positive_table
+
+    write_positive_table(tmp_path / "bays.csv")
+    (tmp_path / "job.toml").write_text(REAL_JOB.replace('methods = ["exhaustive", "both"]',
+                                                        'methods = ["exhaustive"]\n[search.exhaustive]\nmax_terms = 3'))
+    with pytest.raises(JobFileError, match="job.toml.*'max_terms'.*max_size") as caught:
+        _run(load_job(tmp_path / "job.toml"), resume=True, progress=False, engine=_API)
+    assert "\n" not in str(caught.value)
+    assert store_status(tmp_path / "results").units_done == 0

@@ -27,7 +27,7 @@ and range, and the data file must exist.  The layout::
     methods = ["exhaustive", "both"]
     exact_limit = 40
     [search.exhaustive]             # settings of one method, handed on as given
-    max_terms = 6
+    max_size = 6                    # largest model: columns besides the intercept
 
     [ranking]
     aim = "explain"                 # "explain" ranks by BIC, "predict" by AICc
@@ -421,7 +421,8 @@ def parse_job(text: str, *, base=".", name: str = "job", source=None, check_tabl
 
     for section in raw:
         if section not in _SCHEMA:
-            raise JobFileError(_unknown_key_message(None, section, list(_SCHEMA)) .replace("unknown key", "unknown section"))
+            raise JobFileError(f"unknown section [{section}]{_suggest(section, _SCHEMA)}; "
+                               f"the sections are {', '.join(f'[{s}]' for s in _SCHEMA)}")
         if not isinstance(raw[section], dict):
             raise JobFileError(f"{section!r} must be a section written [{section}] (got {_type_name(raw[section])})")
 
@@ -445,13 +446,22 @@ def parse_job(text: str, *, base=".", name: str = "job", source=None, check_tabl
                 values[key] = default
 
     for method, settings in method_settings.items():
-        if method not in values["methods"]:
+        if method == "auto":
+            raise JobFileError("[search.auto] cannot hold settings: give them to the method auto picks, "
+                               "[search.exhaustive] or [search.screen]")
+        if method not in METHOD_NAMES:
+            raise JobFileError(f"[search.{method}]: unknown search method{_suggest(method, METHOD_NAMES)}; "
+                               f"choose from {', '.join(METHOD_NAMES[1:])}")
+        if method not in values["methods"] and "auto" not in values["methods"]:
             hint = _suggest(method, values["methods"])
             raise JobFileError(
                 f"[search.{method}] gives settings for a method not in [search] methods "
                 f"({', '.join(values['methods'])}){hint}; add it to methods or remove the section"
             )
         for key, value in settings.items():
+            if key == "time_budget":
+                raise JobFileError(f"[search.{method}] time_budget: a job's budget is [run] time_budget (checked "
+                                   f"between work units, so that every stored unit is whole); move it there")
             if isinstance(value, dict):
                 raise JobFileError(f"[search.{method}] {key} must be a plain value or a list, not a table")
 
