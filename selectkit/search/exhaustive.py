@@ -537,13 +537,18 @@ def merge(candidates, moments: Moments | None, options: ExhaustiveOptions, resul
         moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
     terms = candidates.terms
     results = list(results)
+    unfinished = sum(res is None for res in results)  # units a stopped job never ran
+    results = [res for res in results if res is not None]
+    if unfinished and not results:
+        return Found(method="exhaustive", subsets=(), rss=np.zeros(0), k=np.zeros(0, dtype=np.int64),
+                     n=int(moments.n), exact=False, stopped_by="stopped before any branch was searched")
     per_size: dict[int, list] = {}
     seen = set()
     for res in results:
         for size, rss, model in res["models"]:
             per_size.setdefault(size, []).append((rss, model))
             seen.add(model)
-    if not all(res["complete"] for res in results):
+    if unfinished or not all(res["complete"] for res in results):
         for res in results:
             for size, rss, model in res["seeds"]:
                 if model not in seen:
@@ -579,11 +584,14 @@ def merge(candidates, moments: Moments | None, options: ExhaustiveOptions, resul
             )
         if not problem["term_index"]:
             raise SearchError("there are no candidate terms to search; add predictors or lift the exclusions")
-    complete = all(res["complete"] for res in results)
-    stopped_by = "completed" if complete else (
-        f"time budget of {options.time_budget:g} s reached; "
-        f"{sum(not r['complete'] for r in results)} of {len(results)} branches unfinished"
-    )
+    complete = unfinished == 0 and all(res["complete"] for res in results)
+    if complete:
+        stopped_by = "completed"
+    elif unfinished:
+        stopped_by = f"stopped: {unfinished} of {len(results) + unfinished} branches not searched"
+    else:
+        stopped_by = (f"time budget of {options.time_budget:g} s reached; "
+                      f"{sum(not r['complete'] for r in results)} of {len(results)} branches unfinished")
     details = {
         "options": asdict(options),
         "units": len(results),
