@@ -51,6 +51,7 @@ Miller, A. J. (2002). Subset Selection in Regression, 2nd ed. Chapman & Hall/CRC
 from __future__ import annotations
 
 import time
+from functools import cached_property
 from dataclasses import asdict, dataclass, replace
 from types import MappingProxyType
 
@@ -147,6 +148,11 @@ class _Problem:
     free: tuple[int, ...]  # ordered, most important first
     max_size: int
     dropped: tuple[str, ...]
+
+    @cached_property
+    def columns_by_term(self) -> tuple[tuple[int, ...], ...]:
+        """Each term's candidate columns as a plain tuple (hot in the Python-level beam search)."""
+        return tuple(tuple(int(c) for c in self.t_cols[j, : self.t_width[j]]) for j in range(len(self.t_width)))
 
 
 def _prepare(candidates, moments: Moments, options: ExhaustiveOptions) -> _Problem:
@@ -263,8 +269,8 @@ def _prepare(candidates, moments: Moments, options: ExhaustiveOptions) -> _Probl
 
 
 def _columns_of(problem: _Problem, model) -> np.ndarray:
-    cols = [c for j in model for c in problem.t_cols[j, : problem.t_width[j]]]
-    return np.asarray(cols, dtype=np.int64)
+    by_term = problem.columns_by_term
+    return np.asarray([c for j in model for c in by_term[j]], dtype=np.int64)
 
 
 def _importance_order(problem: _Problem, free) -> list[int]:
