@@ -151,7 +151,7 @@ def main(argv=None) -> int:
                 print("ERROR: the job's shortlist differs from the plain search's", file=sys.stderr)
                 return 1
         with RunStore.open_read_only(outcome.store) as store:
-            unit_seconds = [s for (s,) in store._db.execute("SELECT seconds FROM units")]
+            unit_seconds = [seconds for _, seconds, _ in store.unit_times()]
         size = outcome.store.stat().st_size + sum(
             p.stat().st_size for p in outcome.store.parent.glob(outcome.store.name + "-*"))
 

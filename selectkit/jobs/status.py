@@ -126,10 +126,10 @@ def store_status(folder_or_store, *, log_lines: int = 5, shortlist_rows: int = 5
     with RunStore.open_read_only(path) as store:
         about = store.about()
         done, models = store.unit_counts()
-        updated = store._db.execute("SELECT max(finished_at) FROM units").fetchone()[0]
+        finished = [at for _, _, at in store.unit_times() if at is not None]
+        updated = max(finished, default=None)
         started = about.get("run_started_at")
-        this_run = 0 if started is None else store._db.execute(
-            "SELECT count(*) FROM units WHERE finished_at >= ?", (started,)).fetchone()[0]
+        this_run = 0 if started is None else sum(at >= started for at in finished)
         log = tuple(f"{time.strftime('%Y-%m-%d %H:%M:%S', time.localtime(at))} {level}: {message}"
                     for at, level, message in store.log_lines(last=log_lines))
         shortlist = tuple(store.shortlist()[:shortlist_rows])

@@ -21,7 +21,6 @@ import os
 import pickle
 import sqlite3
 import time
-from contextlib import closing
 from pathlib import Path
 from types import MappingProxyType
 
@@ -277,6 +276,7 @@ class RunStore:
         return cls(path, db, read_only=True)
 
     def close(self) -> None:
+        """Close the connection (a read-write store stays locked until its :class:`StoreLock` is released)."""
         self._db.close()
 
     def __enter__(self):
@@ -300,6 +300,7 @@ class RunStore:
             )
 
     def about(self) -> dict:
+        """Every ``about`` value: settings, data fingerprint, state, counts."""
         return {name: json.loads(value) for name, value in self._db.execute("SELECT name, value FROM about")}
 
     # ------------------------------------------------------------------ units
@@ -324,6 +325,11 @@ class RunStore:
     def finished_keys(self) -> set:
         """Keys of the finished units."""
         return {key for (key,) in self._db.execute("SELECT key FROM units WHERE state = 'done'")}
+
+    def unit_times(self) -> list[tuple[str, float | None, float | None]]:
+        """``(key, seconds it took, Unix time it finished)`` of each finished unit, in finishing order."""
+        return list(self._db.execute(
+            "SELECT key, seconds, finished_at FROM units WHERE state = 'done' ORDER BY position"))
 
     def unit_counts(self) -> tuple[int, int]:
         """(units finished, models evaluated by them as far as recorded)."""
@@ -353,9 +359,11 @@ class RunStore:
                 )
 
     def pooled(self) -> list:
+        """The pooled search results (``Found`` values) of the last run that ended."""
         return [pickle.loads(b) for (b,) in self._db.execute("SELECT found FROM pooled ORDER BY position")]
 
     def pooled_summary(self) -> list[dict]:
+        """Per search: method, models kept, models evaluated, exact or not, why it stopped."""
         rows = self._db.execute(
             "SELECT method, models, evaluated, exact, stopped_by FROM pooled ORDER BY position").fetchall()
         return [dict(method=m, models=n, evaluated=e, exact=bool(x), stopped_by=s) for m, n, e, x, s in rows]
@@ -370,14 +378,17 @@ class RunStore:
             )
 
     def shortlist(self) -> list[dict]:
+        """The stored shortlist rows, best first."""
         return [json.loads(r) for (r,) in self._db.execute("SELECT row FROM shortlist ORDER BY position")]
 
     # ------------------------------------------------------------------ log
     def log(self, message: str, level: str = "info") -> None:
+        """Append a line to the store's log (its own transaction)."""
         with self._transaction():
             self._db.execute("INSERT INTO log (at, level, message) VALUES (?, ?, ?)", (time.time(), level, message))
 
     def log_lines(self, last: int | None = None) -> list[tuple[float, str, str]]:
+        """``(Unix time, level, message)`` of every log line, or of the ``last`` ones."""
         if last is None:
             return list(self._db.execute("SELECT at, level, message FROM log ORDER BY id"))
         rows = self._db.execute("SELECT at, level, message FROM log ORDER BY id DESC LIMIT ?", (last,)).fetchall()
@@ -413,9 +424,3 @@ def _json_default(value):
     if isinstance(value, (set, frozenset, tuple)):
         return list(value)
     return str(value)
-
-
-def read_store_about(path) -> dict:
-    """All ``about`` values of a store, read-only."""
-    with closing(RunStore.open_read_only(path)) as store:
-        return store.about()
