@@ -111,7 +111,7 @@ def models_per_second(n, p, n_fits):
 
 
 def best_subsets(n, plain_ps, family_spec, sm_rate, n_best):
-    from selectkit.search.exhaustive import exhaustive_search
+    from selectkit.searches.exhaustive import exhaustive_search
 
     rows = []
     for p in plain_ps:
@@ -148,7 +148,7 @@ def best_subsets(n, plain_ps, family_spec, sm_rate, n_best):
 
 
 def workers(n, p, max_size, n_best):
-    from selectkit.search.exhaustive import exhaustive_search
+    from selectkit.searches.exhaustive import exhaustive_search
 
     X, y, _ = linear_problem(n=n, p=p)
     cands = candidates_for(X, y)
@@ -178,7 +178,7 @@ def main(argv=None):
     parser.add_argument("--rows", type=int, default=1000, help="rows of the invented data (default 1000)")
     args = parser.parse_args(argv)
 
-    from selectkit.search.exhaustive import exhaustive_search
+    from selectkit.searches.exhaustive import exhaustive_search
 
     # warm up the compiled kernels (cached on disk after the first run)
     Xw, yw, _ = linear_problem(n=50, p=6)

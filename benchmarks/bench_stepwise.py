@@ -47,8 +47,8 @@ sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 from _data import candidates_for, linear_problem  # noqa: E402
 
 from selectkit.moments import compute_moments  # noqa: E402
-from selectkit.search.crossval import cv_select, shuffled_folds  # noqa: E402
-from selectkit.search.stepwise import stepwise_search  # noqa: E402
+from selectkit.searches.crossval import cv_select, shuffled_folds  # noqa: E402
+from selectkit.searches.stepwise import stepwise_search  # noqa: E402
 
 
 def _timed(fn, *args, **kwargs):
@@ -186,7 +186,7 @@ def bench_sklearn(X, y, true, fwd_terms, bwd_terms, t_fwd, t_bwd, tol):
 
 
 def bench_crossval(n, p, repeats, large_n=None, seed=0):
-    from selectkit.search.exhaustive import exhaustive_search
+    from selectkit.searches.exhaustive import exhaustive_search
 
     X, y, true = linear_problem(n=n, p=p, n_true=6, seed=seed + 5)
     cand = candidates_for(X, y)

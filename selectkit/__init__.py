@@ -40,10 +40,6 @@ __all__ = [
 ]
 
 
-# The search methods live in the subpackage ``selectkit.search``; importing it
-# first and binding the facade function afterwards keeps ``selectkit.search``
-# the function however often the subpackage's modules are imported later
-# (``from selectkit.search.stepwise import ...`` still works: it reads
-# ``sys.modules``).
-from . import search as _search_methods  # noqa: E402,F401
+# The search methods live in the subpackage ``selectkit.searches`` (not
+# ``selectkit.search``, which is the facade function below).
 from .api import Result, load, search  # noqa: E402

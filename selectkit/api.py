@@ -232,7 +232,7 @@ def prepare_search(
 
 def _make_run(name, user_options, *, seed, time_budget, exact_limit, folds, criterion, aim) -> MethodRun:
     """Resolve a method name and its user options to a module and its options object."""
-    from .search import _adapters
+    from .searches import _adapters
 
     module_name, options = _adapters.make_options(
         name, dict(user_options), seed=seed, time_budget=time_budget, exact_limit=exact_limit,
@@ -316,7 +316,7 @@ def run_methods(
         merged = run.module.merge(setup.candidates, setup.moments, run.options, ordered)
         merged = merged if isinstance(merged, (list, tuple)) else [merged]
         if stopped or any(r is None for r in ordered):
-            from .search._found import mark_incomplete
+            from .searches._found import mark_incomplete
 
             merged = [mark_incomplete(f, "stopped before every work unit finished") for f in merged]
         founds.extend(merged)
@@ -336,7 +336,7 @@ def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: st
     s = setup.settings
     scores = None
     try:
-        from .search.crossval import score_subsets
+        from .searches.crossval import score_subsets
     except ImportError:  # pragma: no cover - the module is part of the package
         score_subsets = None
     pooled = sorted({sub for f in founds for sub in f.subsets})
@@ -375,7 +375,7 @@ class _StabilityRunner:
 
     def __call__(self, candidates):
         from .moments import compute_moments
-        from .search._found import pool
+        from .searches._found import pool
 
         moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
         found = []

@@ -1,6 +1,6 @@
 """Pool the models every search found, score them, and keep a shortlist.
 
-:func:`rank` merges :class:`~selectkit.search.Found` values, removes models
+:func:`rank` merges :class:`~selectkit.searches.Found` values, removes models
 found more than once (one row lists every search that found it), scores every
 model with the criteria of :mod:`selectkit.criteria`, orders them, and refits
 the shortlisted ones by QR (:func:`refit`).  :func:`stability` repeats a search
@@ -44,7 +44,7 @@ __all__ = [
 #: What the user wants the model for; picks the default criterion.
 AIMS = ("explain", "predict")
 
-#: Columns that come from :func:`selectkit.search.crossval.score_subsets`, not from rss.
+#: Columns that come from :func:`selectkit.searches.crossval.score_subsets`, not from rss.
 SCORE_COLUMNS = ("press", "cv_mse", "cv_se", "holdout_mse")
 
 #: Information criteria that have Akaike-type weights.
@@ -295,7 +295,7 @@ def _joined(names: Sequence[str]) -> str:
 
 def _pool(founds, n_terms_total: int):
     """Merge Founds: one entry per distinct subset, keeping the smallest rss."""
-    from .search._found import Found
+    from .searches._found import Found
 
     if isinstance(founds, Found):
         founds = [founds]
@@ -378,11 +378,11 @@ def _normalise_scores(scores, subsets) -> tuple[pd.DataFrame, list[str]]:
 def _compute_scores(candidates, subsets, moments, folds, seed):
     """Call score_subsets when it exists; else leave the score columns empty, with a note."""
     try:
-        from .search.crossval import score_subsets  # lazy: the search package sits beside us
+        from .searches.crossval import score_subsets  # lazy: the search package sits beside us
     except ImportError:
         return None, [
             "PRESS, cross-validation and held-out columns are empty: "
-            "selectkit.search.crossval.score_subsets is not available in this installation."
+            "selectkit.searches.crossval.score_subsets is not available in this installation."
         ]
     return score_subsets(candidates, list(subsets), folds=folds, seed=seed, moments=moments), []
 
@@ -439,7 +439,7 @@ def _score_table(candidates, moments, n, pooled, *, convention, criterion, aim, 
     if not np.isfinite(primary).any():
         raise OptionError(
             f"criterion {name!r} has no value for any model"
-            + ("; it needs cross-validation scores (selectkit.search.crossval)" if name in SCORE_COLUMNS else "")
+            + ("; it needs cross-validation scores (selectkit.searches.crossval)" if name in SCORE_COLUMNS else "")
             + "; choose another criterion"
         )
     lower = _criteria.LOWER_IS_BETTER[name]
@@ -538,7 +538,7 @@ def rank(
         PRESS / CV / held-out scores per pooled model (columns ``press``,
         ``cv_mse``, ``cv_se``, ``holdout_mse``; rows in pooled order or keyed by
         a ``subset`` column).  ``None`` computes them with
-        :func:`selectkit.search.crossval.score_subsets` when that function
+        :func:`selectkit.searches.crossval.score_subsets` when that function
         exists (else the columns stay empty and ``notes`` says so); ``False``
         skips them.
     folds, seed : int
@@ -571,7 +571,7 @@ def rank(
     --------
     >>> import numpy as np
     >>> from selectkit.moments import compute_moments
-    >>> from selectkit.search import Found
+    >>> from selectkit.searches import Found
     >>> from tests.factories import make_candidates
     >>> rng = np.random.default_rng(0)
     >>> X = rng.normal(size=(50, 2)); y = 1 + 2 * X[:, 0] + rng.normal(size=50)

@@ -9,12 +9,12 @@ from sklearn.linear_model import LinearRegression
 from sklearn.model_selection import LeaveOneOut, cross_val_predict
 
 from selectkit.errors import InputError, OptionError, TooManyCandidatesError
-from selectkit.search import crossval as cv
-from selectkit.search.crossval import (
+from selectkit.searches import crossval as cv
+from selectkit.searches.crossval import (
     blocked_folds, cv_select, group_folds, holdout_split, make_folds, nested_cv_error, press, score_subsets,
     shuffled_folds,
 )
-from selectkit.search.stepwise import stepwise_search
+from selectkit.searches.stepwise import stepwise_search
 from tests.factories import make_candidates
 
 
@@ -173,7 +173,7 @@ def test_one_standard_error_rule():
 
 
 def test_cv_select_with_exhaustive_matches_enumeration(problem):
-    pytest.importorskip("selectkit.search.exhaustive")
+    pytest.importorskip("selectkit.searches.exhaustive")
     X, y, cand = problem
     found = cv_select(cand, method="exhaustive", folds=4, seed=1)
     fold_list = make_folds(4, len(y), 1)

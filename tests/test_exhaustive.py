@@ -11,8 +11,8 @@ from hypothesis import strategies as st
 from selectkit import criteria
 from selectkit.errors import OptionError, SearchError, TooManyCandidatesError
 from selectkit.parallel import WorkUnit
-from selectkit.search import exhaustive
-from selectkit.search.exhaustive import ExhaustiveOptions, exhaustive_search
+from selectkit.searches import exhaustive
+from selectkit.searches.exhaustive import ExhaustiveOptions, exhaustive_search
 from tests.factories import ar1_design, make_candidates
 
 

@@ -39,7 +39,7 @@ from selectkit.jobs import (
 from selectkit.jobs.runner import _ApiEngine, _run
 from selectkit.jobs.store import StoreLock
 from selectkit.parallel import WorkUnit
-from selectkit.search import Found
+from selectkit.searches import Found
 
 ROOT = Path(__file__).resolve().parents[1]
 PREDICTORS = [f"x{j}" for j in range(8)]

@@ -19,7 +19,7 @@ from selectkit.candidates import ResponseTransform
 from selectkit.errors import OptionError, SearchError
 from selectkit.moments import compute_moments
 from selectkit.rank import choose_criterion, fit_model, rank, refit, stability
-from selectkit.search import Found
+from selectkit.searches import Found
 from tests.factories import make_candidates
 
 
@@ -266,7 +266,7 @@ def test_scores_computed_by_the_ranker_sit_on_the_right_rows(simple):
     cands, moments = simple
     short = rank([brute_force(cands, max_terms=2)], cands, moments)
     try:
-        from selectkit.search.crossval import score_subsets  # noqa: F401
+        from selectkit.searches.crossval import score_subsets  # noqa: F401
     except ImportError:
         assert short.scored["press"].isna().all()
         assert any("score_subsets" in note for note in short.notes)

@@ -8,11 +8,11 @@ from sklearn.linear_model import lars_path
 from selectkit import criteria
 from selectkit.errors import OptionError
 from selectkit.moments import compute_moments
-from selectkit.search import screen
-from selectkit.search.screen import ScreenOptions, screen_candidates, screen_then_search
+from selectkit.searches import screen
+from selectkit.searches.screen import ScreenOptions, screen_candidates, screen_then_search
 from tests.factories import make_candidates
 
-pytest.importorskip("selectkit.search.exhaustive")
+pytest.importorskip("selectkit.searches.exhaustive")
 
 
 @pytest.fixture(scope="module")

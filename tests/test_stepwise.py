@@ -13,7 +13,7 @@ from selectkit.errors import OptionError, SearchError
 from selectkit.kernels import PIVOT_TOLERANCE
 from selectkit.kernels.steps import apply_move, evaluate_moves, scale_cross
 from selectkit.moments import compute_moments
-from selectkit.search.stepwise import StepwiseOptions, merge, plan, run_unit, stepwise_search
+from selectkit.searches.stepwise import StepwiseOptions, merge, plan, run_unit, stepwise_search
 from tests.factories import make_candidates
 
 
@@ -266,7 +266,7 @@ def test_plan_run_merge_contract_matches_convenience():
 def test_cycle_is_detected(monkeypatch):
     # With alpha_enter <= alpha_remove the F-test rarely cycles on real data, so the guard is tested with a
     # chooser that always toggles term x0: empty -> {x0} -> back to empty, which must be refused.
-    from selectkit.search import stepwise as module
+    from selectkit.searches import stepwise as module
 
     def toggle_x0(problem, moves, *args):
         return next(r for r, m in enumerate(moves) if m[1] == 0), (np.nan, np.nan)

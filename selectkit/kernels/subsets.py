@@ -30,7 +30,7 @@ factor_columns(A, cols, tol)
 add_column(A, L, cols, ncols, j, tol) / drop_column(L, cols, ncols, position)
     one-column updates of a factor in O(k²) (bordering; Givens rotations).
 branch_and_bound(...)
-    the exact best-subset inner loop used by :mod:`selectkit.search.exhaustive`.
+    the exact best-subset inner loop used by :mod:`selectkit.searches.exhaustive`.
 all_subsets_rss(A, cols, tol)
     the rss of every subset (full enumeration by Givens downdates; p ≤ 26).
 

@@ -13,7 +13,7 @@ import pytest
 import statsmodels.api as sm
 
 from selectkit.moments import compute_moments
-from selectkit.search.stepwise import stepwise_search
+from selectkit.searches.stepwise import stepwise_search
 from tests.factories import make_candidates
 
 # Typed from memory of Draper & Smith's table of the Hald data.
@@ -101,7 +101,7 @@ def test_backward_aic_from_full_matches_statsmodels_aic(hald):
 
 
 def test_exact_search_agrees_with_published_best_subsets(hald):
-    exhaustive = pytest.importorskip("selectkit.search.exhaustive")
+    exhaustive = pytest.importorskip("selectkit.searches.exhaustive")
     X, y, cand = hald
     found = exhaustive.exhaustive_search(cand, n_best_per_size=1)
     tss = float(((y - y.mean()) ** 2).sum())
@@ -109,7 +109,7 @@ def test_exact_search_agrees_with_published_best_subsets(hald):
     assert best[2][0] == (3,) and best[2][1] == pytest.approx(0.675, abs=1e-3)  # Draper & Smith: x4, 0.675
     assert best[3][0] == (0, 1) and best[3][1] == pytest.approx(0.979, abs=1e-3)  # Draper & Smith: x1, x2, 0.979
     # 13 folds of one row are leave-one-out: a fixed model's CV error equals PRESS/13 (Allen 1974)
-    from selectkit.search.crossval import cv_select, score_subsets
+    from selectkit.searches.crossval import cv_select, score_subsets
 
     table = score_subsets(cand, found.subsets, folds=13)
     np.testing.assert_allclose(table["cv_mse"], table["press"] / 13, rtol=1e-9)

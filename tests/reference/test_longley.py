@@ -16,7 +16,7 @@ from statsmodels.datasets import longley
 from selectkit.kernels import PIVOT_TOLERANCE
 from selectkit.kernels.subsets import scaled_cross, subset_rss
 from selectkit.moments import compute_moments, solve
-from selectkit.search.exhaustive import exhaustive_search
+from selectkit.searches.exhaustive import exhaustive_search
 from tests.factories import make_candidates
 
 #: Certified residual standard deviation (NIST StRD Longley), on 16 − 7 = 9 degrees of freedom.

@@ -13,7 +13,7 @@ from statsmodels.datasets import stackloss
 
 from selectkit import criteria
 from selectkit.moments import compute_moments
-from selectkit.search.stepwise import stepwise_search
+from selectkit.searches.stepwise import stepwise_search
 from tests.factories import make_candidates
 
 NAMES = ["AIRFLOW", "WATERTEMP", "ACIDCONC"]

@@ -16,12 +16,12 @@ from ..errors import OptionError
 __all__ = ["MODULES", "make_options", "stepwise_criterion"]
 
 MODULES = {
-    "exhaustive": "selectkit.search.exhaustive",
-    "forward": "selectkit.search.stepwise",
-    "backward": "selectkit.search.stepwise",
-    "both": "selectkit.search.stepwise",
-    "crossval": "selectkit.search.crossval",
-    "screen": "selectkit.search.screen",
+    "exhaustive": "selectkit.searches.exhaustive",
+    "forward": "selectkit.searches.stepwise",
+    "backward": "selectkit.searches.stepwise",
+    "both": "selectkit.searches.stepwise",
+    "crossval": "selectkit.searches.crossval",
+    "screen": "selectkit.searches.screen",
 }
 
 

@@ -431,7 +431,7 @@ def _check_size(candidates, options: CrossvalOptions) -> None:
     if options.method == "exhaustive" and len(candidates.terms) > options.exact_limit:
         raise TooManyCandidatesError(
             f"{len(candidates.terms)} candidate terms exceed the exact-search limit of {options.exact_limit} "
-            "for cross-validated exhaustive search; screen them first (selectkit.search.screen), raise the "
+            "for cross-validated exhaustive search; screen them first (selectkit.searches.screen), raise the "
             "limit, or use method='stepwise'"
         )
 
@@ -442,7 +442,7 @@ def _inner_search(candidates, moments, options: CrossvalOptions) -> Found:
         from . import exhaustive
 
         # The fold is already a work unit: run the exact search as one unit (split_depth=0), through the
-        # method contract of selectkit.search.exhaustive.
+        # method contract of selectkit.searches.exhaustive.
         inner = exhaustive.ExhaustiveOptions(n_best_per_size=1, max_size=options.max_size, forced=options.forced,
                                              forbidden=options.forbidden, hierarchy=options.hierarchy,
                                              time_budget=options.time_budget, split_depth=0)
