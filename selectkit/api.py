@@ -37,6 +37,7 @@ __all__ = [
     "SearchSetup",
     "Result",
     "prepare_search",
+    "unit_keys",
     "run_methods",
     "finish",
     "search",
@@ -246,6 +247,27 @@ def _make_run(name, user_options, *, seed, time_budget, exact_limit, folds, crit
 # ----------------------------------------------------------------------------------------------------
 
 
+def _planned(setup: SearchSetup):
+    """Each run with its planned work units and their store keys ``"<method>/<unit key>"``."""
+    planned = []
+    for run in setup.runs:
+        units = run.module.plan(setup.candidates, setup.moments, run.options)
+        keys = [f"{run.name}/{u.key}" for u in units]
+        if len(set(keys)) != len(keys):
+            raise SelectkitError(f"search {run.name!r} planned two work units with one key")
+        planned.append((run, units, keys))
+    return planned
+
+
+def unit_keys(setup: SearchSetup) -> list[str]:
+    """The keys of every work unit :func:`run_methods` will run, in order.
+
+    A run store records finished units under these keys and hands them back
+    to :func:`run_methods` as ``done`` on resume.
+    """
+    return [key for _, _, keys in _planned(setup) for key in keys]
+
+
 def _call_unit(args):
     module_name, unit = args
     return importlib.import_module(module_name).run_unit(unit)
@@ -287,11 +309,7 @@ def run_methods(
     check_n_jobs(n_jobs)
     done = dict(done or {})
     founds = []
-    for run in setup.runs:
-        units = run.module.plan(setup.candidates, setup.moments, run.options)
-        keys = [f"{run.name}/{u.key}" for u in units]
-        if len(set(keys)) != len(keys):
-            raise SelectkitError(f"search {run.name!r} planned two work units with one key")
+    for run, units, keys in _planned(setup):
         results: dict[int, Any] = {i: done[k] for i, k in enumerate(keys) if k in done}
         todo = [i for i in range(len(units)) if i not in results]
         # Run in batches so that should_stop is honoured between them while

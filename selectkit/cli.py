@@ -140,9 +140,20 @@ def build_parser() -> argparse.ArgumentParser:
     j.add_argument("--force", action="store_true", help="overwrite an existing job file")
     j = jobs.add_parser("run", parents=[common], help="run a job file (continues its run store if one exists)")
     j.add_argument("job_file")
-    j.add_argument("--fresh", action="store_true", help="refuse to continue an existing run store")
-    j = jobs.add_parser("resume", parents=[common], help="continue an interrupted job from its output folder or run store")
+    j.add_argument("--fresh", action="store_true",
+                   help="start afresh: forget the units an existing run store holds")
+    j.add_argument("--quiet", action="store_true", help="no progress bar or progress lines")
+    j = jobs.add_parser("resume", parents=[common],
+                        help="continue an interrupted job from its output folder or run store",
+                        description="Continue a job from its run store. Only where and how long it runs may "
+                                    "change; everything that decides what is found comes from the store.")
     j.add_argument("folder")
+    j.add_argument("--workers", type=int, default=None, metavar="N", help="worker processes for the rest of the job")
+    j.add_argument("--backend", default=None, help="joblib backend for the rest of the job (e.g. dask)")
+    j.add_argument("--scheduler", default=None, metavar="ADDRESS", help="Dask scheduler address")
+    j.add_argument("--time-budget", default=None, metavar="DURATION",
+                   help="new time budget from now: seconds or text such as 8h, 90m")
+    j.add_argument("--quiet", action="store_true", help="no progress bar or progress lines")
     j = jobs.add_parser("status", parents=[common], help="show the progress of a job (safe while it runs)")
     j.add_argument("folder")
     return parser
@@ -317,9 +328,11 @@ def _run_job(args) -> int:
         print(f"wrote {out}; fill in what it asks, then: selectkit job run {out}")
         return 0
     if args.job_command == "run":
-        outcome = jobs.run_job(args.job_file, resume=not args.fresh)
+        outcome = jobs.run_job(args.job_file, resume=not args.fresh, progress=False if args.quiet else None)
     elif args.job_command == "resume":
-        outcome = jobs.resume_job(args.folder)
+        given = {key: getattr(args, key) for key in ("workers", "backend", "scheduler", "time_budget")
+                 if getattr(args, key) is not None}
+        outcome = jobs.resume_job(args.folder, progress=False if args.quiet else None, **given)
     elif args.job_command == "status":
         print(jobs.store_status(args.folder).render())
         return 0
