@@ -17,9 +17,8 @@ import html
 import importlib
 import os
 import pickle
-import tempfile
-from dataclasses import dataclass, field
-from functools import cached_property
+from contextlib import nullcontext
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable, Mapping, Sequence
 
@@ -29,7 +28,7 @@ import pandas as pd
 from . import __version__
 from ._io import atomic_write_bytes
 from .errors import OptionError, SelectkitError
-from .parallel import WorkUnit, check_n_jobs, run_units
+from .parallel import check_n_jobs, dask_session, run_units
 
 __all__ = [
     "METHODS",
@@ -296,7 +295,7 @@ def run_methods(
     n_jobs, backend, scheduler
         See :func:`selectkit.parallel.run_units`.
     should_stop : callable, optional
-        Polled between batches of units; when it returns True no new unit
+        Polled as each unit finishes (before each, with one worker); when it returns True no new unit
         starts and each search is merged from the units that finished (and
         marked not proven exact).
 
@@ -309,35 +308,31 @@ def run_methods(
     check_n_jobs(n_jobs)
     done = dict(done or {})
     founds = []
-    for run, units, keys in _planned(setup):
-        results: dict[int, Any] = {i: done[k] for i, k in enumerate(keys) if k in done}
-        todo = [i for i in range(len(units)) if i not in results]
-        # Run in batches so that should_stop is honoured between them while
-        # keeping every worker busy inside a batch.
-        batch = max(1, check_n_jobs(n_jobs) if n_jobs > 0 else os.cpu_count() or 1)
-        stopped = False
-        for start in range(0, len(todo), batch):
-            if should_stop is not None and should_stop():
-                stopped = True
-                break
-            chunk = todo[start:start + batch]
+    session = dask_session(scheduler) if backend == "dask" else nullcontext()
+    with session:
+        for run, units, keys in _planned(setup):
+            results: dict[int, Any] = {i: done[k] for i, k in enumerate(keys) if k in done}
+            todo = [i for i in range(len(units)) if i not in results]
 
-            def _record(j, result, chunk=chunk):
-                index = chunk[j]
-                results[index] = result
+            def _record(j, result, todo=todo, results=results, keys=keys):
+                results[todo[j]] = result
                 if on_unit is not None:
-                    on_unit(keys[index], result)
+                    on_unit(keys[todo[j]], result)
 
-            run_units(_call_unit, [(run.module_name, units[i]) for i in chunk], n_jobs=n_jobs,
-                      backend=backend, scheduler=scheduler, on_result=_record)
-        ordered = [results.get(i) for i in range(len(units))]
-        merged = run.module.merge(setup.candidates, setup.moments, run.options, ordered)
-        merged = merged if isinstance(merged, (list, tuple)) else [merged]
-        if stopped or any(r is None for r in ordered):
-            from .searches._found import mark_incomplete
+            stopped = should_stop is not None and bool(todo) and should_stop()
+            if todo and not stopped:
+                finished = run_units(_call_unit, [(run.module_name, units[i]) for i in todo], n_jobs=n_jobs,
+                                     backend=backend, scheduler=scheduler, on_result=_record,
+                                     should_stop=should_stop)
+                stopped = len(finished) < len(todo)
+            ordered = [results.get(i) for i in range(len(units))]
+            merged = run.module.merge(setup.candidates, setup.moments, run.options, ordered)
+            merged = merged if isinstance(merged, (list, tuple)) else [merged]
+            if stopped or any(r is None for r in ordered):
+                from .searches._found import mark_incomplete
 
-            merged = [mark_incomplete(f, "stopped before every work unit finished") for f in merged]
-        founds.extend(merged)
+                merged = [mark_incomplete(f, "stopped before every work unit finished") for f in merged]
+            founds.extend(merged)
     return founds
 
 

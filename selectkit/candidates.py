@@ -350,7 +350,7 @@ def _dummies_for_new_data(series, term):
         raise InputError(
             f"column {term.family!r} of the new data holds level(s) "
             + ", ".join(repr(v) for v in unseen)
-            + f" not seen when the candidates were built (known: "
+            + " not seen when the candidates were built (known: "
             + ", ".join(repr(v) for v in [term.reference, *term.levels])
             + "); drop those rows or rebuild the candidates with them",
             column=term.family,

@@ -16,14 +16,15 @@ the current ``distributed.Client``).
 
 from __future__ import annotations
 
+from contextlib import contextmanager
 from dataclasses import dataclass
-from typing import Any, Callable, Iterable, Sequence
+from typing import Any, Callable, Sequence
 
 import numpy as np
 
 from .errors import OptionError
 
-__all__ = ["BACKENDS", "WorkUnit", "run_units", "spawn_seeds", "check_n_jobs"]
+__all__ = ["BACKENDS", "WorkUnit", "run_units", "dask_session", "spawn_seeds", "check_n_jobs"]
 
 BACKENDS = ("loky", "threading", "multiprocessing", "sequential", "dask")
 
@@ -68,6 +69,7 @@ def run_units(
     backend: str = "loky",
     scheduler: str | None = None,
     on_result: Callable[[int, Any], None] | None = None,
+    should_stop: Callable[[], bool] | None = None,
 ) -> list:
     """Run ``function(unit)`` for every unit and return results in unit order.
 
@@ -82,22 +84,30 @@ def run_units(
     backend : str, default "loky"
         A name from :data:`BACKENDS`.
     scheduler : str, optional
-        Address of a Dask scheduler (``"tcp://host:8786"``) when ``backend="dask"``.
+        Address of a Dask scheduler (``"tcp://host:8786"``) when ``backend="dask"``;
+        a client already connected to it in this process is reused.
     on_result : callable, optional
         Called as ``on_result(index, result)`` in this process as each result
         arrives, in unit order (used for checkpoints and progress).
+    should_stop : callable, optional
+        Polled in this process before each unit starts (one worker) or as each
+        result arrives (several); when it returns True no further result is
+        collected and the units not yet started are cancelled.
 
     Returns
     -------
     list
-        ``[function(u) for u in units]``, in the same order whatever the backend.
+        ``[function(u) for u in units]`` in unit order — only the leading part
+        that finished when ``should_stop`` ended the run early.
     """
     n_jobs = check_n_jobs(n_jobs)
     _check_backend(backend)
     units = list(units)
-    results = []
-    if backend == "sequential" or (n_jobs == 1 and backend != "dask") or len(units) <= 1 and backend != "dask":
+    results: list = []
+    if backend == "sequential" or (n_jobs == 1 and backend != "dask") or (len(units) <= 1 and backend != "dask"):
         for i, unit in enumerate(units):
+            if should_stop is not None and should_stop():
+                break
             result = function(unit)
             if on_result is not None:
                 on_result(i, result)
@@ -106,35 +116,67 @@ def run_units(
 
     import joblib
 
-    def _consume(iterator: Iterable):
-        for i, result in enumerate(iterator):
-            if on_result is not None:
-                on_result(i, result)
-            results.append(result)
+    def _consume(iterator):
+        try:
+            for i, result in enumerate(iterator):
+                if on_result is not None:
+                    on_result(i, result)
+                results.append(result)
+                if should_stop is not None and should_stop():
+                    break
+        finally:
+            close = getattr(iterator, "close", None)
+            if close is not None:
+                close()  # cancels the units not yet started
 
     if backend == "dask":
-        try:
-            import distributed  # noqa: F401
-        except ImportError as err:  # pragma: no cover - depends on the environment
-            raise OptionError(
-                "backend 'dask' needs the dask extra; install it with: pip install 'selectkit[dask]'"
-            ) from err
-        client = None
-        if scheduler is not None:
-            from distributed import Client
-
-            client = Client(scheduler)
-        try:
+        with _dask_client(scheduler):
             with joblib.parallel_config(backend="dask"):
                 _consume(joblib.Parallel(return_as="generator")(joblib.delayed(function)(u) for u in units))
-        finally:
-            if client is not None:
-                client.close()
         return results
 
     parallel = joblib.Parallel(n_jobs=n_jobs, backend=backend, return_as="generator")
     _consume(parallel(joblib.delayed(function)(u) for u in units))
     return results
+
+
+@contextmanager
+def _dask_client(scheduler: str | None):
+    """A ``distributed.Client`` for ``scheduler``: the one already open in this process when
+    it points there, else a new one closed on exit; with no address, the current client."""
+    try:
+        import distributed
+    except ImportError as err:  # pragma: no cover - depends on the environment
+        raise OptionError(
+            "backend 'dask' needs the dask extra; install it with: pip install 'selectkit[dask]'"
+        ) from err
+    try:
+        current = distributed.default_client()
+    except ValueError:
+        current = None
+    if scheduler is None or (current is not None and current.scheduler is not None
+                             and current.scheduler.address == scheduler):
+        if current is None and scheduler is None:
+            raise OptionError("backend 'dask' needs a scheduler address (e.g. tcp://host:8786) or an open "
+                              "distributed.Client in this process")
+        yield current
+        return
+    client = distributed.Client(scheduler)
+    try:
+        yield client
+    finally:
+        client.close()
+
+
+@contextmanager
+def dask_session(scheduler: str | None):
+    """Keep one Dask client open for several :func:`run_units` calls (a whole search).
+
+    Outside a session each ``run_units(..., backend="dask")`` connects and
+    disconnects; inside, they reuse this connection.
+    """
+    with _dask_client(scheduler) as client:
+        yield client
 
 
 def spawn_seeds(seed, count: int) -> list[np.random.SeedSequence]:

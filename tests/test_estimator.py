@@ -1,5 +1,4 @@
 import numpy as np
-import pandas as pd
 from sklearn.pipeline import Pipeline
 from sklearn.linear_model import LinearRegression
 

@@ -458,7 +458,7 @@ def test_run_completes_and_records_everything(job_folder):
 def test_time_budget_stops_marks_incomplete_and_resume_finishes_identically(job_folder, tmp_path_factory):
     straight_folder = tmp_path_factory.mktemp("straight")
     write_table(straight_folder / "bays.csv")
-    straight = run_fake(load_job(write_job(straight_folder, exhaustive="chunks = 12")))
+    run_fake(load_job(write_job(straight_folder, exhaustive="chunks = 12")))
 
     spec = load_job(write_job(job_folder, exhaustive="chunks = 12\ndelay = 0.1", extra_run='time_budget = "0.35s"\n'))
     first = run_fake(spec)

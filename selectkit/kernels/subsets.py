@@ -446,7 +446,6 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
         True when the stack is empty (the search is complete).
     """
     n_terms = t_width.shape[0]
-    yi = A.shape[0] - 1
     total_cols = 0
     for t in range(n_terms):
         total_cols += t_width[t]
