@@ -36,11 +36,16 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
+from .subsets import scaled_cross
+
 __all__ = ["scale_cross", "sweep_in_place", "evaluate_moves", "apply_move"]
 
 
 def scale_cross(cross):
-    """Correlation-scale a centred cross-product matrix (response last).
+    """Correlation-scale a centred cross-product matrix (response last) for sweeping.
+
+    The scaling itself is :func:`selectkit.kernels.subsets.scaled_cross`'s (one
+    home for it); this returns the reciprocal scales the sweep code works with.
 
     Parameters
     ----------
@@ -55,15 +60,12 @@ def scale_cross(cross):
         The diagonal of ``D``; the response's residual sum of squares is
         ``scaled_rss / scale[-1]**2``.
     """
-    cross = np.asarray(cross, dtype=np.float64)
-    diag = np.diag(cross).copy()
-    scale = np.zeros_like(diag)
-    positive = diag > 0
-    scale[positive] = 1.0 / np.sqrt(diag[positive])
-    if not positive[-1]:
+    scaled, sizes = scaled_cross(cross)
+    scale = np.zeros_like(sizes)
+    scale[sizes > 0] = 1.0 / sizes[sizes > 0]
+    if not sizes[-1] > 0:
         scale[-1] = 1.0  # constant response: rss is 0 for every model
-    scaled = cross * scale[:, None] * scale[None, :]
-    return np.ascontiguousarray(scaled), scale
+    return scaled, scale
 
 
 @njit(cache=True)

@@ -354,8 +354,9 @@ def _sub_problem(candidates, moments, kept):
     return sub, sub_moments
 
 
-def plan(candidates, moments, options: ScreenOptions) -> list[WorkUnit]:
-    """Screen (here, deterministic), then the exact search's units on the survivors."""
+def _exact_stage(candidates, moments, options: ScreenOptions):
+    """The screening (deterministic, so plan and merge agree) and the exact search it leaves:
+    ``(screening, sub_candidates, sub_moments, exact_options)``."""
     from . import exhaustive
 
     if moments is None:
@@ -367,6 +368,14 @@ def plan(candidates, moments, options: ScreenOptions) -> list[WorkUnit]:
         forced=tuple(n for n in options.forced if n in {t.name for t in sub.terms}),
         hierarchy=options.hierarchy, time_budget=options.time_budget,
     )
+    return screening, sub, sub_moments, exact_options
+
+
+def plan(candidates, moments, options: ScreenOptions) -> list[WorkUnit]:
+    """Screen (here, deterministic), then the exact search's units on the survivors."""
+    from . import exhaustive
+
+    _, sub, sub_moments, exact_options = _exact_stage(candidates, moments, options)
     units = exhaustive.plan(sub, sub_moments, exact_options)
     return [WorkUnit(f"screen/exact/{u.key}", ("exact", u)) for u in units]
 
@@ -407,13 +416,7 @@ def merge(candidates, moments, options: ScreenOptions, results) -> list[Found]:
 
     if moments is None:
         moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
-    screening = _screen_for(candidates, moments, options)
-    sub, sub_moments = _sub_problem(candidates, moments, screening.kept)
-    exact_options = exhaustive.ExhaustiveOptions(
-        n_best_per_size=options.n_best_per_size, max_size=options.max_size,
-        forced=tuple(n for n in options.forced if n in {t.name for t in sub.terms}),
-        hierarchy=options.hierarchy, time_budget=options.time_budget,
-    )
+    screening, sub, sub_moments, exact_options = _exact_stage(candidates, moments, options)
     local = exhaustive.merge(sub, sub_moments, exact_options, results)
     kept = screening.kept
     screened = screening.method != "none"
