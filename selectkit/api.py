@@ -575,35 +575,23 @@ class Result:
         count = len(self._ranked.subsets) if count is None else min(count, len(self._ranked.subsets))
         return [self.checks(i) for i in range(count)]
 
+    def _report_contents(self) -> dict:
+        return dict(settings=self.settings, candidates=self.candidates, founds=self.founds,
+                    shortlist=self._ranked, diagnoses=self.diagnoses(), stability=self.stability)
+
     def write(self, folder) -> dict:
         """Write the shortlist (CSV, JSON) and the HTML report into ``folder``; return their paths."""
         from . import report
 
         folder = Path(folder)
         folder.mkdir(parents=True, exist_ok=True)
-        return report.write_outputs(
-            folder,
-            settings=self.settings,
-            candidates=self.candidates,
-            founds=self.founds,
-            shortlist=self._ranked,
-            diagnoses=self.diagnoses(),
-            stability=self.stability,
-        )
+        return report.write_outputs(folder, **self._report_contents())
 
     def to_html(self, path) -> Path:
         """Write the self-contained HTML report to ``path``."""
         from .report import html as report_html
 
-        return report_html.write_html(
-            Path(path),
-            settings=self.settings,
-            candidates=self.candidates,
-            founds=self.founds,
-            shortlist=self._ranked,
-            diagnoses=self.diagnoses(),
-            stability=self.stability,
-        )
+        return report_html.write_html(Path(path), **self._report_contents())
 
     def summary(self) -> str:
         """A short plain-text summary."""
