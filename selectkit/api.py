@@ -127,6 +127,7 @@ def prepare_search(
     folds: int = 5,
     time_ordered: bool = False,
     stability: int = 0,
+    honest_folds: int = 0,
     seed: int = 0,
     time_budget: float | None = None,
 ) -> SearchSetup:
@@ -154,6 +155,8 @@ def prepare_search(
     _check_choice(convention, criteria.CONVENTIONS, "criterion convention")
     if criterion is not None:
         criterion = criteria.check_criterion(criterion)
+    if int(honest_folds) == 1 or int(honest_folds) < 0:
+        raise OptionError(f"honest_folds must be 0 (skip) or at least 2 outer folds (got {honest_folds})")
     if int(shortlist_size) < 1:
         raise OptionError(f"shortlist_size must be at least 1 (got {shortlist_size})")
     if time_budget is not None and not float(time_budget) > 0:
@@ -220,6 +223,7 @@ def prepare_search(
         "folds": int(folds),
         "time_ordered": bool(time_ordered),
         "stability": int(stability),
+        "honest_folds": int(honest_folds),
         "seed": int(seed),
         "time_budget": time_budget,
         "n_rows": dataset.n,
@@ -377,7 +381,10 @@ def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: st
             backend=backend,
             criterion=shortlist.criterion,
         )
-    return Result(setup=setup, founds=tuple(founds), ranked=shortlist, stability=stability)
+    result = Result(setup=setup, founds=tuple(founds), ranked=shortlist, stability=stability)
+    if s.get("honest_folds", 0) >= 2:
+        result.honest_error(folds=s["honest_folds"], n_jobs=n_jobs, backend=backend, scheduler=scheduler)
+    return result
 
 
 @dataclass(frozen=True)
@@ -444,7 +451,9 @@ def search(
         (``forms``, ``fractional_polynomials``, ``shifts``, ``interactions``,
         ``response_transform``), ranking (``criterion``, ``aim`` — "explain"
         ranks by BIC, "predict" by AICc —, ``convention``, ``shortlist_size``,
-        ``max_delta``, ``folds``, ``stability``), ``method_options`` (a dict
+        ``max_delta``, ``folds``, ``stability``, ``honest_folds`` — outer
+        folds for the honest error of the whole procedure, 0 to skip),
+        ``method_options`` (a dict
         per method name), ``time_ordered`` and ``time_budget`` (seconds).
 
     Returns
@@ -490,6 +499,7 @@ class Result:
         self.founds = tuple(founds)
         self._ranked = ranked
         self.stability = stability
+        self.honest = None
         self._checks: dict[int, Any] = {}
         self._models: dict[int, Any] = {}
 
@@ -551,6 +561,37 @@ class Result:
         params = np.asarray(self.model(i).params)
         return params[0] + X @ params[1:]
 
+    def honest_error(self, *, folds: int = 5, n_jobs: int = 1, backend: str = "loky", scheduler: str | None = None):
+        """Honest prediction error of the whole procedure (searches + ranking), by outer cross-validation.
+
+        Every search of this result and the choice of the best model by the
+        ranking criterion are repeated on the training rows of each outer fold;
+        the chosen model is scored on the fold's rows, which took no part in the
+        choice (Varma & Simon 2006).  Compare ``error`` with ``naive_error``,
+        the CV error of the model chosen on all rows: the difference is the
+        optimism of selection.  The result is kept as ``self.honest`` and shown
+        in the report.
+
+        Returns
+        -------
+        selectkit.searches.crossval.NestedResult
+        """
+        from .searches.crossval import procedure_cv_error
+
+        criterion = self._ranked.criterion
+        if criterion in ("press", "cv_mse", "holdout_mse"):
+            criterion = "aicc"  # the repeated choice needs an rss-based criterion
+        table = self._ranked.table
+        naive = float(table["cv_mse"].iloc[0]) if "cv_mse" in table and len(table) else float("nan")
+        self.honest = procedure_cv_error(
+            self.candidates, _StabilityRunner(tuple(self._setup.runs)), criterion=criterion,
+            convention=self._setup.settings["convention"], folds=folds, seed=self._setup.settings["seed"],
+            moments=self._setup.moments, naive_error=naive,
+            procedure=" + ".join(r.name for r in self._setup.runs) + " search(es)",
+            n_jobs=n_jobs, backend=backend, scheduler=scheduler,
+        )
+        return self.honest
+
     # -- plots --------------------------------------------------------------------------------------
     def plot_criterion(self):
         """Figure: best criterion value against model size."""
@@ -577,7 +618,8 @@ class Result:
 
     def _report_contents(self) -> dict:
         return dict(settings=self.settings, candidates=self.candidates, founds=self.founds,
-                    shortlist=self._ranked, diagnoses=self.diagnoses(), stability=self.stability)
+                    shortlist=self._ranked, diagnoses=self.diagnoses(), stability=self.stability,
+                    honest=self.honest)
 
     def write(self, folder) -> dict:
         """Write the shortlist (CSV, JSON) and the HTML report into ``folder``; return their paths."""
@@ -598,7 +640,7 @@ class Result:
         from .report import text
 
         return text.summary(settings=self.settings, founds=self.founds, shortlist=self._ranked,
-                            diagnoses=self.diagnoses(1))
+                            diagnoses=self.diagnoses(1), honest=self.honest)
 
     def __repr__(self) -> str:
         return (f"<selectkit.Result: {len(self._ranked.subsets)} shortlisted models of "
@@ -624,6 +666,7 @@ class Result:
             "founds": self.founds,
             "ranked": self._ranked,
             "stability": self.stability,
+            "honest": self.honest,
         }
         atomic_write_bytes(path, pickle.dumps(payload, protocol=pickle.HIGHEST_PROTOCOL))
         return path
@@ -646,5 +689,7 @@ def load(path) -> Result:
     if payload.get("version") != _SAVE_VERSION:
         raise SelectkitError(f"{path} was saved in format version {payload.get('version')}; "
                              f"this selectkit reads version {_SAVE_VERSION}")
-    return Result(setup=payload["setup"], founds=payload["founds"], ranked=payload["ranked"],
-                  stability=payload["stability"])
+    result = Result(setup=payload["setup"], founds=payload["founds"], ranked=payload["ranked"],
+                    stability=payload["stability"])
+    result.honest = payload.get("honest")
+    return result

@@ -81,6 +81,9 @@ def _add_search_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--folds", type=int, default=5, metavar="K", help="folds for cross-validated error (default 5)")
     p.add_argument("--resamples", type=int, default=0, metavar="B",
                    help="bootstrap resamples for the stability of the selection (default 0: skip)")
+    p.add_argument("--honest-error", type=int, default=0, metavar="K",
+                   help="also estimate the honest error of the whole procedure by repeating it inside K outer "
+                        "folds (costs K more searches; default 0: skip)")
     p.add_argument("--rows-in-time-order", action="store_true",
                    help="row order means time or sequence (enables the Durbin-Watson check, blocked folds)")
     p.add_argument("--workers", type=int, default=1, metavar="N", help="worker processes (-1: all cores)")
@@ -217,6 +220,7 @@ def _search_options(args) -> dict:
         max_delta=args.within_delta,
         folds=args.folds,
         stability=args.resamples,
+        honest_folds=args.honest_error,
         time_ordered=args.rows_in_time_order,
         seed=args.seed,
         time_budget=args.time_budget,
@@ -291,7 +295,7 @@ def _run_demo(args) -> int:
     print(f"demo: invented greenhouse data, {len(data)} bay-seasons, {data.shape[1] - 1} measurements ({where})")
     print(f"demo: the data were generated from: {RESPONSE} ~ {' + '.join(TRUE_TERMS)}")
     started = time.perf_counter()
-    setup = api.prepare_search(data, response=RESPONSE, seed=args.seed)
+    setup = api.prepare_search(data, response=RESPONSE, seed=args.seed, honest_folds=5)
     print(f"demo: {len(setup.candidates.terms)} candidate terms; running {', '.join(r.name for r in setup.runs)}")
     founds = api.run_methods(setup, n_jobs=args.workers)
     result = api.finish(setup, founds, n_jobs=args.workers)

@@ -19,7 +19,8 @@ OUTPUT_NAMES = {
 }
 
 
-def write_outputs(folder, *, settings, candidates, founds, shortlist, diagnoses, stability=None) -> dict:
+def write_outputs(folder, *, settings, candidates, founds, shortlist, diagnoses, stability=None,
+                  honest=None) -> dict:
     """Write ``shortlist.csv``, ``shortlist.json`` and ``report.html`` into ``folder``.
 
     Parameters
@@ -34,6 +35,8 @@ def write_outputs(folder, *, settings, candidates, founds, shortlist, diagnoses,
     diagnoses : sequence of Diagnosis
         One per shortlisted model, in shortlist order (may cover only the first ones).
     stability : Stability, optional
+    honest : NestedResult, optional
+        Honest error of the whole procedure (outer cross-validation).
 
     Returns
     -------
@@ -52,7 +55,7 @@ def write_outputs(folder, *, settings, candidates, founds, shortlist, diagnoses,
     founds = list(founds or ())
     diagnoses = list(diagnoses or ())
     document = tables.shortlist_document(shortlist=shortlist, candidates=candidates, settings=settings,
-                                         founds=founds, diagnoses=diagnoses, stability=stability)
+                                         founds=founds, diagnoses=diagnoses, stability=stability, honest=honest)
     tables.check_document(document)
     paths = {
         "shortlist_csv": tables.write_csv(folder / OUTPUT_NAMES["shortlist_csv"], shortlist),
@@ -60,6 +63,6 @@ def write_outputs(folder, *, settings, candidates, founds, shortlist, diagnoses,
     }
     paths["report_html"] = html.write_html(
         folder / OUTPUT_NAMES["report_html"], shortlist=shortlist, settings=settings, candidates=candidates,
-        founds=founds, diagnoses=diagnoses, stability=stability,
+        founds=founds, diagnoses=diagnoses, stability=stability, honest=honest,
     )
     return paths

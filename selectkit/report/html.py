@@ -258,7 +258,19 @@ def _cautions_section() -> str:
 # --------------------------------------------------------------------------- page
 
 
-def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnoses=(), stability=None) -> str:
+def _honest_section(honest) -> str:
+    """The honest error of the whole procedure next to the optimistic one."""
+    rows = [("honest error (mean squared prediction error of the procedure)", _fmt(honest.error)),
+            ("its standard error", _fmt(honest.standard_error)),
+            ("CV error of the model chosen on all rows (optimistic)", _fmt(honest.naive_error)),
+            ("optimism of selection (honest − optimistic)", _fmt(honest.optimism))]
+    table = "<table>" + "".join(f"<tr><th>{_e(a)}</th><td>{_e(b)}</td></tr>" for a, b in rows) + "</table>"
+    return (f"<p>What was repeated inside each outer fold: {_e(honest.procedure)}.</p>" + table
+            + f"<div class=\"caution\">{_e(honest.caution)}</div>" + _table(honest.folds))
+
+
+def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnoses=(), stability=None,
+                honest=None) -> str:
     """The report as one HTML string (no script, no external resource).
 
     Parameters
@@ -270,6 +282,8 @@ def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnos
     diagnoses : sequence of Diagnosis
         Aligned with the shortlisted models.
     stability : Stability, optional
+    honest : NestedResult, optional
+        The honest error of the whole procedure (outer cross-validation).
 
     Returns
     -------
@@ -299,11 +313,16 @@ def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnos
         body.append(_model_section(i + 1, fit, diagnoses[i] if i < len(diagnoses) else None, row))
     if stability is not None:
         body.append(_section("stability", "Does the choice survive resampling?", _stability_section(stability)))
+    if honest is not None:
+        body.append(_section("honest-error", "How well the whole procedure predicts new rows",
+                             _honest_section(honest)))
     body.append(_section("cautions", "Before you rely on these models", _cautions_section()))
     nav_items = [(a, t) for a, t, _ in sections] + [(f"model-{i + 1}", f"Model {i + 1}")
                                                     for i in range(len(shortlist.fits))]
     if stability is not None:
         nav_items.append(("stability", "Resampling"))
+    if honest is not None:
+        nav_items.append(("honest-error", "Honest error"))
     nav_items.append(("cautions", "Cautions"))
     nav = "<nav><ol>" + "".join(f'<li><a href="#{a}">{_e(t)}</a></li>' for a, t in nav_items) + "</ol></nav>"
     best = shortlist.fits[0].equation if shortlist.fits else ""
@@ -322,8 +341,8 @@ def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnos
 
 
 def write_html(path, *, shortlist, settings=None, candidates=None, founds=(), diagnoses=(),
-               stability=None) -> Path:
+               stability=None, honest=None) -> Path:
     """Render the report and write it atomically to ``path``; return the path."""
     text = render_html(shortlist=shortlist, settings=settings, candidates=candidates, founds=founds,
-                       diagnoses=diagnoses, stability=stability)
+                       diagnoses=diagnoses, stability=stability, honest=honest)
     return atomic_write_text(Path(path), text)

@@ -162,7 +162,7 @@ def _stability_entry(stability) -> dict | None:
 
 
 def shortlist_document(*, shortlist, candidates=None, settings=None, founds=(), diagnoses=(),
-                       stability=None) -> dict:
+                       stability=None, honest=None) -> dict:
     """The shortlist as a JSON-ready dict following ``schema.json`` (version 1.0).
 
     Parameters
@@ -222,6 +222,11 @@ def shortlist_document(*, shortlist, candidates=None, settings=None, founds=(), 
             for r in shortlist.variable_support.to_dict(orient="records")
         ],
         "stability": _stability_entry(stability),
+        "honest_error": None if honest is None else {
+            "error": _clean(honest.error), "standard_error": _clean(honest.standard_error),
+            "naive_error": _clean(honest.naive_error), "optimism": _clean(honest.optimism),
+            "procedure": str(honest.procedure), "outer_folds": int(len(honest.folds)),
+        },
         "notes": list(shortlist.notes),
         "cautions": [{"title": title, "text": text} for title, text in CAUTIONS],
     }

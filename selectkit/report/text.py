@@ -50,7 +50,7 @@ def _mark(passed) -> str:
     return {True: "ok  ", False: "FAIL", None: "n/a "}[passed]
 
 
-def summary(*, shortlist, settings=None, founds=(), diagnoses=(), paths=None, top=5) -> str:
+def summary(*, shortlist, settings=None, founds=(), diagnoses=(), paths=None, top=5, honest=None) -> str:
     """A few lines for the terminal: searches, criterion, top models, checks of the best, cautions, files.
 
     Parameters
@@ -65,6 +65,8 @@ def summary(*, shortlist, settings=None, founds=(), diagnoses=(), paths=None, to
         Files written, label → path.
     top : int, default 5
         Models listed.
+    honest : NestedResult, optional
+        The honest error of the whole procedure, when it was estimated.
 
     Returns
     -------
@@ -100,6 +102,10 @@ def summary(*, shortlist, settings=None, founds=(), diagnoses=(), paths=None, to
         lines.append("Checks of the best model:")
         for check in best.checks:
             lines.append(f"  [{_mark(check.passed)}] {check.aspect}: {check.verdict}")
+    if honest is not None:
+        lines.append(f"Honest error of the whole procedure (outer CV): {_number(honest.error)} "
+                     f"± {_number(honest.standard_error)}; the CV error of the chosen model, "
+                     f"{_number(honest.naive_error)}, is optimistic by {_number(honest.optimism)}.")
     for note in shortlist.notes:
         lines.append("Note: " + note)
     lines.append("")

@@ -60,7 +60,7 @@ from ._found import Found
 __all__ = [
     "FoldScheme", "Fold", "shuffled_folds", "blocked_folds", "holdout_split", "group_folds", "make_folds",
     "press", "score_subsets", "CrossvalOptions", "plan", "run_unit", "merge", "cv_select",
-    "NestedResult", "nested_cv_error", "INNER_METHODS",
+    "NestedResult", "nested_cv_error", "procedure_cv_error", "INNER_METHODS",
 ]
 
 FOLD_KINDS = ("shuffled", "blocked", "holdout", "groups")
@@ -725,3 +725,87 @@ def nested_cv_error(candidates, *, method: str = "exhaustive", outer_folds=5, in
                  f"over {options.folds.describe()} inside each of {_as_scheme(outer_folds).describe()} outer folds")
     return NestedResult(error=error, standard_error=se, naive_error=naive_error, optimism=error - naive_error,
                         folds=table, procedure=procedure)
+
+
+def _procedure_unit(payload):
+    """One outer fold of :func:`procedure_cv_error` (module level so that it pickles)."""
+    from dataclasses import replace
+
+    from .. import criteria as _criteria
+
+    candidates, moments, runner, test_rows, criterion, convention, repeat, index = payload
+    n = candidates.y.shape[0]
+    train_rows = np.setdiff1d(np.arange(n), test_rows)
+    test = _rows_moments(candidates, test_rows)
+    train = moments - test
+    sub = replace(candidates, matrix=candidates.matrix[train_rows], y=candidates.y[train_rows],
+                  weights=None if candidates.weights is None else candidates.weights[train_rows])
+    found = runner(sub)
+    if len(found) == 0:
+        raise SearchError(f"outer fold {index + 1}: the searches kept no model on its {train_rows.size} training rows")
+    # Every model of one Found shares the response transform: its log-Jacobian cannot change which is best.
+    values = _criteria.compute(found.rss, found.n, found.k, tss=train.tss, convention=convention)[criterion]
+    sign = 1.0 if _criteria.LOWER_IS_BETTER[criterion] else -1.0
+    names = [tuple(sorted(candidates.terms[j].name for j in s)) for s in found.subsets]
+    best = min(range(len(found.subsets)),
+               key=lambda i: (sign * values[i] if np.isfinite(values[i]) else np.inf, len(found.subsets[i]), names[i]))
+    chosen = found.subsets[best]
+    mse = heldout_sse(train, test, _columns(candidates, chosen)) / test.weight_sum
+    return {"repeat": repeat, "fold": index, "n_test": int(test_rows.shape[0]), "k": int(found.k[best]),
+            "terms": " + ".join(candidates.terms[j].name for j in chosen) or "(intercept only)",
+            "test_mse": float(mse)}
+
+
+def procedure_cv_error(candidates, runner, *, criterion="bic", convention="selectkit", folds=5, seed=0,
+                       moments=None, naive_error=float("nan"), procedure="the searches and ranking",
+                       n_jobs=1, backend="loky", scheduler=None) -> NestedResult:
+    """Honest prediction error of a whole search-and-rank procedure by outer cross-validation.
+
+    For each outer fold the *entire* procedure — ``runner`` (every search,
+    pooled) and the choice of the best model by ``criterion`` — is repeated on
+    the training rows alone, and the chosen model's squared prediction error is
+    measured on the fold's rows, which took no part in the choice (Varma &
+    Simon 2006; Cawley & Talbot 2010).  The mean is an estimate of the error of
+    the procedure, free of the selection bias that makes the error of the
+    winning model, measured on the data that chose it, optimistic.
+
+    Parameters
+    ----------
+    candidates : CandidateSet
+    runner : callable
+        ``runner(candidate_set) -> Found`` (picklable), the pooled searches.
+    criterion : str
+        An rss-based criterion of :mod:`selectkit.criteria` (aic, aicc, bic, cp, adj_r2).
+    folds : int or FoldScheme, default 5
+        The outer folds.
+    naive_error : float, optional
+        The optimistic figure to compare with (e.g. the K-fold CV error of the
+        model chosen on all rows).
+    procedure : str
+        Words for what was repeated, for the report.
+
+    Returns
+    -------
+    NestedResult
+        ``error`` (mean held-out MSE over outer folds), its standard error,
+        ``naive_error``, ``optimism`` = error − naive_error, and the per-fold table.
+    """
+    from .. import criteria as _criteria
+
+    criterion = _criteria.check_criterion(criterion)
+    if criterion in ("press", "cv_mse", "holdout_mse"):
+        raise OptionError(f"the honest error repeats the choice by an rss-based criterion; {criterion!r} is not one "
+                          "(use aic, aicc, bic, cp or adj_r2)")
+    if moments is None:
+        moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+    outer = make_folds(folds, int(candidates.y.shape[0]), seed)
+    payloads = [(candidates, moments, runner, fold.test_rows, criterion, convention, fold.repeat, fold.index)
+                for fold in outer]
+    rows = run_units(_procedure_unit, payloads, n_jobs=n_jobs, backend=backend, scheduler=scheduler)
+    table = pd.DataFrame.from_records(rows, columns=["repeat", "fold", "n_test", "k", "terms", "test_mse"])
+    errors = table["test_mse"].to_numpy()
+    error = float(errors.mean())
+    return NestedResult(error=error, standard_error=_se_by_repeat(errors, table["repeat"].to_numpy()),
+                        naive_error=float(naive_error), optimism=error - float(naive_error), folds=table,
+                        procedure=(f"{procedure}, best model by {criterion.upper()}, repeated inside each of "
+                                   f"{_as_scheme(folds).describe()} outer folds"))
