@@ -592,6 +592,26 @@ class Result:
         )
         return self.honest
 
+    def response_boxcox(self, i: int = 0):
+        """Box-Cox profile of the response given the terms of shortlisted model ``i`` (Box & Cox 1964).
+
+        A check of the response's scale, not a decision: when the 95 % interval
+        excludes the λ the search used (1: no transform), consider searching
+        again with ``response_transform`` set to the suggested λ — models on
+        different response scales are compared only with the log-Jacobian
+        added, which selectkit does.
+
+        Returns
+        -------
+        selectkit.response.ResponseBoxCox
+        """
+        from .response import boxcox_response
+
+        y = self.candidates.dataset.y if self.candidates.dataset is not None else self.candidates.y
+        cols = [c for j in self._subset(i) for c in self.candidates.terms[j].columns]
+        return boxcox_response(np.asarray(y, dtype=float), self.candidates.matrix[:, cols],
+                               weights=self.candidates.weights)
+
     # -- plots --------------------------------------------------------------------------------------
     def plot_criterion(self):
         """Figure: best criterion value against model size."""

@@ -104,3 +104,14 @@ def test_unknown_method_setting_suggests_nearest():
 def test_missing_response_is_an_input_error():
     with pytest.raises(InputError, match="yield"):
         selectkit.search(_small_frame(), response="yield")
+
+
+def test_response_boxcox_of_a_shortlisted_model_finds_a_log_scale():
+    # simulation (seeded): y = exp(linear predictor + noise), so λ = 0 is right and λ = 1 is not (Box & Cox 1964)
+    rng = np.random.default_rng(21)
+    frame = pd.DataFrame({"light": rng.uniform(8, 30, 150), "probe": rng.normal(0, 1, 150)})
+    frame["yield_kg_m2"] = np.exp(1 + 0.08 * frame["light"] + rng.normal(0, 0.15, 150))
+    res = selectkit.search(frame, response="yield_kg_m2", methods=("exhaustive",), forms=("identity",))
+    fit = res.response_boxcox(0)
+    low, high = fit.interval
+    assert low <= 0 <= high and high < 1
