@@ -130,6 +130,12 @@ def _candidate_section(candidates) -> str:
              f"refused, with the reason. A model holds at most one form of each variable. "
              f"Response modelled as <b>{_e(scale)}</b>.</p>")
     notes = "".join(f"<p class=\"note\">{_e(n)}</p>" for n in getattr(candidates, "notes", ()))
+    dataset = getattr(candidates, "dataset", None)
+    report = getattr(dataset, "report", None)
+    if report is not None and report.notes:
+        # What intake did with the table (columns set aside, rows dropped, warnings) comes first.
+        intro = ("<p>Reading the table: " + _e(f"{report.n_rows_read} rows read, {report.n_rows_used} used.")
+                 + "</p><ul>" + "".join(f"<li>{_e(note.message)}</li>" for note in report.notes) + "</ul>" + intro)
     if len(frame) > 25:
         return (intro + f"<details><summary>Show all {len(frame)} rows (kept terms, then refused forms)</summary>"
                 + _table(frame) + "</details>" + notes)
