@@ -95,7 +95,7 @@ def _one_of(choices):
 def _is_address(value, where):
     value = _is_text(value, where).strip()
     if not re.match(r"^[a-z][a-z0-9+]*://\S+$", value):
-        raise JobFileError(f"{where} must be a scheduler address like 'tcp://10.0.0.5:8786' (got {value!r})")
+        raise JobFileError(f"{where} must be a scheduler address like 'tcp://scheduler.example:8786' (got {value!r})")
     return value
 
 

@@ -210,7 +210,7 @@ def resume_job(folder_or_store, *, progress=None, **run_settings) -> JobOutcome:
     Examples
     --------
     >>> resume_job("bays-results", workers=8, backend="dask",
-    ...            scheduler="tcp://10.0.0.5:8786")  # doctest: +SKIP
+    ...            scheduler="tcp://scheduler.example:8786")  # doctest: +SKIP
     """
     spec = _spec_from_store(folder_or_store)
     if run_settings:
