@@ -649,16 +649,22 @@ class NestedResult:
                     "this nested estimate repeats the whole selection inside each outer training part.")
 
 
-def _nested_unit(payload):
-    candidates, moments, test_rows, inner_seed, options, repeat, index = payload
-    n = candidates.y.shape[0]
-    train_rows = np.setdiff1d(np.arange(n), test_rows)
-    test = _rows_moments(candidates, test_rows)
-    train = moments - test
+def _outer_split(candidates, moments, test_rows):
+    """An outer fold: the training rows' candidates, their moments (by subtraction) and the test moments."""
     from dataclasses import replace
 
+    train_rows = np.setdiff1d(np.arange(candidates.y.shape[0]), test_rows)
+    test = _rows_moments(candidates, test_rows)
     sub = replace(candidates, matrix=candidates.matrix[train_rows], y=candidates.y[train_rows],
                   weights=None if candidates.weights is None else candidates.weights[train_rows])
+    return sub, moments - test, test
+
+
+def _nested_unit(payload):
+    from dataclasses import replace
+
+    candidates, moments, test_rows, inner_seed, options, repeat, index = payload
+    sub, train, test = _outer_split(candidates, moments, test_rows)
     inner = replace(options, seed=inner_seed)
     units = plan(sub, train, inner)
     found = merge(sub, train, inner, [run_unit(u) for u in units])
@@ -729,20 +735,13 @@ def nested_cv_error(candidates, *, method: str = "exhaustive", outer_folds=5, in
 
 def _procedure_unit(payload):
     """One outer fold of :func:`procedure_cv_error` (module level so that it pickles)."""
-    from dataclasses import replace
-
     from .. import criteria as _criteria
 
     candidates, moments, runner, test_rows, criterion, convention, repeat, index = payload
-    n = candidates.y.shape[0]
-    train_rows = np.setdiff1d(np.arange(n), test_rows)
-    test = _rows_moments(candidates, test_rows)
-    train = moments - test
-    sub = replace(candidates, matrix=candidates.matrix[train_rows], y=candidates.y[train_rows],
-                  weights=None if candidates.weights is None else candidates.weights[train_rows])
+    sub, train, test = _outer_split(candidates, moments, test_rows)
     found = runner(sub)
     if len(found) == 0:
-        raise SearchError(f"outer fold {index + 1}: the searches kept no model on its {train_rows.size} training rows")
+        raise SearchError(f"outer fold {index + 1}: the searches kept no model on its {sub.y.shape[0]} training rows")
     # Every model of one Found shares the response transform: its log-Jacobian cannot change which is best.
     values = _criteria.compute(found.rss, found.n, found.k, tss=train.tss, convention=convention)[criterion]
     sign = 1.0 if _criteria.LOWER_IS_BETTER[criterion] else -1.0
