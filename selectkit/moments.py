@@ -454,6 +454,15 @@ def _pivoted_factor(A: np.ndarray, tolerance: float):
     ``tolerance`` (−1 when none does).
     """
     size = A.shape[0]
+    diag = np.diag(A)
+    if size and np.all(diag > 0):
+        # LAPACK first; the column-by-column loop below only to name the first failing pivot.
+        try:
+            L = np.linalg.cholesky(A)
+        except np.linalg.LinAlgError:
+            L = None
+        if L is not None and np.all(np.diag(L) ** 2 > tolerance * diag):
+            return np.ascontiguousarray(L.T), -1
     R = np.zeros_like(A)
     for j in range(size):
         d = A[j, j] - R[:j, j] @ R[:j, j]
