@@ -36,6 +36,9 @@ from .errors import InputError, OptionError
 __all__ = ["Term", "Refusal", "ResponseTransform", "CandidateSet", "build_candidates", "DEFAULT_FORMS"]
 
 #: Forms built by default (Yeo-Johnson stands in for Box-Cox on a predictor with values ≤ 0).
+#: Significance level of the test of power 1 below which a Box-Tidwell form is built.
+_BOX_TIDWELL_LEVEL = 0.05
+
 DEFAULT_FORMS = ("identity", "log", "sqrt", "reciprocal", "square", "boxcox", "boxtidwell")
 #: Fractional-polynomial powers with a named form of their own.
 _NAMED_POWERS = {1.0: "identity", 0.0: "log", 0.5: "sqrt", -1.0: "reciprocal", 2.0: "square"}
@@ -676,6 +679,14 @@ def _numeric_family(builder, col, x, y, weights, plan, shift_info, forced, near_
                 builder.refuse(col, "boxtidwell", f"the Box-Tidwell power of {col} is {result.power:.2g}, "
                                                   "about 0: that is the log form", name=f"{col}^α (Box-Tidwell)")
                 continue
+            if not result.pvalue < _BOX_TIDWELL_LEVEL:
+                # No evidence of curvature: the power is noise fitted to y, and a form chosen from the
+                # response would look better than its one coefficient suggests. The raw form covers it.
+                builder.refuse(col, "boxtidwell",
+                               f"the Box-Tidwell power of {col} ({result.power:.2g}) is not distinguishable from "
+                               f"1 (test of power 1: p = {result.pvalue:.2g} ≥ {_BOX_TIDWELL_LEVEL}); the raw "
+                               "form covers it", name=f"{col}^α (Box-Tidwell)")
+                continue
             params = (("power", result.power),) + shift_params
             held = "" if covariates is None else ", the other predictors held linear"
             builder.notes.append(
@@ -804,7 +815,11 @@ def build_candidates(
         value (after any shift) is positive, and Yeo-Johnson otherwise.
         ``boxtidwell`` gives x^α̂ with α̂ the power that best linearises the
         response on x (:func:`selectkit.transforms.box_tidwell`); it is refused
-        when the iteration fails or |α̂| > 3.
+        when the iteration fails, when |α̂| > 3, and when the test of power 1
+        (the t-test of x·log x added to the fit, Box & Tidwell 1962) gives
+        p ≥ 0.05: without evidence of curvature the power is fitted noise, and
+        a form chosen from the response would look better than its one
+        coefficient suggests (the 0.05 level is common practice).
     fractional_polynomials : bool, default False
         Add the eight powers {−2, −1, −0.5, 0, 0.5, 1, 2, 3} of Royston & Altman
         (1994); powers with a name of their own appear under it (x^0 is log(x),
