@@ -526,3 +526,27 @@ def test_shipped_dataset_diabetes_raw_features():
     boxcox_families = {t.family for t in cands.terms if t.transform == "boxcox"}
     boxcox_families |= {r.family for r in cands.refused if r.form == "boxcox"}
     assert boxcox_families == set(frame.columns)
+
+
+def test_box_tidwell_form_needs_evidence_of_curvature():
+    # invented: y curves in spacing (truth 1/spacing) and ignores probe; the t-test of x·log x added to the
+    # linear fit (Box & Tidwell 1962) decides whether a power is built, at the 0.05 level (common practice)
+    import statsmodels.api as sm
+
+    rng = np.random.default_rng(5)
+    n = 200
+    frame = pd.DataFrame({"spacing": rng.uniform(1.0, 10.0, n), "probe": rng.uniform(1.0, 10.0, n)})
+    y = 2.0 + 6.0 / frame["spacing"].to_numpy() + rng.normal(0.0, 0.2, n)
+    ds = Dataset(response="y", y=y, frame=frame, numeric=("spacing", "probe"), categorical=())
+    cands = build_candidates(ds, forms=("identity", "boxtidwell"))
+    kept = {t.family for t in cands.terms if t.transform == "boxtidwell"}
+    refused = {r.family: r.reason for r in cands.refused if r.form == "boxtidwell"}
+    # reference: the same test by statsmodels OLS on [x, x·log x]
+    for column in ("spacing", "probe"):
+        x = frame[column].to_numpy()
+        fit = sm.OLS(y, sm.add_constant(np.column_stack([x, x * np.log(x)]))).fit()
+        if fit.pvalues[2] < 0.05:
+            assert column in kept
+        else:
+            assert column in refused and "not distinguishable from 1" in refused[column]
+    assert "spacing" in kept and "probe" in refused
