@@ -121,7 +121,8 @@ class Shortlist:
         columns as in ``scored``.
     scored : DataFrame
         Every pooled model, scored and ordered.  Columns: ``position`` (1 = best),
-        ``terms`` (readable names joined by ``" + "``), ``n_terms``, ``k``
+        ``terms`` (readable names joined by ``" + "``), ``variables`` (the
+        families held, in any form, joined by ``", "``), ``n_terms``, ``k``
         (coefficients including the intercept), ``rss``, ``log_likelihood``,
         ``aic``, ``aicc``, ``bic``, ``cp``, ``r2``, ``adj_r2``, ``press``,
         ``cv_mse``, ``cv_se``, ``holdout_mse``, ``delta_from_best`` (on the
@@ -420,6 +421,8 @@ def _score_table(candidates, moments, n, pooled, *, convention, criterion, aim, 
     names = [_term_names(candidates, s) for s in subsets]
     table = pd.DataFrame({
         "terms": [_joined(t) for t in names],
+        # the variables (families) a model holds, whatever their forms: rows that share them differ in form only
+        "variables": [", ".join(dict.fromkeys(candidates.terms[j].family for j in sorted(sub))) for sub in subsets],
         "n_terms": [len(s) for s in subsets],
         "k": k.astype(np.int64),
         "rss": rss,

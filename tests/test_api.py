@@ -115,3 +115,13 @@ def test_response_boxcox_of_a_shortlisted_model_finds_a_log_scale():
     fit = res.response_boxcox(0)
     low, high = fit.interval
     assert low <= 0 <= high and high < 1
+
+
+def test_shortlist_names_the_variables_behind_the_forms(result):
+    families = {t.name: t.family for t in result.candidates.terms}
+    for i in range(len(result.shortlist)):
+        listed = [v for v in result.shortlist["variables"].iloc[i].split(", ") if v]
+        assert sorted(listed) == sorted({families[name] for name in result.terms(i)})
+    same = result.shortlist.groupby("variables")["position"].apply(list)
+    if (same.apply(len) > 1).any():
+        assert "hold the same variables in different forms" in result.summary()

@@ -117,6 +117,7 @@ def _model_entry(row, fit, diagnosis) -> dict:
         "position": int(row["position"]),
         "terms": list(fit.terms) if fit is not None else [t for t in str(row["terms"]).split(" + ")],
         "term_indices": [int(i) for i in str(row["term_indices"]).split()],
+        "variables": [v for v in str(row["variables"]).split(", ") if v],
         "n_terms": int(row["n_terms"]),
         "k": int(row["k"]),
         "scores": {key: _clean(row[key]) for key in _SCORE_KEYS},

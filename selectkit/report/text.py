@@ -50,6 +50,21 @@ def _mark(passed) -> str:
     return {True: "ok  ", False: "FAIL", None: "n/a "}[passed]
 
 
+def _same_variables(table) -> str:
+    """A line naming listed models that hold the same variables in different forms, if any."""
+    if "variables" not in table or len(table) < 2:
+        return ""
+    groups: dict = {}
+    for _, row in table.iterrows():
+        groups.setdefault(row["variables"], []).append(int(row["position"]))
+    shared = [positions for positions in groups.values() if len(positions) > 1]
+    if not shared:
+        return ""
+    listed = "; ".join(", ".join(map(str, p)) for p in shared)
+    return (f"Models {listed} hold the same variables in different forms: the data tell those forms apart "
+            "only weakly; look at the variables' support rather than at one form.")
+
+
 def summary(*, shortlist, settings=None, founds=(), diagnoses=(), paths=None, top=5, honest=None) -> str:
     """A few lines for the terminal: searches, criterion, top models, checks of the best, cautions, files.
 
@@ -94,6 +109,9 @@ def summary(*, shortlist, settings=None, founds=(), diagnoses=(), paths=None, to
         lines.append(f"  {int(row['position']):>2}  {float(row['delta_from_best']):>7.2f}  "
                      f"{float(row['model_weight']):>6.3f}  {wrapped[0] if wrapped else ''}")
         lines.extend(indent + part for part in wrapped[1:])
+    same = _same_variables(table)
+    if same:
+        lines.append(same)
     if shortlist.fits:
         lines.append("")
         lines.append("Best model: " + shortlist.fits[0].equation)
