@@ -187,6 +187,18 @@ class CandidateSet:
         """Readable names of the terms, in order."""
         return tuple(t.name for t in self.terms)
 
+    def powers_from_response(self, subset) -> int:
+        """Parameters of a model's forms that were estimated from the response.
+
+        A Box-Tidwell power is fitted to y, so a model holding ``x^α̂`` has
+        spent one more degree of freedom than its coefficients show; the
+        ranker adds these to k in every criterion, as fractional-polynomial
+        selection counts each estimated power (Royston & Altman 1994).
+        Box-Cox and Yeo-Johnson powers of a predictor come from the
+        predictor's own distribution and cost nothing here.
+        """
+        return sum(1 for j in subset if self.terms[j].transform == "boxtidwell")
+
     def term_index(self, name: str) -> int:
         """Index of the term with this readable name.
 

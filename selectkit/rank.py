@@ -123,7 +123,9 @@ class Shortlist:
         Every pooled model, scored and ordered.  Columns: ``position`` (1 = best),
         ``terms`` (readable names joined by ``" + "``), ``variables`` (the
         families held, in any form, joined by ``", "``), ``n_terms``, ``k``
-        (coefficients including the intercept), ``rss``, ``log_likelihood``,
+        (coefficients including the intercept; the criteria add one parameter
+        per Box-Tidwell power, which was fitted to the response — see
+        :meth:`CandidateSet.powers_from_response`), ``rss``, ``log_likelihood``,
         ``aic``, ``aicc``, ``bic``, ``cp``, ``r2``, ``adj_r2``, ``press``,
         ``cv_mse``, ``cv_se``, ``holdout_mse``, ``delta_from_best`` (on the
         primary criterion, ≥ 0), ``model_weight`` (exp(−Δ/2) normalised over the
@@ -416,7 +418,9 @@ def _score_table(candidates, moments, n, pooled, *, convention, criterion, aim, 
             f"Cp not computed: the largest pooled model has k = {k_full} coefficients for n = {n} rows "
             "and leaves no residual degrees of freedom"
         )
-    values = _criteria.compute(rss, n, k, tss=tss, sigma2_full=sigma2_full,
+    # Powers fitted to the response (Box-Tidwell) count as parameters in every criterion.
+    k_criteria = k + np.array([candidates.powers_from_response(sub) for sub in subsets], dtype=np.int64)
+    values = _criteria.compute(rss, n, k_criteria, tss=tss, sigma2_full=sigma2_full,
                                convention=convention, log_jacobian=log_jacobian)
     names = [_term_names(candidates, s) for s in subsets]
     table = pd.DataFrame({
@@ -768,9 +772,11 @@ def fit_model(candidates, subset, *, level=0.95) -> ModelFit:
 # --------------------------------------------------------------------------- stability
 
 
-def _best_of(found, criterion, *, convention, tss, log_jacobian, names):
+def _best_of(found, criterion, *, convention, tss, log_jacobian, names, candidates=None):
     """Index of the best model of one Found by an rss-based criterion (ties: n_terms, names)."""
     k = found.k
+    if candidates is not None:
+        k = k + np.array([candidates.powers_from_response(sub) for sub in found.subsets], dtype=np.int64)
     values = _criteria.compute(found.rss, found.n, k, tss=tss, convention=convention,
                                log_jacobian=log_jacobian,
                                sigma2_full=_sigma2_largest(found) if criterion == "cp" else None)
@@ -824,7 +830,8 @@ def _replicate(payload):
     names = [_term_names(candidates, s) for s in found.subsets]
     # Every model of one Found shares the response transform, so its log-Jacobian is a
     # constant that cannot change which model is best: 0 is used.
-    best = _best_of(found, criterion, convention=convention, tss=moments.tss, log_jacobian=0.0, names=names)
+    best = _best_of(found, criterion, convention=convention, tss=moments.tss, log_jacobian=0.0, names=names,
+                    candidates=candidates)
     return found.subsets[best], None
 
 
@@ -903,7 +910,7 @@ def stability(
         raise SearchError("the search kept no model on the full data; stability cannot be assessed")
     names = [_term_names(candidates, s) for s in full.subsets]
     full_best = full.subsets[_best_of(full, criterion, convention=convention, tss=moments.tss,
-                                      log_jacobian=0.0, names=names)]
+                                      log_jacobian=0.0, names=names, candidates=candidates)]
     units = [(candidates, runner, child, criterion, convention) for child in spawn_seeds(seed, n_boot)]
     results = run_units(_replicate, units, n_jobs=n_jobs, backend=backend)
     chosen = [subset for subset, _ in results]

@@ -450,3 +450,32 @@ def test_mallows_cp_of_hald_cement_data_matches_published_values():
     for terms, value in published.items():
         assert cp[terms] == pytest.approx(value, abs=0.006)
     assert short.terms(0) == ("x1", "x2")  # the smallest Cp
+
+
+def test_box_tidwell_power_counts_as_a_parameter_in_the_criteria():
+    # A power fitted to the response spends a degree of freedom (Royston & Altman 1994 count estimated
+    # fractional-polynomial powers the same way): AIC of a model holding x^α̂ is that of k + 1 parameters.
+    import dataclasses
+
+    import statsmodels.api as sm
+
+    from selectkit import rank as rank_module
+    from selectkit.moments import compute_moments
+    from selectkit.searches import Found
+    from tests.factories import make_candidates
+
+    rng = np.random.default_rng(3)
+    x = rng.uniform(1, 10, 80)
+    y = 1 + 4 / x + rng.normal(0, 0.3, 80)
+    cands = make_candidates(np.column_stack([x, x ** -0.9]), y, names=["x", "x^-0.9"], families=["x", "x"])
+    powered = dataclasses.replace(cands.terms[1], transform="boxtidwell", params=(("power", -0.9),))
+    cands = dataclasses.replace(cands, terms=(cands.terms[0], powered))
+    moments = compute_moments(cands.matrix, cands.y)
+    fits = [sm.OLS(y, sm.add_constant(col)).fit() for col in (x, x ** -0.9)]
+    found = Found(method="test", subsets=((0,), (1,)), rss=[f.ssr for f in fits], k=[2, 2], n=80)
+    table = rank_module.rank(found, cands, moments, criterion="aic", convention="statsmodels", scores=False).scored
+    by_terms = table.set_index("terms")
+    # reference: statsmodels' AIC (k coefficients), plus 2 for the estimated power
+    assert np.isclose(by_terms.loc["x", "aic"], fits[0].aic)
+    assert np.isclose(by_terms.loc["x^-0.9", "aic"], fits[1].aic + 2.0)
+    assert int(by_terms.loc["x^-0.9", "k"]) == 2

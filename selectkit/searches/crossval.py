@@ -743,7 +743,8 @@ def _procedure_unit(payload):
     if len(found) == 0:
         raise SearchError(f"outer fold {index + 1}: the searches kept no model on its {sub.y.shape[0]} training rows")
     # Every model of one Found shares the response transform: its log-Jacobian cannot change which is best.
-    values = _criteria.compute(found.rss, found.n, found.k, tss=train.tss, convention=convention)[criterion]
+    k = found.k + np.array([candidates.powers_from_response(sub) for sub in found.subsets], dtype=np.int64)
+    values = _criteria.compute(found.rss, found.n, k, tss=train.tss, convention=convention)[criterion]
     sign = 1.0 if _criteria.LOWER_IS_BETTER[criterion] else -1.0
     names = [tuple(sorted(candidates.terms[j].name for j in s)) for s in found.subsets]
     best = min(range(len(found.subsets)),
