@@ -138,7 +138,8 @@ def build_parser() -> argparse.ArgumentParser:
     jobs = job.add_subparsers(dest="job_command", metavar="JOB_COMMAND")
     j = jobs.add_parser("new", parents=[common], help="write a commented starter job file for a table")
     j.add_argument("table")
-    j.add_argument("-o", "--out", default="job.toml", metavar="JOB_FILE")
+    j.add_argument("-o", "--out", default=None, metavar="JOB_FILE",
+                   help="where to write it (default: the table's name with .toml, in this folder)")
     j.add_argument("-r", "--response", default=None)
     j.add_argument("--force", action="store_true", help="overwrite an existing job file")
     j = jobs.add_parser("run", parents=[common], help="run a job file (continues its run store if one exists)")
@@ -323,7 +324,7 @@ def _run_job(args) -> int:
     from . import jobs
 
     if args.job_command == "new":
-        out = Path(args.out)
+        out = Path(args.out) if args.out else Path(Path(args.table).stem + ".toml")
         if out.exists() and not args.force:
             raise SelectkitError(f"{out} exists; choose another name with -o or pass --force to overwrite")
         from ._io import atomic_write_text

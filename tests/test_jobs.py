@@ -756,3 +756,15 @@ def test_a_method_setting_the_search_refuses_is_a_job_file_error(tmp_path):
         _run(load_job(tmp_path / "job.toml"), resume=True, progress=False, engine=_API)
     assert "\n" not in str(caught.value)
     assert store_status(tmp_path / "results").units_done == 0
+
+
+def test_honest_folds_in_a_job_file_reach_the_search(tmp_path):
+    # the [ranking] key is handed to the search as honest_folds; 1 outer fold is refused up front
+    from selectkit.jobs import parse_job
+
+    (tmp_path / "bays.csv").write_text("y,a\n1,2\n")
+    text = '[data]\ntable = "bays.csv"\nresponse = "y"\n[ranking]\nhonest_folds = {}\n'
+    spec = parse_job(text.format(5), base=tmp_path, check_table=False)
+    assert spec.search_options()["honest_folds"] == 5
+    with pytest.raises(JobFileError, match="honest_folds"):
+        parse_job(text.format(1), base=tmp_path, check_table=False)

@@ -59,6 +59,14 @@ def _is_names(value, where):
     return tuple(cleaned)
 
 
+def _outer_folds(value, where):
+    """0 (skip) or at least 2 outer folds."""
+    value = _whole(low=0)(value, where)
+    if value == 1:
+        raise JobFileError(f"{where} must be 0 (skip) or at least 2 outer folds (got 1)")
+    return value
+
+
 def _whole(low=None, allow_minus_one=False):
     def check(value, where):
         if isinstance(value, bool) or not isinstance(value, int):

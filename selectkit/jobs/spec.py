@@ -37,6 +37,7 @@ and range, and the data file must exist.  The layout::
     keep_within = 4.0               # keep models within this distance of the best
     folds = 5
     resamples = 0                   # bootstrap resamples for selection stability
+    honest_folds = 5                # outer folds for the honest error of the whole procedure (0: skip)
 
     [run]
     seed = 0
@@ -75,6 +76,7 @@ from ._checks import (
     _is_response_form,
     _is_shifts,
     _one_of,
+    _outer_folds,
     _positive_number,
     _suggest,
     _type_name,
@@ -125,6 +127,7 @@ _SCHEMA: dict[str, dict[str, tuple[Callable, Any]]] = {
         "keep_within": (_positive_number, None),
         "folds": (_whole(low=2), 5),
         "resamples": (_whole(low=0), 0),
+        "honest_folds": (_outer_folds, 0),
     },
     "run": {
         "seed": (_whole(low=0), 0),
@@ -211,6 +214,8 @@ class JobSpec:
         [ranking] Δ criterion cut-off of the shortlist.
     folds, resamples : int
         [ranking] Cross-validation folds; bootstrap resamples for stability (0: skip).
+    honest_folds : int
+        [ranking] Outer folds for the honest error of the whole procedure (0: skip).
     seed, workers : int
         [run]
     backend : str
@@ -249,6 +254,7 @@ class JobSpec:
     keep_within: float | None = None
     folds: int = 5
     resamples: int = 0
+    honest_folds: int = 0
     seed: int = 0
     workers: int = 1
     backend: str = "loky"
@@ -364,6 +370,7 @@ class JobSpec:
             "max_delta": self.keep_within,
             "folds": self.folds,
             "stability": self.resamples,
+            "honest_folds": self.honest_folds,
             "time_ordered": self.time_ordered,
             "seed": self.seed,
         }

@@ -83,6 +83,7 @@ shortlist_size = 10
 # keep_within = 4.0        # keep only models within this criterion distance of the best
 folds = 5
 resamples = 0              # bootstrap resamples for the stability of the selection (0: skip)
+honest_folds = 0           # outer folds for the honest error of the whole procedure (0: skip; 5 is usual)
 
 [run]
 seed = 0
