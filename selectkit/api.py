@@ -142,7 +142,7 @@ def prepare_search(
     from . import candidates as _candidates
     from . import criteria
     from . import data as _data
-    from .moments import compute_moments
+    from .moments import moments_of
 
     if isinstance(methods, str):
         methods = (methods,)
@@ -184,7 +184,7 @@ def prepare_search(
     if forms is not None:
         build_options["forms"] = tuple(forms)
     cands = _candidates.build_candidates(dataset, **build_options)
-    moments = compute_moments(cands.matrix, cands.y, cands.weights)
+    moments = moments_of(cands)
 
     n_terms = len(cands.terms)
     resolved = []
@@ -394,10 +394,10 @@ class _StabilityRunner:
     runs: tuple
 
     def __call__(self, candidates):
-        from .moments import compute_moments
+        from .moments import moments_of
         from .searches._found import pool
 
-        moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+        moments = moments_of(candidates)
         found = []
         for run in self.runs:
             units = run.module.plan(candidates, moments, run.options)

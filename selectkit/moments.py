@@ -39,6 +39,7 @@ from .errors import DataFileError, InputError, SearchError
 from .kernels import PIVOT_TOLERANCE
 
 __all__ = [
+    "moments_of",
     "Moments",
     "Solution",
     "compute_moments",
@@ -280,6 +281,20 @@ def _check_chunk_rows(chunk_rows) -> int:
     if isinstance(chunk_rows, bool) or not isinstance(chunk_rows, (int, np.integer)) or chunk_rows < 1:
         raise InputError(f"chunk_rows must be a positive whole number of rows (got {chunk_rows!r})")
     return int(chunk_rows)
+
+
+def moments_of(candidates, *, chunk_rows: int = 65536) -> Moments:
+    """Moments of a candidate set: its matrix, its (searched) response and its row weights.
+
+    The one pass over the data that every search starts from; searches take
+    ``moments=None`` to mean this.
+
+    Parameters
+    ----------
+    candidates : CandidateSet
+        Anything with ``matrix``, ``y`` and ``weights``.
+    """
+    return compute_moments(candidates.matrix, candidates.y, candidates.weights, chunk_rows=chunk_rows)
 
 
 def moments_from_chunks(chunks: Iterable) -> Moments:

@@ -25,7 +25,7 @@ import pandas as pd
 
 from . import criteria as _criteria
 from .errors import InputError, OptionError, SearchError, SelectkitError
-from .moments import compute_moments
+from .moments import moments_of
 from .parallel import run_units, spawn_seeds
 
 __all__ = [
@@ -381,7 +381,9 @@ def _normalise_scores(scores, subsets) -> tuple[pd.DataFrame, list[str]]:
 def _compute_scores(candidates, subsets, moments, folds, seed):
     """Call score_subsets when it exists; else leave the score columns empty, with a note."""
     try:
-        from .searches.crossval import score_subsets  # lazy: the search package sits beside us
+        from .searches.crossval import (
+            score_subsets,  # lazy: the search package sits beside us
+        )
     except ImportError:
         return None, [
             "PRESS, cross-validation and held-out columns are empty: "
@@ -818,7 +820,7 @@ def _replicate(payload):
     n = candidates.matrix.shape[0]
     rows = rng.integers(0, n, size=n)
     sample = _resample(candidates, rows)
-    moments = compute_moments(sample.matrix, sample.y, sample.weights)
+    moments = moments_of(sample)
     try:
         found = _call_runner(runner, sample, moments)
     except (SelectkitError, np.linalg.LinAlgError) as err:
@@ -904,7 +906,7 @@ def stability(
         criterion = "aicc"
     if isinstance(n_boot, bool) or not isinstance(n_boot, (int, np.integer)) or n_boot < 1:
         raise OptionError(f"n_boot must be a whole number of replicates ≥ 1 (got {n_boot!r})")
-    moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+    moments = moments_of(candidates)
     full = _call_runner(runner, candidates, moments)
     if len(full) == 0:
         raise SearchError("the search kept no model on the full data; stability cannot be assessed")

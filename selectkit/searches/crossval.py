@@ -53,7 +53,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import InputError, OptionError, SearchError, TooManyCandidatesError
-from ..moments import compute_moments, heldout_sse
+from ..moments import compute_moments, heldout_sse, moments_of
 from ..parallel import WorkUnit, run_units, spawn_seeds
 from ._found import Found
 
@@ -309,7 +309,7 @@ def score_subsets(candidates, subsets, *, folds=5, seed=0, moments=None, holdout
     ['subset', 'k', 'rss', 'press', 'cv_mse', 'cv_se', 'n_folds', 'holdout_mse']
     """
     if moments is None:
-        moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+        moments = moments_of(candidates)
     n = int(candidates.y.shape[0])
     subsets = [tuple(sorted(int(i) for i in s)) for s in subsets]
     n_terms = len(candidates.terms)
@@ -485,7 +485,7 @@ def plan(candidates, moments, options: CrossvalOptions) -> list[WorkUnit]:
     """Units: the search on all rows (``crossval/all-rows``), then one per fold."""
     _check_size(candidates, options)
     if moments is None:
-        moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+        moments = moments_of(candidates)
     fold_list = make_folds(options.folds, int(candidates.y.shape[0]), options.seed)
     light = _terms_only(candidates)
     units = [WorkUnit("crossval/all-rows", ("all", light, moments, None, options))]
@@ -609,7 +609,7 @@ def cv_select(candidates, *, method: str = "exhaustive", folds=5, one_standard_e
                               exact_limit=exact_limit, max_size=max_size, forced=tuple(forced),
                               forbidden=tuple(forbidden), hierarchy=hierarchy, time_budget=time_budget)
     if moments is None:
-        moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+        moments = moments_of(candidates)
     units = plan(candidates, moments, options)
     results = run_units(run_unit, units, n_jobs=n_jobs, backend=backend, scheduler=scheduler)
     return merge(candidates, moments, options, results)
@@ -709,7 +709,7 @@ def nested_cv_error(candidates, *, method: str = "exhaustive", outer_folds=5, in
                               exact_limit=exact_limit, max_size=max_size, forced=tuple(forced),
                               forbidden=tuple(forbidden), hierarchy=hierarchy, time_budget=time_budget)
     if moments is None:
-        moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+        moments = moments_of(candidates)
     n = int(candidates.y.shape[0])
     outer = make_folds(outer_folds, n, seed)
     children = spawn_seeds(seed, len(outer))
@@ -797,7 +797,7 @@ def procedure_cv_error(candidates, runner, *, criterion="bic", convention="selec
         raise OptionError(f"the honest error repeats the choice by an rss-based criterion; {criterion!r} is not one "
                           "(use aic, aicc, bic, cp or adj_r2)")
     if moments is None:
-        moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+        moments = moments_of(candidates)
     outer = make_folds(folds, int(candidates.y.shape[0]), seed)
     payloads = [(candidates, moments, runner, fold.test_rows, criterion, convention, fold.repeat, fold.index)
                 for fold in outer]

@@ -51,8 +51,8 @@ Miller, A. J. (2002). Subset Selection in Regression, 2nd ed. Chapman & Hall/CRC
 from __future__ import annotations
 
 import time
-from functools import cached_property
 from dataclasses import asdict, dataclass, replace
+from functools import cached_property
 from types import MappingProxyType
 
 import numpy as np
@@ -60,7 +60,7 @@ import numpy as np
 from ..errors import OptionError, SearchError, TooManyCandidatesError
 from ..kernels import PIVOT_TOLERANCE
 from ..kernels.subsets import branch_and_bound, scaled_cross, subset_rss
-from ..moments import Moments, compute_moments
+from ..moments import Moments, moments_of
 from ..parallel import WorkUnit, run_units
 from ._found import Found
 
@@ -399,7 +399,7 @@ def plan(candidates, moments: Moments | None, options: ExhaustiveOptions) -> lis
     if not isinstance(options, ExhaustiveOptions):
         raise OptionError(f"options must be ExhaustiveOptions (got {type(options).__name__})")
     if moments is None:
-        moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+        moments = moments_of(candidates)
     problem = _prepare(candidates, moments, options)
     n_best = int(options.n_best_per_size)
     if len(problem.free) <= _BEAM_FROM_TERMS and options.time_budget is None:
@@ -550,7 +550,7 @@ def merge(candidates, moments: Moments | None, options: ExhaustiveOptions, resul
     ties broken by the sorted tuple of term names.
     """
     if moments is None:
-        moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+        moments = moments_of(candidates)
     terms = candidates.terms
     results = list(results)
     unfinished = sum(res is None for res in results)  # units a stopped job never ran
@@ -710,7 +710,7 @@ def exhaustive_search(
         hierarchy=hierarchy, time_budget=time_budget,
     )
     if moments is None:
-        moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+        moments = moments_of(candidates)
     units = plan(candidates, moments, options)
     results = run_units(run_unit, units, n_jobs=n_jobs, backend=backend, scheduler=scheduler)
     return merge(candidates, moments, options, results)

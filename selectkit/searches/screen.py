@@ -43,7 +43,7 @@ import pandas as pd
 from .. import criteria
 from ..candidates import CandidateSet
 from ..errors import OptionError
-from ..moments import Moments, compute_moments
+from ..moments import Moments, moments_of
 from ..parallel import WorkUnit, run_units
 from ._found import Found
 
@@ -224,7 +224,7 @@ def screen_candidates(candidates, *, limit: int = EXACT_LIMIT, method: str = "la
     free = [i for i in range(len(terms)) if i not in forced_set and i not in forbidden_set]
     if method == "forward":
         if moments is None:
-            moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+            moments = moments_of(candidates)
         entry, steps = _forward_entry(candidates, moments, free, forced_set, forbidden_set, hierarchy, limit)
         path_name = "the forward stepwise path"
     else:
@@ -360,7 +360,7 @@ def _exact_stage(candidates, moments, options: ScreenOptions):
     from . import exhaustive
 
     if moments is None:
-        moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+        moments = moments_of(candidates)
     screening = _screen_for(candidates, moments, options)
     sub, sub_moments = _sub_problem(candidates, moments, screening.kept)
     exact_options = exhaustive.ExhaustiveOptions(
@@ -415,7 +415,7 @@ def merge(candidates, moments, options: ScreenOptions, results) -> list[Found]:
     from .stepwise import stepwise_search
 
     if moments is None:
-        moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+        moments = moments_of(candidates)
     screening, sub, sub_moments, exact_options = _exact_stage(candidates, moments, options)
     local = exhaustive.merge(sub, sub_moments, exact_options, results)
     kept = screening.kept
@@ -479,7 +479,7 @@ def screen_then_search(candidates, *, limit: int = EXACT_LIMIT, method: str = "l
                             n_best_per_size=n_best_per_size, max_size=max_size, forced=tuple(forced),
                             forbidden=tuple(forbidden), hierarchy=hierarchy, time_budget=time_budget, polish=polish)
     if moments is None:
-        moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+        moments = moments_of(candidates)
     units = plan(candidates, moments, options)
     results = run_units(run_unit, units, n_jobs=n_jobs, backend=backend, scheduler=scheduler)
     return merge(candidates, moments, options, results)

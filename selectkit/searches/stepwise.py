@@ -74,7 +74,7 @@ from .. import criteria
 from ..errors import OptionError, SearchError
 from ..kernels import PIVOT_TOLERANCE
 from ..kernels.steps import apply_move, evaluate_moves, scale_cross
-from ..moments import compute_moments
+from ..moments import moments_of
 from ..parallel import WorkUnit, run_units
 from ._found import Found
 
@@ -272,7 +272,7 @@ def _start_indices(candidates, options, start, forced, forbidden):
 def plan(candidates, moments, options: StepwiseOptions) -> list[WorkUnit]:
     """One work unit per start (in the order of ``options.starts``)."""
     if moments is None:
-        moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+        moments = moments_of(candidates)
     if not candidates.terms:
         raise SearchError("stepwise search needs at least one candidate term; none were given")
     scaled, scale = scale_cross(moments.cross)
@@ -695,7 +695,7 @@ def stepwise_search(
         max_steps=max_steps, convention=convention, time_budget=time_budget,
     )
     if moments is None:
-        moments = compute_moments(candidates.matrix, candidates.y, candidates.weights)
+        moments = moments_of(candidates)
     units = plan(candidates, moments, options)
     results = run_units(run_unit, units, n_jobs=n_jobs, backend=backend, scheduler=scheduler)
     return merge(candidates, moments, options, results)
