@@ -19,6 +19,7 @@ import os
 import pickle
 from contextlib import nullcontext
 from dataclasses import dataclass
+from functools import cached_property
 from pathlib import Path
 from typing import Any, Callable, Mapping, Sequence
 
@@ -94,6 +95,31 @@ class SearchSetup:
     moments: Any
     runs: tuple
     settings: Mapping
+
+    @cached_property
+    def planned(self) -> tuple:
+        """Each run with its work units and their store keys ``"<method>/<unit key>"``.
+
+        Planned once per setup (planning may screen or seed bounds), then
+        shared by :func:`unit_keys` and :func:`run_methods`.
+        """
+        planned = []
+        for run in self.runs:
+            units = run.module.plan(self.candidates, self.moments, run.options)
+            keys = [f"{run.name}/{u.key}" for u in units]
+            if len(set(keys)) != len(keys):
+                raise SelectkitError(f"search {run.name!r} planned two work units with one key")
+            planned.append((run, tuple(units), tuple(keys)))
+        return tuple(planned)
+
+    def __getstate__(self):
+        # The planned units are derived and can be large: a saved result re-plans when asked.
+        state = dict(self.__dict__)
+        state.pop("planned", None)
+        return state
+
+    def __setstate__(self, state):
+        self.__dict__.update(state)
 
 
 # ----------------------------------------------------------------------------------------------------
@@ -250,25 +276,13 @@ def _make_run(name, user_options, *, seed, time_budget, exact_limit, folds, crit
 # ----------------------------------------------------------------------------------------------------
 
 
-def _planned(setup: SearchSetup):
-    """Each run with its planned work units and their store keys ``"<method>/<unit key>"``."""
-    planned = []
-    for run in setup.runs:
-        units = run.module.plan(setup.candidates, setup.moments, run.options)
-        keys = [f"{run.name}/{u.key}" for u in units]
-        if len(set(keys)) != len(keys):
-            raise SelectkitError(f"search {run.name!r} planned two work units with one key")
-        planned.append((run, units, keys))
-    return planned
-
-
 def unit_keys(setup: SearchSetup) -> list[str]:
     """The keys of every work unit :func:`run_methods` will run, in order.
 
     A run store records finished units under these keys and hands them back
     to :func:`run_methods` as ``done`` on resume.
     """
-    return [key for _, _, keys in _planned(setup) for key in keys]
+    return [key for _, _, keys in setup.planned for key in keys]
 
 
 def _call_unit(args):
@@ -314,7 +328,7 @@ def run_methods(
     founds = []
     session = dask_session(scheduler) if backend == "dask" else nullcontext()
     with session:
-        for run, units, keys in _planned(setup):
+        for run, units, keys in setup.planned:
             results: dict[int, Any] = {i: done[k] for i, k in enumerate(keys) if k in done}
             todo = [i for i in range(len(units)) if i not in results]
 
@@ -374,7 +388,7 @@ def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: st
     if s["stability"] > 0:
         stability = _rank.stability(
             setup.candidates,
-            _StabilityRunner(tuple(setup.runs)),
+            _SearchRunner(tuple(setup.runs)),
             n_boot=s["stability"],
             seed=s["seed"],
             n_jobs=n_jobs,
@@ -388,8 +402,9 @@ def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: st
 
 
 @dataclass(frozen=True)
-class _StabilityRunner:
-    """Picklable callable that repeats the searches of a setup on resampled candidates."""
+class _SearchRunner:
+    """Picklable callable that repeats the searches of a setup on other rows (bootstrap
+    resamples for stability, outer training folds for the honest error) and pools them."""
 
     runs: tuple
 
@@ -584,7 +599,7 @@ class Result:
         table = self._ranked.table
         naive = float(table["cv_mse"].iloc[0]) if "cv_mse" in table and len(table) else float("nan")
         self.honest = procedure_cv_error(
-            self.candidates, _StabilityRunner(tuple(self._setup.runs)), criterion=criterion,
+            self.candidates, _SearchRunner(tuple(self._setup.runs)), criterion=criterion,
             convention=self._setup.settings["convention"], folds=folds, seed=self._setup.settings["seed"],
             moments=self._setup.moments, naive_error=naive,
             procedure=" + ".join(r.name for r in self._setup.runs) + " search(es)",

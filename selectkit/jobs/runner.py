@@ -112,14 +112,7 @@ class _ApiEngine:
     def unit_keys(self, setup) -> list[str]:
         from .. import api
 
-        if hasattr(api, "unit_keys"):  # the api's own list, when it offers one
-            return list(api.unit_keys(setup))
-        # The keys run_methods gives its units: "<method>/<unit key>" in plan order.
-        keys = []
-        for run in setup.runs:
-            units = run.module.plan(setup.candidates, setup.moments, run.options)
-            keys.extend(f"{run.name}/{unit.key}" for unit in units)
-        return keys
+        return list(api.unit_keys(setup))
 
     def run(self, setup, **options) -> list:
         from .. import api
