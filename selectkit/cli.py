@@ -233,6 +233,28 @@ def _say(text: str = "", *, quiet: bool = False) -> None:
         print(text, flush=True)
 
 
+def _search_and_write(setup, *, out, workers=1, backend="loky", scheduler=None, quiet=False):
+    """Run the setup's searches (with a progress bar on a terminal), rank, check, write the outputs."""
+    from tqdm import tqdm
+
+    from . import api
+
+    show = not quiet and sys.stderr.isatty()
+    bar = tqdm(total=len(api.unit_keys(setup)), desc="searching", unit="unit", file=sys.stderr, disable=not show,
+               leave=False)
+    founds = api.run_methods(setup, n_jobs=workers, backend=backend, scheduler=scheduler,
+                             on_unit=lambda key, result: bar.update(1))
+    bar.close()
+    extra = [what for what, wanted in (("bootstrap resamples", setup.settings["stability"]),
+                                       ("outer folds for the honest error", setup.settings["honest_folds"]))
+             if wanted]
+    if show:
+        print("ranking and checking the best models" + (f"; then {' and '.join(extra)}" if extra else ""),
+              file=sys.stderr, flush=True)
+    result = api.finish(setup, founds, n_jobs=workers, backend=backend, scheduler=scheduler)
+    return result, result.write(out)
+
+
 def _run_search(args) -> int:
     from . import api
 
@@ -244,9 +266,8 @@ def _run_search(args) -> int:
     _say(f"read {setup.dataset.n} rows; {len(setup.candidates.terms)} candidate terms from "
          f"{len(setup.candidates.families)} variables; running: {', '.join(r.name for r in setup.runs)}",
          quiet=args.quiet)
-    founds = api.run_methods(setup, n_jobs=args.workers, backend=args.backend, scheduler=args.scheduler)
-    result = api.finish(setup, founds, n_jobs=args.workers, backend=args.backend, scheduler=args.scheduler)
-    paths = result.write(args.out)
+    result, paths = _search_and_write(setup, out=args.out, workers=args.workers, backend=args.backend,
+                                      scheduler=args.scheduler, quiet=args.quiet)
     _say(result.summary(), quiet=args.quiet)
     for label, path in paths.items():
         _say(f"  {label}: {path}", quiet=args.quiet)
@@ -298,9 +319,7 @@ def _run_demo(args) -> int:
     started = time.perf_counter()
     setup = api.prepare_search(data, response=RESPONSE, seed=args.seed, honest_folds=5)
     print(f"demo: {len(setup.candidates.terms)} candidate terms; running {', '.join(r.name for r in setup.runs)}")
-    founds = api.run_methods(setup, n_jobs=args.workers)
-    result = api.finish(setup, founds, n_jobs=args.workers)
-    paths = result.write(args.out)
+    result, paths = _search_and_write(setup, out=args.out, workers=args.workers)
     print(result.summary())
     found_terms = set(result.terms(0))
     truth = set(TRUE_TERMS)
