@@ -1073,7 +1073,8 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
             identifier_names.append(name)
             notes.append(Note(name, "dropped",
                               f"column '{name}' looks like a row identifier (its non-missing values are all distinct "
-                              f"{what}) and was excluded; list it in keep_identifiers= to use it as a predictor"))
+                              f"{what}) and was excluded; to use it as a predictor, list it in keep_identifiers= "
+                              "(--keep-id-columns at the command line)"))
 
     # infinities
     in_use = [(response, y_all)] + [(c, values[c]) for c in pool if kinds[c] == "numeric"]
