@@ -362,31 +362,32 @@ def run_methods(
 def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: str = "loky",
            scheduler: str | None = None) -> "Result":
     """Rank the pooled models, check the best ones and return a :class:`Result`."""
-    from . import rank as _rank
+    from . import rank as _rank_module
+
+    from .searches.crossval import press, score_subsets
 
     s = setup.settings
-    scores = None
-    try:
-        from .searches.crossval import score_subsets
-    except ImportError:  # pragma: no cover - the module is part of the package
-        score_subsets = None
     pooled = sorted({sub for f in founds for sub in f.subsets})
-    if score_subsets is not None and pooled:
-        scores = score_subsets(setup.candidates, pooled, folds=s["folds"], seed=s["seed"], moments=setup.moments)
-    shortlist = _rank.rank(
-        founds,
-        setup.candidates,
-        setup.moments,
-        criterion=s["criterion"],
-        aim=s["aim"],
-        convention=s["convention"],
-        size=s["shortlist_size"],
-        max_delta=s["max_delta"],
-        scores=scores,
-    )
+    # CV errors come from moments (cheap) for every pooled model; PRESS needs a pass over the rows per
+    # model, so unless it ranks the models it is computed for the shortlisted ones only.
+    press_ranks = s["criterion"] == "press"
+    scores = score_subsets(setup.candidates, pooled, folds=s["folds"], seed=s["seed"], moments=setup.moments,
+                           press_for=None if press_ranks else ()) if pooled else None
+
+    def _rank(scores):
+        return _rank_module.rank(founds, setup.candidates, setup.moments, criterion=s["criterion"], aim=s["aim"],
+                                 convention=s["convention"], size=s["shortlist_size"], max_delta=s["max_delta"],
+                                 scores=scores)
+
+    shortlist = _rank(scores)
+    if scores is not None and not press_ranks:
+        shown = set(shortlist.subsets)
+        scores["press"] = [press(setup.candidates, sub) if sub in shown and np.isfinite(rss) else np.nan
+                           for sub, rss in zip(scores["subset"], scores["rss"])]
+        shortlist = _rank(scores)  # same order (PRESS does not rank): now with PRESS shown
     stability = None
     if s["stability"] > 0:
-        stability = _rank.stability(
+        stability = _rank_module.stability(
             setup.candidates,
             _SearchRunner(tuple(setup.runs)),
             n_boot=s["stability"],

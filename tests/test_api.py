@@ -125,3 +125,15 @@ def test_shortlist_names_the_variables_behind_the_forms(result):
     same = result.shortlist.groupby("variables")["position"].apply(list)
     if (same.apply(len) > 1).any():
         assert "hold the same variables in different forms" in result.summary()
+
+
+def test_shortlisted_press_is_leave_one_out_error(result):
+    # reference: scikit-learn's LeaveOneOut refits of model 0's columns (Allen 1974: PRESS = LOO error)
+    from sklearn.linear_model import LinearRegression
+    from sklearn.model_selection import LeaveOneOut, cross_val_predict
+
+    cols = [c for j in result.ranking.subsets[0] for c in result.candidates.terms[j].columns]
+    X, y = result.candidates.matrix[:, cols], result.candidates.y
+    loo = cross_val_predict(LinearRegression(), X, y, cv=LeaveOneOut())
+    assert np.isclose(result.shortlist["press"].iloc[0], np.sum((y - loo) ** 2), rtol=1e-9)
+    assert result.shortlist["press"].notna().all()

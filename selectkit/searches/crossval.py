@@ -267,7 +267,8 @@ def press(candidates, subset) -> float:
     return float(loo @ loo)
 
 
-def score_subsets(candidates, subsets, *, folds=5, seed=0, moments=None, holdout=None) -> pd.DataFrame:
+def score_subsets(candidates, subsets, *, folds=5, seed=0, moments=None, holdout=None,
+                  press_for=None) -> pd.DataFrame:
     """PRESS, K-fold CV error and held-out error of given models.
 
     Parameters
@@ -288,6 +289,10 @@ def score_subsets(candidates, subsets, *, folds=5, seed=0, moments=None, holdout
         model fitted on the other rows.  PRESS and CV use all rows.  When
         ``folds`` is itself a :func:`holdout_split`, its one fold fills
         ``holdout_mse`` too.
+    press_for : collection of subsets, optional
+        Compute PRESS only for these models (the others get NaN).  PRESS needs
+        the rows (one QR per model), unlike the CV errors, which come from
+        moments; the ranker asks for it only where it is shown.
 
     Returns
     -------
@@ -312,6 +317,8 @@ def score_subsets(candidates, subsets, *, folds=5, seed=0, moments=None, holdout
         moments = moments_of(candidates)
     n = int(candidates.y.shape[0])
     subsets = [tuple(sorted(int(i) for i in s)) for s in subsets]
+    if press_for is not None:
+        press_for = {tuple(sorted(int(i) for i in s)) for s in press_for}
     n_terms = len(candidates.terms)
     for s in subsets:
         bad = [i for i in s if not 0 <= i < n_terms]
@@ -350,7 +357,8 @@ def score_subsets(candidates, subsets, *, folds=5, seed=0, moments=None, holdout
                 pass
         records.append({
             "subset": s, "k": 1 + len(cols), "rss": rss,
-            "press": press(candidates, s) if np.isfinite(rss) else float("nan"),
+            "press": press(candidates, s) if np.isfinite(rss) and (press_for is None or s in press_for)
+            else float("nan"),
             "cv_mse": float("nan") if bad else float(errors.mean()),
             "cv_se": float("nan") if bad else _se_by_repeat(errors, repeats),
             "n_folds": len(fold_list), "holdout_mse": hold,
