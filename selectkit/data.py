@@ -16,13 +16,7 @@ Nothing here prints or writes to disk; bad input raises an error from
 
 from __future__ import annotations
 
-import bz2
-import codecs
-import csv
 import difflib
-import gzip
-import io
-import lzma
 import os
 import re
 from collections import Counter
@@ -32,6 +26,9 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from . import _csvsniff
+from ._csvsniff import DECIMAL_MARKS
+from ._identifiers import distinct_integers, identifier_evidence
 from .errors import DataFileError, InputError, OptionError
 
 __all__ = [
@@ -43,7 +40,10 @@ __all__ = [
     "check_enough_rows",
     "COLLINEARITY_TOLERANCE",
     "IDENTIFIER_MIN_ROWS",
+    "MANY_LEVELS",
+    "MANY_LEVELS_ROW_SHARE",
     "MISSING_POLICIES",
+    "DECIMAL_MARKS",
 ]
 
 #: A numeric column counts as an exact linear combination of the columns kept
@@ -59,18 +59,20 @@ COLLINEARITY_TOLERANCE = 1e-7
 #: values are too likely by chance).
 IDENTIFIER_MIN_ROWS = 20
 
+#: A categorical column of L levels is set aside as a label when L is at least
+#: MANY_LEVELS and its L − 1 indicator columns exceed MANY_LEVELS_ROW_SHARE of
+#: the rows used (e.g. 500 levels in 1,000 rows): its block would spend most of
+#: the degrees of freedom and fit most of its rows nearly exactly (common
+#: practice, no published source).  keep_identifiers= keeps it.
+MANY_LEVELS = 10
+MANY_LEVELS_ROW_SHARE = 0.25
+
 #: Valid values of ``prepare(missing=...)``.
 MISSING_POLICIES = ("refuse", "drop")
 
-_DELIMITERS = (",", ";", "\t", "|")
-_DELIMITER_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", "|": "vertical bar"}
 _PARQUET_SUFFIXES = (".parquet", ".pq")
-_COMPRESSED = {".gz": gzip.open, ".bz2": bz2.open, ".xz": lzma.open}
-_SAMPLE_BYTES = 1 << 18
 
 _COMMA_DECIMAL = re.compile(r"^[+-]?(\d{1,3}(\.\d{3})+|\d+),\d+([eE][+-]?\d+)?$")
-_DOT_GROUPED = re.compile(r"^[+-]?\d{1,3}(\.\d{3})+$")
-_DOT_DECIMAL = re.compile(r"^[+-]?(\d+\.\d*|\.\d+)([eE][+-]?\d+)?$")
 
 
 @dataclass(frozen=True)
@@ -104,6 +106,9 @@ class IntakeReport:
         Data rows in the table, and rows kept after dropping missing values.
     encoding, delimiter, decimal : str or None
         What was used to read a CSV file (None for Parquet and DataFrames).
+    grouping : str or None
+        The thousands separator of a CSV file (``"."`` or ``","``), None when
+        no number in it is grouped (and for Parquet and DataFrames).
     notes : tuple of Note
         Every decision intake made, in the order it made them.
     dropped_rows : tuple of int
@@ -123,6 +128,7 @@ class IntakeReport:
     notes: tuple[Note, ...] = ()
     dropped_rows: tuple[int, ...] = ()
     set_aside: tuple[str, ...] = ()
+    grouping: str | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -261,20 +267,39 @@ def _refuse_unknown(unknown: dict, valid: tuple[str, ...], function: str) -> Non
                       unknown=tuple(unknown))
 
 
-_READ_OPTIONS = ("encoding",)
+_READ_OPTIONS = ("encoding", "decimal_mark")
 _PREPARE_OPTIONS = ("response", "predictors", "forced", "exclude", "weights", "missing", "keep_identifiers",
-                    "encoding")
+                    "encoding", "decimal_mark")
 
 
-def read_table(source, *, encoding: str | None = None, **unknown) -> tuple[pd.DataFrame, IntakeReport]:
+def _check_decimal_mark(decimal_mark):
+    if decimal_mark is None or decimal_mark in DECIMAL_MARKS:
+        return decimal_mark
+    words = {"point": ".", "dot": ".", "comma": ","}
+    if isinstance(decimal_mark, str) and decimal_mark.strip().lower() in words:
+        return words[decimal_mark.strip().lower()]
+    raise OptionError(f"decimal_mark={decimal_mark!r} is not a decimal mark; use '.' (a point) or ',' (a comma), "
+                      f"or leave it out to decide it from the numbers of the file")
+
+
+def read_table(source, *, encoding: str | None = None, decimal_mark: str | None = None,
+               **unknown) -> tuple[pd.DataFrame, IntakeReport]:
     """Read a CSV file, a Parquet file or a DataFrame into a DataFrame.
 
     CSV files: the delimiter is chosen among comma, semicolon, tab and vertical
     bar as the one giving at least two fields and the most consistent number of
-    fields per line in the first 256 KiB; with a delimiter other than a comma,
-    the decimal mark is a comma when more number-like fields are written
-    ``3,14`` than ``3.14`` (a dot then counts as a thousands separator only if
-    every dotted number is grouped in threes, ``1.234,5``).  The text is read
+    fields per line in the first 256 KiB.  The decimal mark and the thousands
+    grouping are decided from the evidence of the number-like cells of every
+    column there (``7.44`` shows a decimal point, ``2,5`` a decimal comma,
+    ``1.234.567`` or ``1.234,5`` a dot grouping thousands; ``9.192`` could be
+    either), never by a majority: when the evidence disagrees — e.g. ``2,5``
+    beside cells ``9.192`` that would then have to be 9192 with nothing else
+    showing a dot grouping — the file is refused with an example cell of each
+    kind, and ``decimal_mark=`` decides.  Grouped numbers are converted only
+    where every cell of the column groups digits in threes, so ``9.19`` is
+    never read as 919.  The intake note says which decimal mark and grouping
+    were used and what decided them.  A row with fewer fields than the header
+    is refused (naming its line), not read as missing values.  The text is read
     as UTF-8, with or without a byte-order mark (UTF-16 with a byte-order mark
     is also recognised); a file that is not valid UTF-8 is read as Latin-1 and
     a warning note says so.  Column names are stripped of surrounding blanks.
@@ -288,24 +313,30 @@ def read_table(source, *, encoding: str | None = None, **unknown) -> tuple[pd.Da
         and its index a RangeIndex).
     encoding : str, optional
         Text encoding of a CSV file, to override the detection.
+    decimal_mark : {".", ","}, optional
+        The decimal mark of a CSV file, to override the detection; the other
+        mark is then read as grouping thousands where it groups digits in threes.
 
     Returns
     -------
     frame : DataFrame
         The table, index ``RangeIndex``.
     report : IntakeReport
-        ``source``, ``encoding``, ``delimiter``, ``decimal``, ``n_rows_read``
+        ``source``, ``encoding``, ``delimiter``, ``decimal``, ``grouping``, ``n_rows_read``
         (``n_rows_used`` equals it here) and ``notes``.
 
     Raises
     ------
     DataFileError
-        The file does not exist, is empty, has a header but no data rows, or
-        cannot be parsed; pyarrow missing for a Parquet file.
+        The file does not exist, is empty, has a header but no data rows, has
+        a row shorter or longer than the header, writes its numbers with
+        decimal marks that disagree, or cannot be parsed; pyarrow missing for
+        a Parquet file.
     InputError
         Column names repeat; a DataFrame without rows or columns.
     OptionError
-        ``encoding`` is not a known codec, or is given for a DataFrame/Parquet file.
+        ``encoding`` is not a known codec, ``decimal_mark`` not ``"."`` or
+        ``","``, or either is given for a DataFrame/Parquet file.
 
     Examples
     --------
@@ -315,10 +346,12 @@ def read_table(source, *, encoding: str | None = None, **unknown) -> tuple[pd.Da
     ((2, 2), None, 2)
     """
     _refuse_unknown(unknown, _READ_OPTIONS, "read_table")
+    decimal_mark = _check_decimal_mark(decimal_mark)
     if isinstance(source, pd.DataFrame):
-        if encoding is not None:
-            raise OptionError("encoding= applies to CSV files only; the source here is a DataFrame — "
-                              "leave encoding out")
+        for option, value in (("encoding", encoding), ("decimal_mark", decimal_mark)):
+            if value is not None:
+                raise OptionError(f"{option}= applies to CSV files only; the source here is a DataFrame — "
+                                  f"leave {option} out")
         return _read_frame(source)
     if not isinstance(source, (str, os.PathLike)):
         raise InputError(
@@ -335,14 +368,17 @@ def read_table(source, *, encoding: str | None = None, **unknown) -> tuple[pd.Da
         raise DataFileError(f"'{path}' is a folder, not a data file; pass the path of a CSV or Parquet file",
                             path=str(path))
     suffixes = [s.lower() for s in path.suffixes]
-    compression = suffixes[-1] if suffixes and suffixes[-1] in _COMPRESSED else None
+    compression = suffixes[-1] if suffixes and suffixes[-1] in _csvsniff.COMPRESSED else None
     inner = suffixes[-2] if compression and len(suffixes) > 1 else (suffixes[-1] if suffixes else "")
     if inner in _PARQUET_SUFFIXES and compression is None:
         if encoding is not None:
             raise OptionError(f"encoding= applies to CSV files only; '{path.name}' is a Parquet file, which "
                               f"records its own text encoding — leave encoding out")
+        if decimal_mark is not None:
+            raise OptionError(f"decimal_mark= applies to CSV files only; '{path.name}' is a Parquet file, which "
+                              f"stores numbers, not text — leave decimal_mark out")
         return _read_parquet(path)
-    return _read_csv(path, encoding, compression)
+    return _read_csv(path, encoding, compression, decimal_mark)
 
 
 def _read_frame(source: pd.DataFrame):
@@ -391,157 +427,13 @@ def _read_parquet(path: Path):
     return frame, IntakeReport(source=str(path), n_rows_read=n, n_rows_used=n)
 
 
-def _encoding_from_bom(head: bytes) -> str | None:
-    if head.startswith(codecs.BOM_UTF8):
-        return "utf-8-sig"
-    if head.startswith(codecs.BOM_UTF16_LE) or head.startswith(codecs.BOM_UTF16_BE):
-        return "utf-16"
-    return None
-
-
-def _records(text: str, delimiter: str):
-    reader = csv.reader(io.StringIO(text), delimiter=delimiter, skipinitialspace=True)
-    try:
-        return [row for row in reader if any(cell.strip() for cell in row)]
-    except csv.Error:
-        return []
-
-
-def _sniff_delimiter(text: str) -> str:
-    best_key, best = None, ","
-    for delimiter in _DELIMITERS:
-        rows = _records(text, delimiter)
-        if not rows or len(rows[0]) < 2:
-            continue
-        width = len(rows[0])
-        consistent = sum(len(r) == width for r in rows) / len(rows)
-        key = (consistent, width)
-        if best_key is None or key > best_key:
-            best_key, best = key, delimiter
-    return best
-
-
-def _sniff_decimal(rows, delimiter: str):
-    """Return (decimal, thousands, note or None) from the data rows of a sample."""
-    if delimiter == ",":
-        return ".", None, None
-    comma = dot = grouped = 0
-    for row in rows:
-        for cell in row:
-            cell = cell.strip()
-            if _COMMA_DECIMAL.match(cell):
-                comma += 1
-            elif _DOT_GROUPED.match(cell):
-                grouped += 1
-            elif _DOT_DECIMAL.match(cell):
-                dot += 1
-    if comma > dot:
-        thousands = "." if grouped and not dot else None
-        note = None
-        if dot:
-            note = Note(None, "warning",
-                        f"the file mixes decimal marks: {comma} numbers are written with a decimal comma and "
-                        f"{dot} with a decimal point; it was read with the comma, so columns written with a "
-                        f"point may be read as text — make the decimal mark consistent")
-        return ",", thousands, note
-    note = None
-    if comma:
-        note = Note(None, "warning",
-                    f"the file mixes decimal marks: {dot} numbers are written with a decimal point and {comma} "
-                    f"with a decimal comma; it was read with the point, so columns written with a comma may "
-                    f"be read as text — make the decimal mark consistent")
-    return ".", None, note
-
-
-def _read_csv(path: Path, encoding: str | None, compression: str | None):
-    opener = _COMPRESSED.get(compression, open)
-    try:
-        with opener(path, "rb") as handle:
-            head = handle.read(_SAMPLE_BYTES)
-            truncated = bool(handle.read(1))
-    except OSError as err:
-        raise DataFileError(f"cannot open data file '{path}': {err}", path=str(path)) from err
-    empty_message = (f"data file '{path}' is empty: it has no header and no data rows; "
-                     f"check that the right file was exported")
-    if not head.strip():
-        raise DataFileError(empty_message, path=str(path))
-    if head.startswith((b"PK\x03\x04", b"\xd0\xcf\x11\xe0")):
-        raise DataFileError(f"'{path.name}' looks like a spreadsheet workbook, not a text table; save the sheet as "
-                            f"CSV (or Parquet) and read that", path=str(path))
-    if head.startswith(b"PAR1"):
-        raise DataFileError(f"'{path.name}' looks like a Parquet file; give it the suffix .parquet or .pq",
-                            path=str(path))
-    notes: list[Note] = []
-    if encoding is not None:
-        try:
-            codecs.lookup(encoding)
-        except LookupError as err:
-            raise OptionError(f"encoding={encoding!r} is not a text encoding Python knows; use e.g. 'utf-8', "
-                              f"'latin-1' or 'cp1252'") from err
-        chosen = encoding
-    else:
-        chosen = _encoding_from_bom(head) or "utf-8"
-    raw = head
-    if truncated and not chosen.lower().replace("_", "-").startswith("utf-16") and b"\n" in head:
-        raw = head[: head.rindex(b"\n") + 1]  # do not cut a character in two
-    try:
-        sample = raw.decode(chosen)
-    except UnicodeDecodeError:
-        sample = raw.decode("latin-1" if encoding is None else chosen, errors="replace")
-    sample = sample.lstrip("\ufeff")
-    if truncated and "\n" in sample:
-        sample = sample[: sample.rindex("\n")]
-    delimiter = _sniff_delimiter(sample)
-    rows = _records(sample, delimiter)
-    header = [cell.strip() for cell in rows[0]] if rows else []
-    _check_unique_names([name for name in header if name], f"the header of '{path.name}'")
-    unnamed = [i + 1 for i, name in enumerate(header) if not name]
-    if unnamed:
-        notes.append(Note(None, "warning",
-                          f"{_plural(len(unnamed), 'column')} of '{path.name}' (number "
-                          f"{', '.join(map(str, unnamed[:10]))}) have no name in the header; they were named "
-                          f"'Unnamed: <position>' — name them, or exclude them if they are a saved row index"))
-    decimal, thousands, decimal_note = _sniff_decimal(rows[1:], delimiter)
-    if decimal_note is not None:
-        notes.append(decimal_note)
-
-    def parse(text_encoding):
-        return pd.read_csv(path, sep=delimiter, decimal=decimal, thousands=thousands, encoding=text_encoding,
-                           skipinitialspace=True, low_memory=False)
-
-    try:
-        try:
-            frame = parse(chosen)
-        except UnicodeDecodeError as err:
-            if encoding is not None:
-                raise DataFileError(
-                    f"data file '{path}' is not valid {encoding} ({err.reason} at byte {err.start} of a block); "
-                    f"pass the file's real encoding, e.g. encoding='utf-8' or encoding='cp1252'",
-                    path=str(path)) from err
-            frame = parse("latin-1")
-            chosen = "latin-1"
-            notes.append(Note(None, "warning",
-                              f"'{path.name}' is not valid UTF-8, so it was read as Latin-1 (ISO-8859-1), which "
-                              f"accepts any bytes; check that accented names and units (°, µ) look right, and pass "
-                              f"encoding=... with the file's real encoding to be sure"))
-    except pd.errors.EmptyDataError as err:
-        raise DataFileError(empty_message, path=str(path)) from err
-    except pd.errors.ParserError as err:
-        raise DataFileError(
-            f"cannot parse '{path}' as {_DELIMITER_NAMES[delimiter]}-separated text: {err}; check that every "
-            f"line has as many fields as the header (quote text fields that contain the delimiter)",
-            path=str(path)) from err
-    frame.columns = [str(c).strip() for c in frame.columns]
-    if len(frame) == 0:
-        raise DataFileError(
-            f"data file '{path}' has a header ({_plural(frame.shape[1], 'column')}) but no data rows; "
-            f"export the table with its rows", path=str(path))
-    n = len(frame)
-    notes.insert(0, Note(None, "info",
-                         f"read {_plural(n, 'data row')} and {_plural(frame.shape[1], 'column')} from '{path.name}' "
-                         f"({chosen}, {_DELIMITER_NAMES[delimiter]}-separated, decimal mark '{decimal}')"))
-    return frame, IntakeReport(source=str(path), n_rows_read=n, n_rows_used=n, encoding=chosen,
-                               delimiter=delimiter, decimal=decimal, notes=tuple(notes))
+def _read_csv(path: Path, encoding: str | None, compression: str | None, decimal_mark: str | None):
+    reading = _csvsniff.read_csv_file(path, encoding, compression, decimal_mark, _check_unique_names)
+    n = len(reading.frame)
+    notes = tuple(Note(None, kind, message) for kind, message in reading.notes)
+    return reading.frame, IntakeReport(source=str(path), n_rows_read=n, n_rows_used=n, encoding=reading.encoding,
+                                       delimiter=reading.delimiter, decimal=reading.decimal,
+                                       grouping=reading.grouping, notes=notes)
 
 
 # --------------------------------------------------------------------------- roles and checks
@@ -615,8 +507,12 @@ def _numeric_role(series: pd.Series, name: str, role: str) -> np.ndarray:
                      column=name, count=count)
 
 
-def _classify(series: pd.Series, name: str, notes: list[Note]):
-    """('numeric', float array) or ('categorical', object Series); dates and complex numbers raise."""
+def _classify(series: pd.Series, name: str, notes: list[Note], decimal: str | None = None):
+    """('numeric', float array) or ('categorical', object Series); dates and complex numbers raise.
+
+    ``decimal`` is the decimal mark a CSV file was read with: with ``","``, a
+    text value holding a dot is not a number (it would contradict the file).
+    """
     dtype = series.dtype
     if _is_date_like(series):
         raise InputError(f"column '{name}' holds dates or time spans (type {dtype}); convert it to a number "
@@ -639,6 +535,8 @@ def _classify(series: pd.Series, name: str, notes: list[Note]):
         text = pd.Series(counts.index.map(lambda v: str(v).strip()), dtype=object)
         weight = counts.to_numpy()
         numeric = pd.to_numeric(text, errors="coerce").notna().to_numpy()
+        if decimal == ",":
+            numeric = numeric & ~text.str.contains(".", regex=False).to_numpy(dtype=bool)
         comma = text.str.match(_COMMA_DECIMAL.pattern).to_numpy(dtype=bool)
         total = int(weight.sum())
         if numeric.all():
@@ -649,7 +547,8 @@ def _classify(series: pd.Series, name: str, notes: list[Note]):
             notes.append(Note(name, "warning",
                               f"column '{name}' is read as text, but {int(weight[comma].sum())} of its {total} values "
                               f"look like numbers with a decimal comma; it is treated as categorical — save the "
-                              f"file with one decimal mark to use it as a number"))
+                              f"file with one decimal mark, or pass decimal_mark=',' (--decimal-mark ,), to use it "
+                              f"as a number"))
         elif weight[numeric].sum() >= 0.8 * total:
             odd = int(weight[~numeric].sum())
             example = text[~numeric].iloc[0]
@@ -660,17 +559,15 @@ def _classify(series: pd.Series, name: str, notes: list[Note]):
     return "categorical", values
 
 
-def _is_identifier(kind: str, values) -> bool:
-    if kind == "numeric":
-        present = values[~np.isnan(values)]
-        if present.size < IDENTIFIER_MIN_ROWS or not np.all(np.isfinite(present)):
-            return False
-        return bool(np.all(present == np.round(present)) and np.unique(present).size == present.size)
+def _is_text_identifier(values: pd.Series) -> bool:
+    """All non-missing values distinct strings, at least IDENTIFIER_MIN_ROWS of them."""
     present = values[values.notna()]
     if len(present) < IDENTIFIER_MIN_ROWS:
         return False
     if not all(isinstance(v, (str, np.str_)) for v in present):
         return False
+    if 2 * int(pd.to_numeric(present.str.strip(), errors="coerce").notna().sum()) >= len(present):
+        return False  # mostly numbers written as text (a column with a stray value), not labels
     return bool(present.nunique() == len(present))
 
 
@@ -690,67 +587,88 @@ def _categorical(values: pd.Series, name: str, notes: list[Note]) -> pd.Categori
 
 
 def _centred_unit(x: np.ndarray) -> np.ndarray | None:
+    # Scaled by a power of two first (exact), so that tiny (subnormal) or huge values neither
+    # underflow nor overflow in the norm; the unit vector is the same up to round-off.
+    top = np.max(np.abs(x)) if x.size else 0.0
+    if top > 0 and np.isfinite(top):
+        x = np.ldexp(x, -int(np.frexp(top)[1]))
     z = x - x.mean()
     norm = np.linalg.norm(z)
     return None if norm == 0 else z / norm
 
 
 class _Span:
-    """An orthonormal basis of the centred columns kept so far (Gram–Schmidt, re-orthogonalised)."""
+    """An orthonormal basis of the centred columns kept so far (Gram–Schmidt, re-orthogonalised).
 
-    def __init__(self, n: int, capacity: int):
-        self._basis = np.empty((n, max(min(capacity, n), 1)), order="F")
+    Beside the basis ``Q`` it keeps the triangular ``T`` with ``Q = C T``, ``C``
+    the kept columns in the order added, so that a column found in the span,
+    ``v = Q a``, is the combination ``v = C (T a)`` of the kept columns at a
+    cost of O(k²) — no least-squares solve per dropped column.
+    """
+
+    def __init__(self, rows: int, capacity: int):
+        capacity = max(min(capacity, rows), 1)
+        self._basis = np.empty((rows, capacity), order="F")
+        self._t = np.zeros((capacity, capacity))
         self.size = 0
 
-    def leftover(self, z: np.ndarray) -> np.ndarray:
+    def leftover(self, z: np.ndarray):
+        """(the part of ``z`` outside the span, its coefficients on the basis)."""
         basis = self._basis[:, : self.size]
+        coef = np.zeros(self.size)
         for _ in range(2):
-            z = z - basis @ (basis.T @ z)
-        return z
+            step = basis.T @ z
+            z = z - basis @ step
+            coef += step
+        return z, coef
 
-    def add(self, r: np.ndarray) -> None:
-        self._basis[:, self.size] = r / np.linalg.norm(r)
+    def add(self, r: np.ndarray, coef: np.ndarray) -> None:
+        k, norm = self.size, np.linalg.norm(r)
+        self._basis[:, k] = r / norm
+        self._t[:k, k] = -(self._t[:k, :k] @ coef) / norm
+        self._t[k, k] = 1.0 / norm
         self.size += 1
+
+    def combination(self, coef: np.ndarray) -> np.ndarray:
+        """Coefficients on the kept columns of the vector ``Q @ coef``."""
+        return self._t[: self.size, : self.size] @ coef
 
 
 def _format_number(value: float) -> str:
     return f"{value:.4g}"
 
 
-def _describe_combination(name, target, numeric_kept, categorical_kept):
-    """A sentence saying of which kept columns ``target`` is an exact linear combination."""
-    n = target.shape[0]
-    blocks = [np.ones((n, 1))]
-    labels = [None]
-    for other, x in numeric_kept:
-        blocks.append(x[:, None])
-        labels.append(other)
-    for other, codes, width in categorical_kept:
-        dummies = (codes[:, None] == np.arange(1, width + 1)).astype(float)
-        blocks.append(dummies)
-        labels.extend([("block", other)] * width)
-    design = np.column_stack(blocks)
-    coef = np.linalg.lstsq(design, target, rcond=None)[0]
+def _describe_combination(name, target, weights, kept):
+    """A sentence saying of which kept columns ``target`` is an exact linear combination.
+
+    ``weights[i]`` is the coefficient of the centred unit column of ``kept[i]``
+    in that of ``target``; ``kept[i]`` is ``(label, x)`` with ``label`` a
+    numeric column's name or ``("block", categorical name)`` and ``x`` the
+    column (the level indicator for a block).  With ``z = (x − mean)/‖x − mean‖``,
+    ``target = Σ β x + c`` where ``β = w ‖target − mean‖ / ‖x − mean‖``.
+    """
+    centred_norm = np.linalg.norm(target - target.mean())
     scale = np.std(target)
-    involved, terms = [], []
-    for label, b, column in zip(labels, coef, design.T):
-        size = abs(b) * (np.std(column) if label is not None else 1.0)
-        if label is None or size <= 1e-6 * scale:
+    involved, terms, intercept = [], [], target.mean()
+    for (label, x), w in zip(kept, weights):
+        if abs(w) <= 1e-6:
             continue
+        beta = w * centred_norm / np.linalg.norm(x - x.mean())
+        intercept -= beta * x.mean()
         if isinstance(label, tuple):
             if label[1] not in involved:
                 involved.append(label[1])
             continue
         involved.append(label)
-        terms.append((b, label))
+        terms.append((beta, label))
     formula = " ".join(("" if i == 0 and b >= 0 else ("− " if b < 0 else "+ ")) + f"{_format_number(abs(b))}·{lab}"
                        for i, (b, lab) in enumerate(terms))
-    blocks_involved = [c for c in involved if c in {cat for cat, _, _ in categorical_kept}]
+    blocks_involved = [c for c in involved if any(isinstance(lab, tuple) and lab[1] == c for lab, _ in kept)]
     if blocks_involved:
         # The intercept is not identified apart from the level effects; leave it out.
         formula = (formula + " + " if formula else "") + "a value for each level of " + _quoted_list(blocks_involved)
-    elif abs(coef[0]) > 1e-9 * max(scale, abs(target).max()):
-        formula += (" − " if coef[0] < 0 else " + ") + _format_number(abs(coef[0]))
+    elif abs(intercept) > 1e-9 * max(scale, abs(target).max()):
+        formula += (" − " if intercept < 0 else " + ") + _format_number(abs(intercept))
     return (f"'{name}' is an exact linear combination of {_quoted_list(involved)} "
             f"({name} = {formula}, to 4 significant digits)")
 
@@ -777,6 +695,11 @@ def _set_aside_collinear(n, order, kinds, numeric_values, categoricals, forced, 
     R have the same lengths and angles as those of Z, and Householder QR is
     backward stable); the greedy, re-orthogonalised Gram–Schmidt pass in
     column order then runs on R, at a cost independent of n.
+
+    Returns None, without finishing, as soon as the kept columns span every
+    centred column of n rows (n − 1 of them): then the predictors are
+    certainly too many for the rows, and the caller refuses the table at once
+    rather than describe each of the remaining columns as a combination.
     """
     dropped: list[str] = []
     partitions: dict[bytes, str] = {}
@@ -814,36 +737,43 @@ def _set_aside_collinear(n, order, kinds, numeric_values, categoricals, forced, 
         j += 1
     r_factor = np.linalg.qr(z, mode="r")
     span = _Span(r_factor.shape[0], len(owners))
+    full = max(n - 1, 1)  # the centred columns of n rows span at most n − 1 dimensions
+    kept: list[tuple[object, np.ndarray]] = []  # (label, column) of each basis vector, in the order added
 
     j = 0
-    for name, _, width in cat_kept:
+    for name, codes, width in cat_kept:
         in_span = 0
-        for _ in range(width):
-            leftover = span.leftover(r_factor[:, j])
+        for level in range(1, width + 1):
+            leftover, coef = span.leftover(r_factor[:, j])
             j += 1
             if np.linalg.norm(leftover) <= COLLINEARITY_TOLERANCE:
                 in_span += 1
             else:
-                span.add(leftover)
+                span.add(leftover, coef)
+                kept.append((("block", name), (codes == level).astype(float)))
         if in_span:
             notes.append(Note(name, "warning",
                               f"column '{name}' is partly determined by the categorical columns before it: "
                               f"{in_span} of its {width} indicator columns are exact combinations of theirs, so a "
                               f"model holding '{name}' with them is singular"))
-    num_kept: list[tuple[str, np.ndarray]] = []
+    seen: dict[int, list[str]] = {}
     for name in num_order:
-        leftover = span.leftover(r_factor[:, j])
+        if span.size >= full and j < len(owners):
+            return None
+        leftover, coef = span.leftover(r_factor[:, j])
         j += 1
         x = numeric_values[name]
+        digest = hash(x.tobytes())
         if np.linalg.norm(leftover) > COLLINEARITY_TOLERANCE:
-            span.add(leftover)
-            num_kept.append((name, x))
+            span.add(leftover, coef)
+            kept.append((name, x))
+            seen.setdefault(digest, []).append(name)
             continue
-        twin = next((other for other, kept in num_kept if np.array_equal(kept, x)), None)
+        twin = next((other for other in seen.get(digest, ()) if np.array_equal(numeric_values[other], x)), None)
         if twin is not None:
             sentence = f"'{name}' is identical to '{twin}'"
         else:
-            sentence = _describe_combination(name, x, num_kept, cat_kept)
+            sentence = _describe_combination(name, x, span.combination(coef), kept)
         if name in forced:
             raise InputError(f"forced column {sentence}; "
                              f"a model cannot hold it with the columns it depends on — force fewer columns or "
@@ -928,8 +858,50 @@ def _assign_roles(columns, *, response, weights, given, forced, exclude, keep_id
     return pool
 
 
+_KEEP_HINT = "list it in keep_identifiers= (--keep-id-columns at the command line)"
+
+
+def _set_aside_identifiers(pool, kinds, values, response, y, keep_identifiers, forced, notes, set_aside_column):
+    """Set aside the row identifiers of ``pool`` (see :mod:`selectkit._identifiers`); return their names."""
+    identifier_names = []
+    for name in list(pool):
+        if kinds[name] == "categorical":
+            if not _is_text_identifier(values[name]):
+                continue
+            reasons, relation = "its non-missing values are all distinct text values", ""
+        else:
+            if not distinct_integers(values[name], IDENTIFIER_MIN_ROWS):
+                continue
+            others = ((c, values[c]) for c in pool if c != name and kinds[c] == "numeric")
+            evidence = identifier_evidence(name, values[name], response=response, y=y, others=others)
+            reasons, relation = evidence.reasons(), evidence.relation()
+            if not evidence.is_identifier:
+                if evidence.step is not None:
+                    why = (f"{reasons}, but {relation}, so it is a measurement, not an identifier, and is kept "
+                           f"as a predictor")
+                else:
+                    why = (f"its {evidence.n_values} values are distinct integers, but nothing else marks it as an "
+                           f"identifier (no id-like name, and its values do not step evenly like a row number), so "
+                           f"it is kept as a predictor")
+                notes.append(Note(name, "info", f"column '{name}': {why}; to leave it out, pass exclude=['{name}'] "
+                                                f"(--leave-out at the command line)"))
+                continue
+        if name in keep_identifiers or name in forced:
+            notes.append(Note(name, "warning", f"column '{name}' looks like a row identifier ({reasons}) but is "
+                                               f"kept as a predictor, as asked"))
+            continue
+        set_aside_column(name)
+        identifier_names.append(name)
+        caution = (f"; note that {relation} — if the rows are in time or position order, that order may matter"
+                   if relation else "")
+        notes.append(Note(name, "dropped", f"column '{name}' looks like a row identifier ({reasons}) and was "
+                                           f"excluded{caution}; to use it as a predictor, {_KEEP_HINT}"))
+    return identifier_names
+
+
 def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), weights: str | None = None,
-            missing: str = "refuse", keep_identifiers=(), encoding: str | None = None, **unknown) -> Dataset:
+            missing: str = "refuse", keep_identifiers=(), encoding: str | None = None,
+            decimal_mark: str | None = None, **unknown) -> Dataset:
     """Give each column a role, check the values, and return a :class:`Dataset`.
 
     Steps, in order (each decision is a :class:`Note` in ``Dataset.report``):
@@ -1030,7 +1002,7 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
     exclude = _name_list(exclude, "exclude")
     keep_identifiers = _name_list(keep_identifiers, "keep_identifiers")
 
-    table, read_report = read_table(source, encoding=encoding)
+    table, read_report = read_table(source, encoding=encoding, decimal_mark=decimal_mark)
     notes: list[Note] = list(read_report.notes)
     pool = _assign_roles(list(table.columns), response=response, weights=weights, given=given, forced=forced,
                          exclude=exclude, keep_identifiers=keep_identifiers, delimiter=read_report.delimiter)
@@ -1041,7 +1013,7 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
     kinds: dict[str, str] = {}
     values: dict[str, object] = {}
     for name in pool:
-        kinds[name], values[name] = _classify(table[name], name, notes)
+        kinds[name], values[name] = _classify(table[name], name, notes, decimal=read_report.decimal)
 
     set_aside: list[str] = []
 
@@ -1061,20 +1033,8 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
             notes.append(Note(name, "dropped", f"column '{name}' was dropped: all {n_read} of its values are missing"))
 
     # identifier-like columns
-    identifier_names = []
-    for name in list(pool):
-        if _is_identifier(kinds[name], values[name]):
-            what = "integers" if kinds[name] == "numeric" else "text values"
-            if name in keep_identifiers or name in forced:
-                notes.append(Note(name, "warning", f"column '{name}' looks like a row identifier (its values are "
-                                                   f"all distinct {what}) but is kept as a predictor, as asked"))
-                continue
-            set_aside_column(name)
-            identifier_names.append(name)
-            notes.append(Note(name, "dropped",
-                              f"column '{name}' looks like a row identifier (its non-missing values are all distinct "
-                              f"{what}) and was excluded; to use it as a predictor, list it in keep_identifiers= "
-                              "(--keep-id-columns at the command line)"))
+    identifier_names = _set_aside_identifiers(pool, kinds, values, response, y_all, keep_identifiers, forced, notes,
+                                              set_aside_column)
 
     # infinities
     in_use = [(response, y_all)] + [(c, values[c]) for c in pool if kinds[c] == "numeric"]
@@ -1137,6 +1097,17 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
                 notes.append(Note(name, "dropped", f"column '{name}' was dropped: it has a single level "
                                                    f"({cat.categories[0]!r}) in all {n} rows used"))
                 continue
+            n_levels = len(cat.categories)
+            if n_levels >= MANY_LEVELS and n_levels - 1 > MANY_LEVELS_ROW_SHARE * n:
+                sentence = (f"column '{name}' has {n_levels} levels in {n} rows ({n / n_levels:.1f} rows per level "
+                            f"on average); as a predictor it would take {n_levels - 1} indicator columns, more than "
+                            f"a quarter of the rows")
+                if name not in keep_identifiers and name not in forced:
+                    set_aside_column(name)
+                    notes.append(Note(name, "dropped", f"{sentence}, so it was set aside as a label; to use it "
+                                                       f"anyway, {_KEEP_HINT}, or merge its rare levels first"))
+                    continue
+                notes.append(Note(name, "warning", f"{sentence}; it is kept as a predictor, as asked"))
             level_counts = pd.Series(cat.codes).value_counts()
             singles = [cat.categories[code] for code in sorted(level_counts[level_counts == 1].index)]
             if singles:
@@ -1155,7 +1126,8 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
     width_before = sum(1 for c in pool if kinds[c] == "numeric") + sum(
         len(categoricals[c].categories) - 1 for c in pool if kinds[c] == "categorical")
     pool_before = list(pool)
-    for name in _set_aside_collinear(n, pool, kinds, numeric_values, categoricals, forced, notes):
+    collinear = _set_aside_collinear(n, pool, kinds, numeric_values, categoricals, forced, notes)
+    for name in collinear or ():  # None: the columns already span every direction, too many for the rows
         set_aside_column(name)
 
     if not pool:
@@ -1165,7 +1137,7 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
     numeric = tuple(c for c in pool if kinds[c] == "numeric")
     categorical = tuple(c for c in pool if kinds[c] == "categorical")
     width = len(numeric) + sum(len(categoricals[c].categories) - 1 for c in categorical)
-    if n < width + 2:
+    if collinear is None or n < width + 2:
         width = width_before
     try:
         check_enough_rows(n, width, what=f"the {_plural(len(pool_before), 'predictor')}")

@@ -72,11 +72,23 @@ def test_semicolon_file_with_decimal_comma(tmp_path):
 
 
 def test_semicolon_file_with_grouped_thousands(tmp_path):
-    text = "yield_kg_m2;plants_per_bay\n41,2;1.234\n44,0;2.345\n40,5;1.100\n"
+    # '980' beside '1.234': whole numbers below 1000 carry no dot, so the dots group thousands
+    text = "yield_kg_m2;plants_per_bay\n41,2;1.234\n44,0;2.345\n40,5;1.100\n39,9;980\n"
     frame, report = read_table(write_text(tmp_path / "bays.csv", text))
-    assert report.decimal == ","
+    assert (report.decimal, report.grouping) == (",", ".")
+    assert frame["plants_per_bay"].tolist() == [1234, 2345, 1100, 980]
+    assert frame["yield_kg_m2"].tolist() == [41.2, 44.0, 40.5, 39.9]
+    assert "decimal mark ',', thousands grouped with '.'" in report.notes[0].message
+
+
+def test_grouping_without_evidence_is_refused_and_decimal_mark_decides(tmp_path):
+    # every count is above 1000: '1.234' could be 1.234 as well as 1234, and nothing shows a dot grouping
+    path = write_text(tmp_path / "bays.csv", "yield_kg_m2;plants_per_bay\n41,2;1.234\n44,0;2.345\n40,5;1.100\n")
+    with pytest.raises(DataFileError, match="'41,2' .*decimal comma.*'1.234' .*1234.*decimal_mark"):
+        read_table(path)
+    frame, report = read_table(path, decimal_mark=",")
+    assert (report.decimal, report.grouping) == (",", ".")
     assert frame["plants_per_bay"].tolist() == [1234, 2345, 1100]
-    assert frame["yield_kg_m2"].tolist() == [41.2, 44.0, 40.5]
 
 
 def test_semicolon_file_with_decimal_point(tmp_path):
@@ -483,11 +495,16 @@ def test_numbers_written_with_a_stray_word_are_noted():
     assert "irrigation_l" in data.categorical
     warnings = notes_about(data, "irrigation_l", "warning")
     assert warnings and "'n/a'" in warnings[0].message and "2 values" in warnings[0].message
-    # with as many levels as rows it cannot be fitted, and the error says which column is to blame
+    # with nearly as many levels as rows it is set aside as a label before anything is built from it ...
     frame["irrigation_l"] = np.round(np.linspace(2, 4, 40), 3).astype(str)
     frame.loc[[4, 8], "irrigation_l"] = "n/a"
+    data = prepare(frame, response="yield_kg_m2")
+    assert "irrigation_l" not in data.predictors and "irrigation_l" in data.report.set_aside
+    dropped = notes_about(data, "irrigation_l", "dropped")[0].message
+    assert "39 levels in 40 rows" in dropped and "keep_identifiers" in dropped
+    # ... and when it is kept anyway, it cannot be fitted and the error says which column is to blame
     with pytest.raises(InputError, match=r"40 rows.*'irrigation_l' \(39 levels\)") as info:
-        prepare(frame, response="yield_kg_m2")
+        prepare(frame, response="yield_kg_m2", keep_identifiers=["irrigation_l"])
     assert info.value.column == "irrigation_l"
 
 
