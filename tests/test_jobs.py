@@ -338,6 +338,17 @@ def test_settings_for_what_auto_may_run_are_accepted(job_folder):
     assert spec.methods == ("auto",) and dict(spec.method_settings["exhaustive"]) == {"max_size": 3}
 
 
+def test_job_file_takes_the_candidate_screens(job_folder):
+    text = FULL_JOB.replace("[forms]", '[forms]\nprefer = ["light"]\nkeep_twins = true\nall_forms = true', 1)
+    options = parse_job(text, base=job_folder).search_options()
+    assert options["prefer"] == ["light"] and options["twin_limit"] is None and options["vif_limit"] is None
+    assert options["curvature_test"] is False
+    defaults = parse_job(FULL_JOB, base=job_folder).search_options()
+    assert defaults["twin_limit"] == 0.999 and defaults["curvature_test"] is True and defaults["decimal_mark"] is None
+    with pytest.raises(JobFileError, match="decimal_mark"):
+        parse_job(FULL_JOB.replace("[data]", '[data]\ndecimal_mark = ";"', 1), base=job_folder)
+
+
 def test_job_file_never_executes_code(job_folder):
     # TOML has no code; a value that looks like code is only text (and here a bad column name is fine to parse).
     text = FULL_JOB.replace('response = "yield_kg_m2"', 'response = "__import__(\'os\').system(\'touch pwned\')"')

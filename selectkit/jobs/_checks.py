@@ -114,7 +114,9 @@ def parse_duration(value, where="time_budget") -> float:
     """Seconds from a number of seconds or a text such as ``"8h"``, ``"90m"``, ``"1h30m"``.
 
     Units: ``d`` days, ``h`` hours, ``m`` minutes, ``s`` seconds; parts add up
-    (``"1h 30m"`` is 5400 s).  The result must be positive.
+    (``"1h 30m"`` is 5400 s); a plain number, or a text holding only one
+    (``"60"``, as the command line passes it), is seconds.  The result must
+    be positive.
 
     Examples
     --------
@@ -123,6 +125,8 @@ def parse_duration(value, where="time_budget") -> float:
     >>> parse_duration(90)
     90.0
     """
+    if isinstance(value, str) and re.fullmatch(r"\s*\d+(?:\.\d+)?\s*", value):
+        value = float(value)  # plain seconds written as text, as the command line passes them
     if isinstance(value, str):
         text = value.strip().lower().replace(" ", "")
         parts = _DURATION_PART.findall(text)

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import json
 import signal
+import sqlite3
 import threading
 import time
 from dataclasses import dataclass, field, replace
@@ -25,7 +26,7 @@ from .._io import atomic_write_text
 from ..errors import JobFileError, OptionError, SelectkitError, StoreError
 from .progress import JobProgress, format_seconds, make_reporter
 from .spec import JobSpec, load_job
-from .store import STORE_NAME, RunStore, StoreLock, data_fingerprint, find_store
+from .store import STORE_NAME, RunStore, StoreLock, damaged_store_error, data_fingerprint, find_store, move_aside
 
 __all__ = ["JobOutcome", "JobProgress", "run_job", "resume_job", "RUN_SETTINGS", "SUMMARY_NAME", "format_seconds"]
 
@@ -60,6 +61,10 @@ class JobOutcome:
         Wall-clock time of this run.
     result : selectkit.api.Result or None
         The ranked, checked result (not part of equality).
+    notes : tuple of str
+        What a person should know about this run: stored units that failed
+        their checksum and were run again, settings that changed on resume,
+        stages the time budget cut.
     """
 
     name: str
@@ -74,6 +79,7 @@ class JobOutcome:
     not_exact: tuple[str, ...]
     seconds: float
     result: Any = field(default=None, repr=False)
+    notes: tuple[str, ...] = ()
 
     def render(self) -> str:
         """A few readable lines for a person."""
@@ -88,6 +94,8 @@ class JobOutcome:
         ]
         if self.not_exact:
             lines.append(f"  not proven exact: {', '.join(self.not_exact)}")
+        for note in self.notes:
+            lines.append(f"  note: {note}")
         for label, path in self.outputs.items():
             lines.append(f"  {label}: {path}")
         if not self.complete:
@@ -168,7 +176,9 @@ def run_job(spec_or_path, *, resume: bool = True, progress=None) -> JobOutcome:
     SIGINT and SIGTERM stop the job after the units in hand (a second SIGINT
     stops at once); the searches are pooled from what finished and the
     shortlist is written, marked incomplete.  So is it when the time budget
-    runs out.  The budget is checked between work units.
+    runs out.  The budget starts when the units begin (reading and preparing
+    the data do not use it); it is checked between work units (every stored
+    unit is whole) and then by the bootstrap resamples and the honest error.
     """
     if isinstance(spec_or_path, JobSpec):
         spec = spec_or_path
@@ -182,6 +192,11 @@ def run_job(spec_or_path, *, resume: bool = True, progress=None) -> JobOutcome:
 
 #: Settings a resumed job may change (they do not change what is found).
 RUN_SETTINGS = ("workers", "backend", "scheduler", "time_budget")
+
+#: [ranking] settings used only after the units (ranking, bootstrap, honest error): a job may change them
+#: on resume, since the stored units do not depend on them.
+RANKING_ONLY = ("ranking.convention", "ranking.shortlist_size", "ranking.keep_within", "ranking.resamples",
+                "ranking.honest_folds")
 
 
 def resume_job(folder_or_store, *, progress=None, **run_settings) -> JobOutcome:
@@ -235,8 +250,11 @@ def _with_run_settings(spec: JobSpec, run_settings: dict) -> JobSpec:
 
 def _spec_from_store(folder_or_store) -> JobSpec:
     path = find_store(folder_or_store)
-    with RunStore.open_read_only(path) as store:
-        recorded = store.get("spec")
+    try:
+        with RunStore.open_read_only(path) as store:
+            recorded = store.get("spec")
+    except sqlite3.DatabaseError as err:
+        raise damaged_store_error(path, err) from err
     if recorded is None:
         raise StoreError(f"the run store {str(path)!r} holds no job settings (it was never started); "
                          f"run the job file with 'selectkit job run JOB.toml'")
@@ -248,60 +266,95 @@ def _run(spec: JobSpec, *, resume: bool, progress, engine) -> JobOutcome:
     started = time.monotonic()
     folder = Path(spec.output)
     store_path = folder / STORE_NAME
+    # Every setting that can be judged before any work is judged here, before the lock and the store.
     if not spec.table.is_file():
         raise JobFileError(f"the data file {str(spec.table)!r} of job {spec.name!r} does not exist; "
                            f"put it back or fix [data] table in the job file")
+    _check_output(folder)
     if spec.backend == "dask":
         _check_dask(spec.scheduler)
     lock = StoreLock(store_path).acquire()
     try:
-        store = RunStore.create_or_open(folder)
+        store = _open_store(folder, fresh=not resume)
         try:
             return _run_locked(spec, store, resume=resume, progress=progress, engine=engine, started=started)
+        except sqlite3.DatabaseError as err:  # a page SQLite cannot read, met while running
+            raise damaged_store_error(store.path, err) from err
         finally:
             store.close()
     finally:
         lock.release()
 
 
-def _check_dask(scheduler: str | None, timeout: float = 10.0) -> None:
-    """Refuse early, in one line, when the Dask cluster cannot be used."""
+def _open_store(folder: Path, *, fresh: bool) -> RunStore:
+    """Open the store; starting afresh, a damaged one is moved aside (kept, renamed) and a new one made."""
+    store = None
     try:
-        import distributed
-    except ImportError as err:
-        raise OptionError("backend 'dask' needs the dask extra; install it with: pip install 'selectkit[dask]'") from err
-    if scheduler is None:
+        store = RunStore.create_or_open(folder)
+        if fresh:
+            store.about()  # reads the settings: fails on a damaged store before anything is cleared
+            store.unit_counts()
+        return store
+    except (StoreError, sqlite3.DatabaseError) as err:
+        damaged = isinstance(err, sqlite3.DatabaseError) or "damaged" in str(err) or "not a usable" in str(err)
+        if not (fresh and damaged):
+            if isinstance(err, sqlite3.DatabaseError):
+                raise damaged_store_error(folder / STORE_NAME, err) from err
+            raise
+    if store is not None:
         try:
-            distributed.get_client()
-        except ValueError as err:
-            raise OptionError("backend 'dask' needs the address of a scheduler: set [run] scheduler = "
-                              "\"tcp://HOST:8786\" (no Dask client runs in this process)") from err
-        return
+            store.close()
+        except sqlite3.Error:  # pragma: no cover - the connection of a damaged store may not close cleanly
+            pass
+    move_aside(folder / STORE_NAME)
+    return RunStore.create_or_open(folder)
+
+
+def _check_output(folder: Path) -> None:
+    from .. import api
+
     try:
-        client = distributed.Client(scheduler, timeout=timeout)
-    except (OSError, TimeoutError) as err:
-        raise OptionError(f"cannot reach the Dask scheduler at {scheduler!r} within {timeout:.0f} s ({err}); "
-                          f"check the address and that the scheduler runs") from err
-    client.close()
+        api.check_output_folder(folder)
+    except OptionError as err:
+        raise JobFileError(f"[run] output: {err}") from err
+
+
+def _check_dask(scheduler: str | None, timeout: float = 10.0) -> None:
+    """Refuse early, in one line, when the Dask cluster cannot be used (no extra, no client, no scheduler
+    reachable within ``timeout`` seconds)."""
+    from .. import api
+
+    api.check_scheduler(scheduler, timeout=timeout)
 
 
 def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> JobOutcome:
+    from .._budget import Deadline
+
     fingerprint = data_fingerprint(spec.table)
     recorded = store.get("spec")
     if recorded is not None and not resume:
         store.clear()
         recorded = None
+    notes: list[str] = []
     if recorded is not None:
-        _check_same_job(spec, store, fingerprint)
+        notes += _check_same_job(spec, store, fingerprint)
 
     try:
         setup = engine.prepare(spec)
     except OptionError as err:
         where = spec.source or spec.name
-        raise JobFileError(f"job {str(where)!r}: {err}") from err
+        message = f"job {str(where)!r}: {err}"
+        store.set_many({"state": "failed", "stopped_by": f"a setting was refused before any work: {err}"})
+        store.log(f"run refused before any work: {err}; fix the setting and run the job again", level="error")
+        raise JobFileError(message) from err
     keys = engine.unit_keys(setup)
-    done = store.finished_units() if recorded is not None else {}
-    done = {k: v for k, v in done.items() if k in set(keys)}
+    planned = set(keys)
+    done, damaged = store.read_units() if recorded is not None else ({}, [])
+    done = {k: v for k, v in done.items() if k in planned}
+    if damaged:
+        notes.append(_damaged_note(damaged, "re-run in this run"))
+        store.log(f"{len(damaged)} stored unit(s) failed their checksum and are run again: {', '.join(damaged)}",
+                  level="warning")
 
     store.set_many({
         "spec": spec.to_dict(),
@@ -316,13 +369,15 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
     })
     store.log(f"run {store.get('runs')} started: {len(done)} of {len(keys)} units already finished"
               + (f"; time budget {format_seconds(spec.time_budget)}" if spec.time_budget else ""))
+    for note in notes:
+        store.log(note)
 
-    stop = _StopFlag(spec.time_budget, started)
+    # The budget starts with the units: reading and preparing the data do not use it.
+    deadline = Deadline.start(spec.time_budget) if spec.time_budget is not None else None
+    stop = _StopFlag(deadline)
     reporter = make_reporter(progress, spec.name, total=len(keys), initial=len(done),
                               initial_models=store.unit_counts()[1], started=started)
     last = [time.monotonic()]
-
-    planned = set(keys)
 
     def on_unit(key, result):
         if key not in planned:  # the runner and the searches disagree on unit keys: never store it
@@ -351,51 +406,91 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
                     pooling_error, founds = err, []
     except BaseException as err:
         reporter.close()
-        if isinstance(err, (KeyboardInterrupt, SystemExit)):
-            store.set_many({"state": "interrupted", "stopped_by": f"stopped at once ({type(err).__name__})"})
-            store.log("run stopped at once; the finished units are kept", level="warning")
-        else:
-            store.set_many({"state": "failed", "stopped_by": f"{type(err).__name__}: {err}"})
-            store.log(f"run failed: {type(err).__name__}: {err}", level="error")
+        _record_failure(store, err)
         raise
     reporter.close()
 
+    # Verify what the store now holds (the units of this run were just written): a unit whose stored
+    # bytes fail their checksum is marked damaged, so that the next resume runs it again.
+    spoiled = store.verify_units()
+    if spoiled:
+        notes.append(_damaged_note(spoiled, "to be re-run by the next resume"))
+        store.log(f"{len(spoiled)} stored unit(s) failed their checksum after they were stored: "
+                  f"{', '.join(spoiled)}", level="warning")
     units_done = store.unit_counts()[0]
-    complete = set(keys) <= store.finished_keys()
+    complete = planned <= store.finished_keys()
     stopped_by = "completed" if complete else (stop.reason or "stopped before every unit finished")
-    store.record_pooled(founds)
-    not_exact = tuple(dict.fromkeys(str(f.method) for f in founds if not getattr(f, "exact", False)))
-    if pooling_error is not None:
-        result, outputs = None, {}
-        not_exact = tuple(str(run.name) for run in getattr(setup, "runs", ()))
-        stopped_by = (f"{stopped_by}; the searches could not pool the finished units "
-                      f"({type(pooling_error).__name__}: {pooling_error}), so no shortlist was written")
-        store.log(f"pooling the finished units failed: {type(pooling_error).__name__}: {pooling_error}",
-                  level="warning")
-    elif any(len(f) for f in founds):
-        result = engine.finish(setup, founds, **run_options)
-        outputs = engine.write(result, store.path.parent)
-        store.record_shortlist(engine.shortlist_rows(result))
-    else:
-        # Stopped before any model was scored: nothing to rank; the summary says so.
-        result, outputs = None, {}
-        stopped_by = f"{stopped_by}; no model was scored yet, so no shortlist was written"
+    try:
+        store.record_pooled(founds)
+        not_exact = tuple(dict.fromkeys(str(f.method) for f in founds if not getattr(f, "exact", False)))
+        if pooling_error is not None:
+            result, outputs = None, {}
+            not_exact = tuple(str(run.name) for run in getattr(setup, "runs", ()))
+            stopped_by = (f"{stopped_by}; the searches could not pool the finished units "
+                          f"({type(pooling_error).__name__}: {pooling_error}), so no shortlist was written")
+            store.log(f"pooling the finished units failed: {type(pooling_error).__name__}: {pooling_error}",
+                      level="warning")
+        elif any(len(f) for f in founds):
+            result = engine.finish(setup, founds, deadline=deadline, **run_options)
+            outputs = engine.write(result, store.path.parent)
+            store.record_shortlist(engine.shortlist_rows(result))
+            cut = _budget_notes(result)
+            if cut:
+                notes += cut
+                if complete:  # every unit finished, but a later stage did not: a resume finishes it
+                    complete = False
+                    stopped_by = f"{deadline.describe()} reached after the units, during the ranking stages"
+        else:
+            # Stopped before any model was scored: nothing to rank; the summary says so.
+            result, outputs = None, {}
+            stopped_by = f"{stopped_by}; no model was scored yet, so no shortlist was written"
+    except BaseException as err:
+        _record_failure(store, err, after_units=True)
+        raise
     models = int(sum(int(getattr(f, "evaluated", 0)) for f in founds))
     seconds = time.monotonic() - started
     outcome = JobOutcome(
         name=spec.name, store=store.path, outputs={k: Path(v) for k, v in outputs.items()}, complete=complete,
         units_done=units_done, units_total=len(keys), units_resumed=len(done), models_evaluated=models,
-        stopped_by=stopped_by, not_exact=not_exact, seconds=seconds, result=result,
+        stopped_by=stopped_by, not_exact=not_exact, seconds=seconds, result=result, notes=tuple(notes),
     )
     summary_path = store.path.parent / SUMMARY_NAME
     atomic_write_text(summary_path, json.dumps(_summary(outcome, spec), indent=2) + "\n")
     outcome = replace(outcome, outputs={**outcome.outputs, "run summary": summary_path})
     store.set_many({"state": "complete" if complete else "incomplete", "stopped_by": stopped_by,
-                    "models_evaluated": models, "not_exact": list(not_exact),
+                    "models_evaluated": models, "not_exact": list(not_exact), "notes": list(notes),
                     "outputs": {k: str(v) for k, v in outcome.outputs.items()}, "run_ended_at": time.time()})
     store.log(f"run ended ({stopped_by}): {units_done} of {len(keys)} units, {models:,} models evaluated, "
               f"{format_seconds(seconds)}")
     return outcome
+
+
+def _record_failure(store: RunStore, err: BaseException, *, after_units: bool = False) -> None:
+    """Record in the store how a run ended with an error (never leave it looking 'interrupted')."""
+    if isinstance(err, sqlite3.DatabaseError):
+        return  # the store itself is damaged: nothing can be recorded in it
+    try:
+        if isinstance(err, (KeyboardInterrupt, SystemExit)):
+            store.set_many({"state": "interrupted", "stopped_by": f"stopped at once ({type(err).__name__})"})
+            store.log("run stopped at once; the finished units are kept", level="warning")
+            return
+        stage = " after every unit had finished (the units are kept; fix the cause and resume)" if after_units else ""
+        store.set_many({"state": "failed", "stopped_by": f"{type(err).__name__}: {err}"})
+        store.log(f"run failed{stage}: {type(err).__name__}: {err}", level="error")
+    except sqlite3.DatabaseError:  # pragma: no cover - the store broke while recording the failure
+        pass
+
+
+def _damaged_note(keys, what: str) -> str:
+    shown = ", ".join(keys[:5]) + (f" and {len(keys) - 5} more" if len(keys) > 5 else "")
+    return (f"{len(keys)} stored unit(s) failed their checksum (their stored bytes changed) and are {what}: "
+            f"{shown}")
+
+
+def _budget_notes(result) -> list[str]:
+    """The notes of a result that say the time budget cut a stage (bootstrap, honest error)."""
+    ranking = getattr(result, "ranking", None)
+    return [n for n in getattr(ranking, "notes", ()) if "time budget" in n and "search " not in n[:8]]
 
 
 def _summary(outcome: JobOutcome, spec: JobSpec) -> dict:
@@ -414,7 +509,9 @@ def _summary(outcome: JobOutcome, spec: JobSpec) -> dict:
     }
 
 
-def _check_same_job(spec: JobSpec, store: RunStore, fingerprint: dict) -> None:
+def _check_same_job(spec: JobSpec, store: RunStore, fingerprint: dict) -> list[str]:
+    """Refuse to resume when the data or a setting the stored units depend on changed; return notes on the
+    settings that changed but may (those used only after the units, or any when no unit had finished)."""
     recorded_data = store.get("data") or {}
     if recorded_data.get("sha256") != fingerprint["sha256"] or recorded_data.get("size") != fingerprint["size"]:
         raise StoreError(
@@ -424,16 +521,42 @@ def _check_same_job(spec: JobSpec, store: RunStore, fingerprint: dict) -> None:
             f"or resume=False)",
             path=str(spec.table),
         )
-    if store.get("spec_fingerprint") != spec.fingerprint():
-        then = JobSpec.from_dict(store.get("spec")).result_settings()
-        now = spec.result_settings()
-        changed = [f"[{k.split('.')[0]}] {k.split('.')[1]}: {then.get(k)!r} -> {now.get(k)!r}"
-                   for k in now if then.get(k) != now.get(k)]
+    if store.get("spec_fingerprint") == spec.fingerprint():
+        return []
+    then_spec = JobSpec.from_dict(store.get("spec"))
+    then, now = then_spec.result_settings(), spec.result_settings()
+    changed = [k for k in now if then.get(k) != now.get(k)]
+
+    def show(keys):
+        return "; ".join(f"[{k.split('.')[0]}] {k.split('.')[1]}: {then.get(k)!r} -> {now.get(k)!r}" for k in keys)
+
+    if store.unit_counts()[0] == 0:
+        return [f"settings changed before any unit had finished, so the new ones are used: {show(changed)}"]
+    binding = [k for k in changed if _changes_units(k, then_spec, spec)]
+    if binding:
         raise StoreError(
             f"the job's settings changed since the run store {str(store.path)!r} was made "
-            f"({'; '.join(changed) or 'settings differ'}); use another output folder, or start afresh "
-            f"(selectkit job run --fresh, or resume=False)"
+            f"({show(binding) or 'settings differ'}); the stored units depend on "
+            f"{'it' if len(binding) == 1 else 'them'}: put the old value back, use another output folder, or "
+            f"start afresh (selectkit job run --fresh, or resume=False)"
         )
+    return [f"settings used only after the units changed, so the stored units are kept: {show(changed)}"]
+
+
+def _changes_units(dotted: str, then: JobSpec, now: JobSpec) -> bool:
+    """Whether a changed setting changes what the work units compute (so stored units cannot be reused)."""
+    if dotted in RANKING_ONLY:
+        return False
+    methods = set(then.methods) | set(now.methods)
+    if dotted == "ranking.folds":
+        return "crossval" in methods  # otherwise the folds only score the pooled models
+    if dotted in ("ranking.criterion", "ranking.aim"):
+        from ..searches._adapters import stepwise_criterion
+
+        steered = methods & {"forward", "backward", "both", "screen", "auto"}
+        return bool(steered) and (stepwise_criterion(then.criterion, then.aim)
+                                  != stepwise_criterion(now.criterion, now.aim))
+    return True
 
 
 def _count_models(result) -> int | None:
@@ -455,11 +578,10 @@ def _count_models(result) -> int | None:
 
 # --------------------------------------------------------------------------- stopping
 class _StopFlag:
-    """``should_stop`` for run_methods: a time budget and the signals received."""
+    """``should_stop`` for run_methods: the run's deadline (from when the units began) and the signals received."""
 
-    def __init__(self, budget: float | None, started: float):
-        self.budget = budget
-        self.started = started
+    def __init__(self, deadline):
+        self.deadline = deadline
         self.requested = False
         self.forced = False
         self.reason = ""
@@ -470,8 +592,8 @@ class _StopFlag:
             self.reason = reason
 
     def __call__(self) -> bool:
-        if not self.requested and self.budget is not None and time.monotonic() - self.started >= self.budget:
-            self.request(f"time budget of {format_seconds(self.budget)} reached")
+        if not self.requested and self.deadline is not None and self.deadline.expired():
+            self.request(f"{self.deadline.describe()} reached")
         return self.requested
 
 

@@ -107,6 +107,7 @@ _SCHEMA: dict[str, dict[str, tuple[Callable, Any]]] = {
         "incomplete_rows": (_one_of(("refuse", "drop")), "refuse"),
         "keep_id_columns": (_is_names, ()),
         "time_ordered": (_is_flag, False),
+        "decimal_mark": (_one_of((".", ",")), None),
     },
     "forms": {
         "offer": (_is_forms, None),
@@ -114,6 +115,9 @@ _SCHEMA: dict[str, dict[str, tuple[Callable, Any]]] = {
         "shifts": (_is_shifts, ()),
         "interactions": (_is_interactions_or_flag, ()),
         "response_form": (_is_response_form, None),
+        "prefer": (_is_names, ()),
+        "keep_twins": (_is_flag, False),
+        "all_forms": (_is_flag, False),
     },
     "search": {
         "methods": (_is_method_list, ("auto",)),
@@ -187,6 +191,8 @@ class JobSpec:
         [data] ``"refuse"`` rows with missing values (listing them) or ``"drop"`` them.
     time_ordered : bool
         [data] Rows are in time order.
+    decimal_mark : str or None
+        [data] ``"."`` or ``","`` when the file's numbers leave it in doubt (None: decided from the file).
     offer : tuple of str or None
         [forms] Forms of each numeric predictor (None: the library's default).
     fractional_polynomials : bool
@@ -197,6 +203,12 @@ class JobSpec:
         [forms] ``True`` for every pairwise product, or pairs written ``"a*b"``.
     response_form : str or None
         [forms] ``"log"``, ``"sqrt"`` or ``"boxcox:LAMBDA"``.
+    prefer : tuple of str
+        [forms] Variables to keep when they nearly duplicate another or sit in a nearly collinear group.
+    keep_twins : bool
+        [forms] Keep near-duplicate variables and collinear groups whole (no variable set aside).
+    all_forms : bool
+        [forms] Offer every curved form of every predictor, not only of those that show curvature.
     methods : tuple of str
         [search]
     exact_limit : int
@@ -223,7 +235,8 @@ class JobSpec:
     scheduler : str or None
         [run] Dask scheduler address (backend ``"dask"``).
     time_budget : float or None
-        [run] Seconds of wall-clock time for one run (a resume gets the budget again).
+        [run] Seconds of wall-clock time for one run, counted from when the units begin
+        (a resume gets the budget again).
     output : Path
         [run] Folder for the run store and the result files.
     """
@@ -239,11 +252,15 @@ class JobSpec:
     incomplete_rows: str = "refuse"
     keep_id_columns: tuple[str, ...] = ()
     time_ordered: bool = False
+    decimal_mark: str | None = None
     offer: tuple[str, ...] | None = None
     fractional_polynomials: bool = False
     shifts: tuple = ()
     interactions: Any = ()
     response_form: str | None = None
+    prefer: tuple[str, ...] = ()
+    keep_twins: bool = False
+    all_forms: bool = False
     methods: tuple[str, ...] = ("auto",)
     exact_limit: int = 40
     method_settings: Mapping[str, Mapping[str, Any]] = field(default_factory=lambda: MappingProxyType({}))
@@ -355,11 +372,16 @@ class JobSpec:
             "weights": self.row_weights,
             "missing": self.incomplete_rows,
             "keep_identifiers": list(self.keep_id_columns),
+            "decimal_mark": self.decimal_mark,
             "forms": None if self.offer is None else list(self.offer),
             "fractional_polynomials": self.fractional_polynomials,
             "shifts": dict(self.shifts),
             "interactions": interactions,
             "response_transform": response_transform,
+            "prefer": list(self.prefer),
+            "twin_limit": None if self.keep_twins else 0.999,
+            "vif_limit": None if self.keep_twins else 1000.0,
+            "curvature_test": not self.all_forms,
             "methods": list(self.methods),
             "method_options": {m: dict(s) for m, s in self.method_settings.items()},
             "exact_limit": self.exact_limit,

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 from ..errors import JobFileError
@@ -49,10 +48,10 @@ def starter_job(table_path, *, response=None) -> str:
                      if response else 'response = ""   # fill in: the column to explain')
     columns_text = "\n".join(f"#   {_one_line(c)}" for c in columns)
     return f"""\
-# selectkit job file for {table_path.name} (TOML; see docs/overnight-jobs.md).
-# Run it with:     selectkit job run {table_path.stem}.toml
-# Watch it with:   selectkit job status {table_path.stem}-results
-# Resume it with:  selectkit job resume {table_path.stem}-results
+# selectkit job file for {_one_line(table_path.name)} (TOML; see docs/overnight-jobs.md).
+# Run it with:     selectkit job run {_one_line(table_path.stem)}.toml
+# Watch it with:   selectkit job status {_one_line(table_path.stem)}-results
+# Resume it with:  selectkit job resume {_one_line(table_path.stem)}-results
 # Columns found in the table:
 {columns_text}
 
@@ -94,13 +93,41 @@ output = {_toml_text(table_path.stem + "-results")}
 """
 
 
+#: TOML's short escapes (TOML 1.0, "Basic strings"); every other control character is written \uXXXX.
+_TOML_SHORT = {'"': '\\"', "\\": "\\\\", "\b": "\\b", "\t": "\\t", "\n": "\\n", "\f": "\\f", "\r": "\\r"}
+
+
+def _is_control(char: str) -> bool:
+    """TOML allows neither U+0000-U+001F nor U+007F raw inside a basic string or a comment."""
+    return ord(char) < 0x20 or ord(char) == 0x7F
+
+
 def _toml_text(text: str) -> str:
-    """A TOML basic string (JSON's escapes are TOML's)."""
-    return json.dumps(str(text), ensure_ascii=False)
+    """``text`` as a TOML basic string, escaped so that a TOML reader gives back exactly ``text``.
+
+    Quotes and backslashes are escaped, as are ``\\b \\t \\n \\f \\r``; other control
+    characters (U+0000-U+001F, U+007F) become ``\\uXXXX`` (TOML 1.0, section
+    "String"). A name holding a newline therefore stays one value and never
+    becomes a live line of the file.
+
+    Raises
+    ------
+    JobFileError
+        When ``text`` holds bytes that are not valid text (a file name that is not
+        UTF-8): TOML can hold only Unicode scalar values.
+    """
+    text = str(text)
+    if any(0xD800 <= ord(char) <= 0xDFFF for char in text):
+        raise JobFileError(f"the name {ascii(text)} is not valid UTF-8 text, "
+                           "so a job file cannot hold it; rename the file or column")
+    parts = [_TOML_SHORT.get(char) or (f"\\u{ord(char):04X}" if _is_control(char) else char) for char in text]
+    return '"' + "".join(parts) + '"'
 
 
 def _one_line(text: str) -> str:
-    return " ".join(str(text).split())
+    """``text`` for a TOML comment: control characters (not allowed there) shown as escapes."""
+    return "".join(f"\\u{ord(char):04X}" if _is_control(char) or 0xD800 <= ord(char) <= 0xDFFF else char
+                   for char in str(text))
 
 
 def _example_pair(predictors) -> str:

@@ -2,12 +2,13 @@
 
 from __future__ import annotations
 
+import sqlite3
 import time
 from dataclasses import dataclass
 from pathlib import Path
 
 from .progress import format_seconds
-from .store import RunStore, find_store, is_running
+from .store import RunStore, damaged_store_error, find_store, is_running
 
 __all__ = ["StoreStatus", "store_status"]
 
@@ -122,6 +123,13 @@ def store_status(folder_or_store, *, log_lines: int = 5, shortlist_rows: int = 5
         When there is no readable store there.
     """
     path = find_store(folder_or_store)
+    try:
+        return _read_status(path, log_lines=log_lines, shortlist_rows=shortlist_rows)
+    except sqlite3.DatabaseError as err:  # a damaged page: one line saying what can be done
+        raise damaged_store_error(path, err) from err
+
+
+def _read_status(path, *, log_lines: int, shortlist_rows: int) -> StoreStatus:
     running = is_running(path)
     with RunStore.open_read_only(path) as store:
         about = store.about()

@@ -8,6 +8,12 @@ computing.  A lock file beside the store (``fcntl.flock``; released by the
 operating system when the process dies) keeps a second process from running
 the same store at once.
 
+Each unit's stored bytes carry a SHA-256 checksum (of the unit's key and its
+pickled result), checked whenever units are read back: a unit whose bytes no
+longer match is marked ``damaged`` and run again by the next resume instead of
+being trusted.  SQLite's own errors (a damaged page) are reported as one line
+that says what can be recovered and how (:func:`damaged_store_error`).
+
 Results are stored with :mod:`pickle`: resume only stores you made yourself.
 """
 
@@ -26,7 +32,8 @@ from types import MappingProxyType
 
 from ..errors import StoreBusyError, StoreError
 
-__all__ = ["RunStore", "StoreLock", "STORE_NAME", "data_fingerprint", "find_store", "is_running"]
+__all__ = ["RunStore", "StoreLock", "STORE_NAME", "data_fingerprint", "find_store", "is_running",
+           "unit_checksum", "damaged_store_error", "move_aside"]
 
 STORE_NAME = "run-store.sqlite"
 _LOCK_SUFFIX = ".lock"
@@ -42,7 +49,8 @@ CREATE TABLE IF NOT EXISTS units (
     result BLOB,
     models INTEGER,
     seconds REAL,
-    finished_at REAL
+    finished_at REAL,
+    checksum TEXT
 );
 CREATE TABLE IF NOT EXISTS pooled (
     position INTEGER PRIMARY KEY,
@@ -84,6 +92,36 @@ def dumps(value) -> bytes:
     pickler.dispatch_table = {**copyreg.dispatch_table, MappingProxyType: _reduce_mappingproxy}
     pickler.dump(value)
     return buffer.getvalue()
+
+
+def unit_checksum(key: str, blob: bytes) -> str:
+    """SHA-256 (hex) of a unit's key and its stored bytes: what :meth:`RunStore.read_units` checks."""
+    digest = hashlib.sha256(key.encode("utf-8"))
+    digest.update(b"\0")
+    digest.update(bytes(blob))
+    return digest.hexdigest()
+
+
+def damaged_store_error(path, err: BaseException) -> StoreError:
+    """The one-line error for a run store SQLite cannot read (a damaged page, a truncated file)."""
+    return StoreError(
+        f"the run store {str(path)!r} is damaged ({type(err).__name__}: {err}); its finished units cannot be "
+        f"trusted, but the job file and the data are untouched: start afresh with 'selectkit job run JOB.toml "
+        f"--fresh' (the damaged store is moved aside, not deleted), or restore the folder from a backup and resume",
+        path=str(path),
+    )
+
+
+def move_aside(store_path) -> Path:
+    """Rename a damaged store (and its ``-wal``/``-shm`` files) to ``<name>.damaged-<time>``; return the new path."""
+    store_path = Path(store_path)
+    stamp = time.strftime("%Y%m%d-%H%M%S")
+    target = store_path.with_name(f"{store_path.name}.damaged-{stamp}")
+    for suffix in ("", "-wal", "-shm"):
+        source = Path(str(store_path) + suffix)
+        if source.exists():
+            os.replace(source, Path(str(target) + suffix))
+    return target
 
 
 def data_fingerprint(path) -> dict:
@@ -248,10 +286,18 @@ class RunStore:
             db.execute("PRAGMA synchronous=NORMAL")
             db.executescript("BEGIN IMMEDIATE;" + _SCHEMA + "COMMIT;")  # all tables appear at once
         except sqlite3.DatabaseError as err:
-            raise StoreError(f"{str(path)!r} is not a usable run store ({err}); move it away or choose another "
-                             f"output folder") from err
+            raise StoreError(f"{str(path)!r} is not a usable run store ({err}); start afresh with 'selectkit job "
+                             f"run JOB.toml --fresh' (it is moved aside, not deleted), or choose another output "
+                             f"folder") from err
         store = cls(path, db, read_only=False)
-        version = store.get("schema_version")
+        try:
+            columns = {row[1] for row in db.execute("PRAGMA table_info(units)")}
+            if "checksum" not in columns:  # a store made before units carried checksums: units left unchecked
+                db.execute("ALTER TABLE units ADD COLUMN checksum TEXT")
+            version = store.get("schema_version")
+        except sqlite3.DatabaseError as err:
+            db.close()
+            raise damaged_store_error(path, err) from err
         if version is None:
             store.set_many({"schema_version": SCHEMA_VERSION, "created_at": time.time()})
         elif int(version) != SCHEMA_VERSION:
@@ -267,7 +313,9 @@ class RunStore:
             db = sqlite3.connect(f"{path.as_uri()}?mode=ro", uri=True, timeout=30.0, isolation_level=None)
             tables = {name for (name,) in db.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
         except sqlite3.DatabaseError as err:
-            raise StoreError(f"{str(path)!r} is not a readable run store ({err})") from err
+            raise StoreError(f"{str(path)!r} is not a readable run store ({err}); if it is a damaged one, start "
+                             f"afresh with 'selectkit job run JOB.toml --fresh' (it is moved aside, not deleted)"
+                             ) from err
         missing = set(_TABLES) - tables
         if missing:
             db.close()
@@ -305,22 +353,56 @@ class RunStore:
 
     # ------------------------------------------------------------------ units
     def record_unit(self, key: str, result, *, models: int | None = None, seconds: float | None = None) -> None:
-        """Commit one finished unit in its own transaction."""
+        """Commit one finished unit, with the checksum of its stored bytes, in its own transaction."""
         blob = dumps(result)
         with self._transaction():
             position = self._db.execute("SELECT count(*) FROM units").fetchone()[0]
             self._db.execute(
-                "INSERT INTO units (key, position, state, result, models, seconds, finished_at) "
-                "VALUES (?, ?, 'done', ?, ?, ?, ?) ON CONFLICT(key) DO UPDATE SET result = excluded.result, "
+                "INSERT INTO units (key, position, state, result, models, seconds, finished_at, checksum) "
+                "VALUES (?, ?, 'done', ?, ?, ?, ?, ?) ON CONFLICT(key) DO UPDATE SET result = excluded.result, "
                 "state = 'done', models = excluded.models, seconds = excluded.seconds, "
-                "finished_at = excluded.finished_at",
-                (key, position, blob, models, seconds, time.time()),
+                "finished_at = excluded.finished_at, checksum = excluded.checksum",
+                (key, position, blob, models, seconds, time.time(), unit_checksum(key, blob)),
             )
 
+    def read_units(self) -> tuple[dict, list[str]]:
+        """``({key: result}, damaged keys)``: the finished units whose bytes pass their checksum, in the order
+        they finished, and the keys of those that do not (or cannot be unpickled).
+
+        A read-write store marks the damaged units ``damaged``: they no longer
+        count as finished, so a resume runs them again.
+        """
+        good, damaged = {}, []
+        rows = self._db.execute("SELECT key, result, checksum FROM units WHERE state = 'done' ORDER BY position")
+        for key, blob, checksum in rows.fetchall():
+            if blob is None or (checksum is not None and unit_checksum(key, blob) != checksum):
+                damaged.append(key)
+                continue
+            try:
+                good[key] = pickle.loads(blob)
+            except Exception:  # bytes of an old unchecked store that no longer unpickle
+                damaged.append(key)
+        if damaged and not self.read_only:
+            with self._transaction():
+                self._db.executemany("UPDATE units SET state = 'damaged' WHERE key = ?", [(k,) for k in damaged])
+        return good, damaged
+
+    def verify_units(self) -> list[str]:
+        """Keys of the finished units whose stored bytes fail their checksum (marked ``damaged`` when writable)."""
+        damaged = []
+        for key, blob, checksum in self._db.execute(
+                "SELECT key, result, checksum FROM units WHERE state = 'done' ORDER BY position").fetchall():
+            if blob is None or (checksum is not None and unit_checksum(key, blob) != checksum):
+                damaged.append(key)
+        if damaged and not self.read_only:
+            with self._transaction():
+                self._db.executemany("UPDATE units SET state = 'damaged' WHERE key = ?", [(k,) for k in damaged])
+        return damaged
+
     def finished_units(self) -> dict:
-        """``{key: result}`` of every finished unit, in the order they finished."""
-        rows = self._db.execute("SELECT key, result FROM units WHERE state = 'done' ORDER BY position")
-        return {key: pickle.loads(blob) for key, blob in rows}
+        """``{key: result}`` of every finished unit that passes its checksum, in the order they finished
+        (see :meth:`read_units` for the damaged ones)."""
+        return self.read_units()[0]
 
     def finished_keys(self) -> set:
         """Keys of the finished units."""

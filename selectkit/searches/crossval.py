@@ -645,6 +645,9 @@ class NestedResult:
     procedure : str
         What was repeated inside each outer fold.
     caution : str
+    notes : tuple of str
+        What cut the estimate short, when something did (the run's time
+        budget: how many outer folds finished; the estimate rests on those).
     """
 
     error: float
@@ -655,6 +658,7 @@ class NestedResult:
     procedure: str
     caution: str = ("The error of a selected model, measured on the data that selected it, is optimistic; "
                     "this nested estimate repeats the whole selection inside each outer training part.")
+    notes: tuple = ()
 
 
 def _outer_split(candidates, moments, test_rows):
@@ -744,10 +748,14 @@ def nested_cv_error(candidates, *, method: str = "exhaustive", outer_folds=5, in
 def _procedure_unit(payload):
     """One outer fold of :func:`procedure_cv_error` (module level so that it pickles)."""
     from .. import criteria as _criteria
+    from .._budget import BudgetSpent
 
     candidates, moments, runner, test_rows, criterion, convention, repeat, index = payload
     sub, train, test = _outer_split(candidates, moments, test_rows)
-    found = runner(sub)
+    try:
+        found = runner(sub)
+    except BudgetSpent:
+        return None  # the run's time budget cut this fold's searches: left out, and said so
     if len(found) == 0:
         raise SearchError(f"outer fold {index + 1}: the searches kept no model on its {sub.y.shape[0]} training rows")
     # Every model of one Found shares the response transform: its log-Jacobian cannot change which is best.
@@ -766,7 +774,7 @@ def _procedure_unit(payload):
 
 def procedure_cv_error(candidates, runner, *, criterion="bic", convention="selectkit", folds=5, seed=0,
                        moments=None, naive_error=float("nan"), procedure="the searches and ranking",
-                       n_jobs=1, backend="loky", scheduler=None) -> NestedResult:
+                       n_jobs=1, backend="loky", scheduler=None, deadline=None) -> NestedResult | None:
     """Honest prediction error of a whole search-and-rank procedure by outer cross-validation.
 
     For each outer fold the *entire* procedure — ``runner`` (every search,
@@ -791,10 +799,15 @@ def procedure_cv_error(candidates, runner, *, criterion="bic", convention="selec
         model chosen on all rows).
     procedure : str
         Words for what was repeated, for the report.
+    deadline : selectkit._budget.Deadline, optional
+        The run's time budget: no outer fold starts once it has run out, and a
+        fold whose searches it cut (``runner`` raises ``BudgetSpent``) is left
+        out.  The estimate then rests on the folds that finished and ``notes``
+        says how many; None when none finished.
 
     Returns
     -------
-    NestedResult
+    NestedResult or None
         ``error`` (mean held-out MSE over outer folds), its standard error,
         ``naive_error``, ``optimism`` = error − naive_error, and the per-fold table.
     """
@@ -809,11 +822,21 @@ def procedure_cv_error(candidates, runner, *, criterion="bic", convention="selec
     outer = make_folds(folds, int(candidates.y.shape[0]), seed)
     payloads = [(candidates, moments, runner, fold.test_rows, criterion, convention, fold.repeat, fold.index)
                 for fold in outer]
-    rows = run_units(_procedure_unit, payloads, n_jobs=n_jobs, backend=backend, scheduler=scheduler)
+    rows = run_units(_procedure_unit, payloads, n_jobs=n_jobs, backend=backend, scheduler=scheduler,
+                     should_stop=deadline)
+    rows = [row for row in rows if row is not None]
+    notes = ()
+    if len(rows) < len(outer):
+        if not rows:
+            return None
+        notes = (f"The {deadline.describe()} ran out during the honest error: {len(rows)} of {len(outer)} outer "
+                 f"folds finished; the estimate rests on those {len(rows)}.",)
     table = pd.DataFrame.from_records(rows, columns=["repeat", "fold", "n_test", "k", "terms", "test_mse"])
     errors = table["test_mse"].to_numpy()
     error = float(errors.mean())
     return NestedResult(error=error, standard_error=_se_by_repeat(errors, table["repeat"].to_numpy()),
                         naive_error=float(naive_error), optimism=error - float(naive_error), folds=table,
                         procedure=(f"{procedure}, best model by {criterion.upper()}, repeated inside each of "
-                                   f"{_as_scheme(folds).describe()} outer folds"))
+                                   f"{_as_scheme(folds).describe()} outer folds"
+                                   + (f" ({len(rows)} of them finished within the time budget)" if notes else "")),
+                        notes=notes)

@@ -47,8 +47,8 @@ from ..moments import Moments, moments_of
 from ..parallel import WorkUnit, run_units
 from ._found import Found
 
-__all__ = ["SCREEN_METHODS", "ScreenResult", "ScreenOptions", "screen_candidates", "plan", "run_unit", "merge",
-           "screen_then_search"]
+__all__ = ["SCREEN_METHODS", "ScreenResult", "ScreenOptions", "screen_candidates", "settle", "plan", "run_unit",
+           "merge", "screen_then_search"]
 
 SCREEN_METHODS = ("lasso", "enet", "forward")
 #: The exact search works on 64-bit masks of terms.
@@ -70,6 +70,10 @@ class ScreenResult:
     limit : int
     entry : tuple of float
         Per term, the step of the path at which it entered (``inf``: never).
+    cut_short : str
+        Empty when the path ran to its end; else what the time budget cut
+        (``"the lasso path was cut by the time budget of 30 s after 12 of 100
+        penalties"``): the ranking then rests on the part of the path computed.
     """
 
     kept: tuple[int, ...]
@@ -77,6 +81,7 @@ class ScreenResult:
     method: str
     limit: int
     entry: tuple[float, ...] = ()
+    cut_short: str = ""
 
     def table(self, candidates) -> pd.DataFrame:
         """One row per term: ``term, family, kept, entry_step, reason``."""
@@ -126,8 +131,15 @@ def _standardised(candidates, forced_cols):
     return Z, yc, usable
 
 
-def _path_entry(candidates, free, forced, method, l1_ratio, n_alphas):
-    """Entry step of each free term along the lasso/elastic-net path (inf when it never enters)."""
+def _path_entry(candidates, free, forced, method, l1_ratio, n_alphas, deadline=None):
+    """Entry step of each free term along the lasso/elastic-net path (inf when it never enters).
+
+    Returns ``(entry, steps computed, steps planned)``.  With a ``deadline``
+    the path is computed a few penalties at a time, each part starting from
+    the coefficients of the last (the warm start the one-call path uses too),
+    and stops at the first part that ends after the deadline (the first part,
+    the largest penalties, always runs).
+    """
     from sklearn.linear_model import enet_path, lasso_path
 
     terms = candidates.terms
@@ -136,7 +148,7 @@ def _path_entry(candidates, free, forced, method, l1_ratio, n_alphas):
     cols = sorted({c for i in free for c in terms[i].columns if usable[c]})
     entry = np.full(len(terms), np.inf)
     if not cols or not np.any(yc):
-        return entry, 0
+        return entry, 0, 0
     # The penalty grid is built here (as scikit-learn does by default) so that every scikit-learn version
     # gets the same explicit grid: from the smallest penalty that zeroes every coefficient down to 1/1000 of it.
     ratio = 1.0 if method == "lasso" else float(l1_ratio)
@@ -150,38 +162,71 @@ def _path_entry(candidates, free, forced, method, l1_ratio, n_alphas):
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ConvergenceWarning)
-        if method == "lasso":
-            _, coefs, _ = lasso_path(Z[:, cols], yc, alphas=alphas, max_iter=5000)
+        if deadline is None:
+            if method == "lasso":
+                _, coefs, _ = lasso_path(Z[:, cols], yc, alphas=alphas, max_iter=5000)
+            else:
+                _, coefs, _ = enet_path(Z[:, cols], yc, l1_ratio=ratio, alphas=alphas, max_iter=5000)
         else:
-            _, coefs, _ = enet_path(Z[:, cols], yc, l1_ratio=ratio, alphas=alphas, max_iter=5000)
+            coefs = _path_in_parts(Z[:, cols], yc, alphas, ratio, deadline)
     nonzero = np.abs(coefs) > 0
     first = np.where(nonzero.any(axis=1), nonzero.argmax(axis=1), np.inf)
     by_column = dict(zip(cols, first))
     for i in free:
         steps = [by_column.get(c, np.inf) for c in terms[i].columns]
         entry[i] = min(steps)  # a block enters when any of its columns does
-    return entry, coefs.shape[1]
+    return entry, coefs.shape[1], len(alphas)
 
 
-def _forward_entry(candidates, moments, free, forced, forbidden, hierarchy, limit):
+#: Penalties of the path computed between two looks at the clock.
+_PENALTIES_PER_PART = 5
+
+
+def _path_in_parts(Z, yc, alphas, ratio, deadline):
+    """The coordinate-descent path over ``alphas``, a few penalties at a time, until ``deadline``.
+
+    The Gram matrix (when it pays, n > p, as scikit-learn's ``"auto"`` decides)
+    and ``Z'y`` are computed once; each part starts from the last coefficients,
+    which is the warm start of the one-call path.  Returns the coefficients of
+    the penalties computed (columns), possibly fewer than ``alphas``.
+    """
+    from sklearn.linear_model import enet_path
+
+    n, p = Z.shape
+    gram = Z.T @ Z if n > p else False
+    xy = Z.T @ yc
+    parts, coef = [], None
+    for start in range(0, len(alphas), _PENALTIES_PER_PART):
+        if start and deadline.expired():  # the first part always runs: it ranks the earliest entries
+            break
+        _, part, _ = enet_path(Z, yc, l1_ratio=ratio, alphas=alphas[start:start + _PENALTIES_PER_PART],
+                               precompute=gram, Xy=xy, coef_init=coef, max_iter=5000, check_input=False)
+        coef = np.ascontiguousarray(part[:, -1])
+        parts.append(part)
+    return np.concatenate(parts, axis=1) if parts else np.zeros((p, 0))
+
+
+def _forward_entry(candidates, moments, free, forced, forbidden, hierarchy, limit, deadline=None):
     from .stepwise import stepwise_search
 
     terms = candidates.terms
     found = stepwise_search(
         candidates, moments, direction="forward", criterion="f_test", alpha_enter=0.9999, alpha_remove=0.9999,
         swaps=False, forced=tuple(terms[i].name for i in forced), forbidden=tuple(terms[i].name for i in forbidden),
-        hierarchy=hierarchy, max_steps=limit,
+        hierarchy=hierarchy, max_steps=limit, time_budget=None if deadline is None else deadline.search_budget(),
     )
     entry = np.full(len(terms), np.inf)
     lookup = {t.name: i for i, t in enumerate(terms)}
     for step in found.details["path"][1:]:
         entry[lookup[step["term"]]] = step["step"]
-    return entry, len(found.details["path"]) - 1
+    steps = len(found.details["path"]) - 1
+    cut = deadline is not None and "time budget" in str(found.stopped_by)
+    return entry, steps, (max(limit, steps + 1) if cut else steps)
 
 
 def screen_candidates(candidates, *, limit: int = EXACT_LIMIT, method: str = "lasso", l1_ratio: float = 0.5,
                       forced: Sequence[str] = (), forbidden: Sequence[str] = (), hierarchy: bool = True,
-                      n_alphas: int = 100, moments=None) -> ScreenResult:
+                      n_alphas: int = 100, moments=None, deadline=None) -> ScreenResult:
     """Keep at most ``limit`` terms, ranked by a lasso/elastic-net or forward path, family-aware.
 
     Parameters
@@ -204,6 +249,11 @@ def screen_candidates(candidates, *, limit: int = EXACT_LIMIT, method: str = "la
         Keep a term only with a form of every family it ``requires``.
     moments : Moments, optional
         Used by ``method="forward"``.
+    deadline : selectkit._budget.Deadline, optional
+        The run's time budget.  The path is then computed in parts and stops
+        at the first part that ends after the deadline; terms are ranked by the
+        part computed and ``ScreenResult.cut_short`` says what was cut.  Without
+        a deadline the path runs to its end, unchanged.
 
     Returns
     -------
@@ -225,16 +275,24 @@ def screen_candidates(candidates, *, limit: int = EXACT_LIMIT, method: str = "la
     if method == "forward":
         if moments is None:
             moments = moments_of(candidates)
-        entry, steps = _forward_entry(candidates, moments, free, forced_set, forbidden_set, hierarchy, limit)
+        entry, steps, planned = _forward_entry(candidates, moments, free, forced_set, forbidden_set, hierarchy,
+                                               limit, deadline)
         path_name = "the forward stepwise path"
     else:
-        entry, steps = _path_entry(candidates, free, sorted(forced_set), method, l1_ratio, n_alphas)
+        entry, steps, planned = _path_entry(candidates, free, sorted(forced_set), method, l1_ratio, n_alphas,
+                                            deadline)
         path_name = f"the {'lasso' if method == 'lasso' else 'elastic-net'} path"
+    cut_short = ""
+    if steps < planned:
+        what = "steps" if method == "forward" else "penalties"
+        cut_short = (f"{path_name} was cut by the {deadline.describe()} after {steps} of {planned} {what}; "
+                     f"terms are ranked by the part computed")
+        path_name = f"{path_name} (cut by the time budget)"
     for i in forced_set:
         entry[i] = -1.0
     kept, reasons = _keep_by_family(candidates, entry, forced_set, forbidden_set, limit, hierarchy, path_name, steps)
     return ScreenResult(kept=tuple(sorted(kept)), set_aside=tuple(sorted(reasons.items())), method=method,
-                        limit=limit, entry=tuple(float(e) for e in entry))
+                        limit=limit, entry=tuple(float(e) for e in entry), cut_short=cut_short)
 
 
 def _keep_by_family(candidates, entry, forced, forbidden, limit, hierarchy, path_name, steps):
@@ -312,6 +370,12 @@ class ScreenOptions:
     forced, forbidden, hierarchy
         Passed to every stage.
     polish : bool, default True
+    deadline : selectkit._budget.Deadline or None
+        The run's one time budget, checked by the screening path, the exact
+        search and the polish (set by :mod:`selectkit.api`, not by users).
+    screening : ScreenResult or None
+        The screening, once done by :func:`settle`; plan and merge then use it
+        instead of screening again.
     """
 
     method: str = "lasso"
@@ -325,8 +389,16 @@ class ScreenOptions:
     hierarchy: bool = True
     time_budget: float | None = None
     polish: bool = True
+    deadline: object = None
+    screening: object = None
 
     def __post_init__(self):
+        from .._budget import Deadline
+
+        if self.deadline is not None and not isinstance(self.deadline, Deadline):
+            raise OptionError("deadline is set by selectkit from the run's time_budget; give time_budget instead")
+        if self.screening is not None and not isinstance(self.screening, ScreenResult):
+            raise OptionError("screening is set by selectkit once it has screened; it cannot be given")
         if self.method not in SCREEN_METHODS:
             raise OptionError(f"unknown screening method {self.method!r}; choose one of {', '.join(SCREEN_METHODS)}")
         _check_limit(self.limit)
@@ -361,14 +433,29 @@ def _exact_stage(candidates, moments, options: ScreenOptions):
 
     if moments is None:
         moments = moments_of(candidates)
-    screening = _screen_for(candidates, moments, options)
+    screening = options.screening if options.screening is not None else _screen_for(candidates, moments, options)
     sub, sub_moments = _sub_problem(candidates, moments, screening.kept)
+    time_budget = options.time_budget if options.deadline is None else options.deadline.search_budget()
     exact_options = exhaustive.ExhaustiveOptions(
         n_best_per_size=options.n_best_per_size, max_size=options.max_size,
         forced=tuple(n for n in options.forced if n in {t.name for t in sub.terms}),
-        hierarchy=options.hierarchy, time_budget=options.time_budget,
+        hierarchy=options.hierarchy, time_budget=time_budget,
     )
     return screening, sub, sub_moments, exact_options
+
+
+def settle(candidates, moments, options: ScreenOptions) -> ScreenOptions:
+    """Screen once and return options that hold the screening, for :func:`plan` and :func:`merge`.
+
+    Screening is deterministic without a time budget; with one, where the
+    clock cuts the path decides what is kept, so it must be done once and
+    shared by the plan and the merge of the same run.
+    """
+    if options.screening is not None:
+        return options
+    if moments is None:
+        moments = moments_of(candidates)
+    return replace(options, screening=_screen_for(candidates, moments, options))
 
 
 def plan(candidates, moments, options: ScreenOptions) -> list[WorkUnit]:
@@ -388,7 +475,7 @@ def _screen_for(candidates, moments, options):
                             method="none", limit=options.limit)
     return screen_candidates(candidates, limit=options.limit, method=options.method, l1_ratio=options.l1_ratio,
                              forced=options.forced, forbidden=options.forbidden, hierarchy=options.hierarchy,
-                             moments=moments)
+                             moments=moments, deadline=options.deadline)
 
 
 def run_unit(unit: WorkUnit):
@@ -426,7 +513,8 @@ def merge(candidates, moments, options: ScreenOptions, results) -> list[Found]:
         method=local.method, subsets=tuple(tuple(kept[i] for i in s) for s in local.subsets), rss=local.rss,
         k=local.k, n=local.n, evaluated=local.evaluated, pruned=local.pruned, singular=local.singular,
         exact=local.exact and not screened,
-        stopped_by=local.stopped_by + ("; exact only over the screened terms" if screened else ""),
+        stopped_by=local.stopped_by + ("; exact only over the screened terms" if screened else "")
+        + (f"; {screening.cut_short}" if screening.cut_short else ""),
         details=MappingProxyType(dict(local.details, stage=stage, screening=screening)),
     )
     out = [exact_found]
@@ -437,6 +525,7 @@ def merge(candidates, moments, options: ScreenOptions, results) -> list[Found]:
             candidates, moments, direction="both", criterion=options.criterion,
             start=tuple(names[i] for i in start), forced=options.forced, forbidden=options.forbidden,
             hierarchy=options.hierarchy,
+            time_budget=None if options.deadline is None else options.deadline.search_budget(),
         )
         out.append(replace(polished, details=MappingProxyType(dict(
             polished.details, stage="stepwise polish (both directions, all terms) from the exact search's winner: "
@@ -475,11 +564,17 @@ def screen_then_search(candidates, *, limit: int = EXACT_LIMIT, method: str = "l
         set; details["screening"] is the ScreenResult), stepwise polish]``;
         ``details["stage"]`` of each says what ran.
     """
+    from .._budget import Deadline
+
+    deadline = Deadline.start(time_budget) if time_budget is not None else None
     options = ScreenOptions(method=method, limit=limit, l1_ratio=l1_ratio, criterion=criterion,
                             n_best_per_size=n_best_per_size, max_size=max_size, forced=tuple(forced),
-                            forbidden=tuple(forbidden), hierarchy=hierarchy, time_budget=time_budget, polish=polish)
+                            forbidden=tuple(forbidden), hierarchy=hierarchy, time_budget=time_budget, polish=polish,
+                            deadline=deadline)
     if moments is None:
         moments = moments_of(candidates)
+    options = settle(candidates, moments, options)
     units = plan(candidates, moments, options)
-    results = run_units(run_unit, units, n_jobs=n_jobs, backend=backend, scheduler=scheduler)
-    return merge(candidates, moments, options, results)
+    results = run_units(run_unit, units, n_jobs=n_jobs, backend=backend, scheduler=scheduler,
+                        should_stop=deadline)
+    return merge(candidates, moments, options, results + [None] * (len(units) - len(results)))
