@@ -88,6 +88,10 @@ class SearchSetup:
         The searches, in the order they run.
     settings : dict
         The options as given (plain values), for reports and run stores.
+    deadline : selectkit._budget.Deadline or None
+        The run's one time budget (``time_budget``), made when
+        :func:`prepare_search` started; :func:`run_methods` and :func:`finish`
+        use it unless given another.
     """
 
     dataset: Any
@@ -95,22 +99,19 @@ class SearchSetup:
     moments: Any
     runs: tuple
     settings: Mapping
+    deadline: Any = None
 
     @cached_property
     def planned(self) -> tuple:
         """Each run with its work units and their store keys ``"<method>/<unit key>"``.
 
         Planned once per setup (planning may screen or seed bounds), then
-        shared by :func:`unit_keys` and :func:`run_methods`.
+        shared by :func:`unit_keys` and :func:`run_methods`.  With a time
+        budget each search gets what is left of it when it is planned, and a
+        method with a ``settle`` step (screening) does it once here, so that its
+        plan and its merge see the same screening.
         """
-        planned = []
-        for run in self.runs:
-            units = run.module.plan(self.candidates, self.moments, run.options)
-            keys = [f"{run.name}/{u.key}" for u in units]
-            if len(set(keys)) != len(keys):
-                raise SelectkitError(f"search {run.name!r} planned two work units with one key")
-            planned.append((run, tuple(units), tuple(keys)))
-        return tuple(planned)
+        return tuple(_plan_run(self, run) for run in self.runs)
 
     def __getstate__(self):
         # The planned units are derived and can be large: a saved result re-plans when asked.
@@ -120,6 +121,42 @@ class SearchSetup:
 
     def __setstate__(self, state):
         self.__dict__.update(state)
+
+
+def _budgeted(options, deadline):
+    """``options`` with the run's deadline: its ``time_budget`` set to what is left, its ``deadline`` set."""
+    import dataclasses
+
+    if deadline is None or not dataclasses.is_dataclass(options):
+        return options
+    names = {f.name for f in dataclasses.fields(options)}
+    changes = {}
+    if "deadline" in names:
+        changes["deadline"] = deadline
+    if "time_budget" in names:
+        changes["time_budget"] = deadline.search_budget()
+    return dataclasses.replace(options, **changes) if changes else options
+
+
+def _plan_run(setup: "SearchSetup", run: "MethodRun") -> tuple:
+    """``(run, units, keys)`` of one search: its options given the deadline and settled, then planned."""
+    run = _settled(run, setup.candidates, setup.moments, setup.deadline)
+    units = run.module.plan(setup.candidates, setup.moments, run.options)
+    keys = [f"{run.name}/{u.key}" for u in units]
+    if len(set(keys)) != len(keys):
+        raise SelectkitError(f"search {run.name!r} planned two work units with one key")
+    return run, tuple(units), tuple(keys)
+
+
+def _settled(run: "MethodRun", candidates, moments, deadline) -> "MethodRun":
+    """The run with the deadline handed to its options and its ``settle`` step (if any) done."""
+    from dataclasses import replace
+
+    options = _budgeted(run.options, deadline)
+    settle = getattr(run.module, "settle", None)
+    if settle is not None:
+        options = settle(candidates, moments, options)
+    return run if options is run.options else replace(run, options=options)
 
 
 # ----------------------------------------------------------------------------------------------------
@@ -137,11 +174,16 @@ def prepare_search(
     weights: str | None = None,
     missing: str = "refuse",
     keep_identifiers: Sequence[str] = (),
+    decimal_mark: str | None = None,
     forms: Sequence[str] | None = None,
     fractional_polynomials: bool = False,
     shifts: Mapping[str, Any] | None = None,
     interactions: bool | Sequence[tuple[str, str]] = False,
     response_transform=None,
+    prefer: Sequence[str] = (),
+    twin_limit: float | None = 0.999,
+    vif_limit: float | None = 1000.0,
+    curvature_test: bool = True,
     methods: Sequence[str] | str = ("auto",),
     method_options: Mapping[str, Mapping[str, Any]] | None = None,
     exact_limit: int = _EXACT_LIMIT,
@@ -160,6 +202,10 @@ def prepare_search(
     """Read and check the data, build the candidates and their moments, choose the searches.
 
     Parameters are those of :func:`search` (minus the parallel ones).
+    Every option that can be judged before the searches start is checked
+    here, the ones that need the data (``folds`` and ``honest_folds`` against
+    the rows) as soon as the data are read, so that a bad setting fails before
+    any search work.  A ``time_budget`` starts here: it covers the whole run.
 
     Returns
     -------
@@ -168,7 +214,20 @@ def prepare_search(
     from . import candidates as _candidates
     from . import criteria
     from . import data as _data
+    from ._budget import Deadline, start_deadline
     from .moments import moments_of
+
+    if time_budget is not None and not isinstance(time_budget, Deadline) and not (
+            isinstance(time_budget, (int, float, np.floating)) and not isinstance(time_budget, bool)
+            and float(time_budget) > 0):
+        raise OptionError(f"time_budget must be a positive number of seconds (got {time_budget!r}); "
+                          f"leave it out for no limit")
+    deadline = start_deadline(time_budget)
+    time_budget = None if deadline is None else deadline.seconds
+    _check_whole("seed", seed, low=0, why="seeds of numpy's SeedSequence are non-negative")
+    _check_whole("stability", stability, low=0, why="0 skips the bootstrap")
+    if not _is_fold_scheme(folds):
+        _check_whole("folds", folds, low=2, why="cross-validation needs at least 2 folds")
 
     if isinstance(methods, str):
         methods = (methods,)
@@ -185,8 +244,6 @@ def prepare_search(
         raise OptionError(f"honest_folds must be 0 (skip) or at least 2 outer folds (got {honest_folds})")
     if int(shortlist_size) < 1:
         raise OptionError(f"shortlist_size must be at least 1 (got {shortlist_size})")
-    if time_budget is not None and not float(time_budget) > 0:
-        raise OptionError(f"time_budget must be a positive number of seconds (got {time_budget})")
     method_options = {k: dict(v) for k, v in (method_options or {}).items()}
     for name in method_options:
         _check_choice(name, METHODS[1:], "search method in method_options")
@@ -200,12 +257,18 @@ def prepare_search(
         weights=weights,
         missing=missing,
         keep_identifiers=keep_identifiers,
+        decimal_mark=decimal_mark,
     )
+    _check_folds_fit(folds, honest_folds, dataset.n, seed)
     build_options: dict[str, Any] = dict(
         fractional_polynomials=fractional_polynomials,
         shifts=shifts,
         interactions=interactions,
         response_transform=response_transform,
+        prefer=tuple(prefer),
+        twin_limit=twin_limit,
+        vif_limit=vif_limit,
+        curvature_test=bool(curvature_test),
     )
     if forms is not None:
         build_options["forms"] = tuple(forms)
@@ -238,6 +301,10 @@ def prepare_search(
         "shifts": dict(shifts or {}),
         "interactions": interactions if isinstance(interactions, bool) else [list(p) for p in interactions],
         "response_transform": response_transform,
+        "prefer": list(prefer),
+        "twin_limit": twin_limit,
+        "vif_limit": vif_limit,
+        "curvature_test": bool(curvature_test),
         "methods": list(methods),
         "methods_run": [r.name for r in runs],
         "method_options": method_options,
@@ -257,7 +324,105 @@ def prepare_search(
     }
     if isinstance(settings["data"], os.PathLike):
         settings["data"] = os.fspath(settings["data"])
-    return SearchSetup(dataset=dataset, candidates=cands, moments=moments, runs=runs, settings=settings)
+    return SearchSetup(dataset=dataset, candidates=cands, moments=moments, runs=runs, settings=settings,
+                       deadline=deadline)
+
+
+def _check_whole(name, value, *, low, why):
+    if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or int(value) < low:
+        raise OptionError(f"{name} must be a whole number of at least {low} (got {value!r}); {why}")
+
+
+def _is_fold_scheme(folds) -> bool:
+    from .searches.crossval import FoldScheme
+
+    return isinstance(folds, FoldScheme)
+
+
+def _check_folds_fit(folds, honest_folds, n_rows: int, seed) -> None:
+    """Refuse, before any search, folds the rows cannot fill (the check ``make_folds`` would make later)."""
+    from .errors import InputError
+    from .searches.crossval import make_folds
+
+    try:
+        make_folds(folds, n_rows, seed)
+    except InputError as err:
+        raise OptionError(f"folds = {getattr(folds, 'k', folds)!r}: {err}") from err
+    if int(honest_folds) > n_rows:
+        raise OptionError(f"honest_folds = {honest_folds}: {honest_folds} outer folds need at least {honest_folds} "
+                          f"rows; the data have {n_rows}; use fewer outer folds")
+
+
+def check_output_folder(folder) -> Path:
+    """Check, before any work, that results can be written to ``folder``; return it as a Path.
+
+    The folder (or, when it does not exist yet, its nearest existing parent)
+    must be a folder in which a file can be made: a probe file is created and
+    removed.  Nothing is left behind.
+
+    Raises
+    ------
+    OptionError
+        One line naming the folder and what is wrong.
+    """
+    import tempfile
+
+    folder = Path(folder).expanduser()
+    probe_in = folder
+    while not probe_in.exists():
+        if probe_in.parent == probe_in:
+            break
+        probe_in = probe_in.parent
+    if folder.exists() and not folder.is_dir():
+        raise OptionError(f"the output folder {str(folder)!r} is a file, not a folder; choose another output folder "
+                          f"or move the file away")
+    if not probe_in.is_dir():
+        raise OptionError(f"the output folder {str(folder)!r} cannot be made: {str(probe_in)!r} is a file, not a "
+                          f"folder; choose another output folder")
+    try:
+        handle, name = tempfile.mkstemp(prefix=".selectkit-probe-", dir=probe_in)
+        os.close(handle)
+        os.unlink(name)
+    except OSError as err:
+        where = "" if probe_in == folder else f" (its parent {str(probe_in)!r} does not let a folder be made)"
+        raise OptionError(f"the output folder {str(folder)!r} is not writable{where}: {err.strerror or err}; "
+                          f"choose another output folder") from err
+    return folder
+
+
+def check_scheduler(scheduler: str | None, timeout: float = 10.0) -> None:
+    """Refuse early, in one line, when the Dask backend cannot be used: no extra, no client, or no scheduler
+    reachable at ``scheduler`` within ``timeout`` seconds."""
+    try:
+        import distributed
+    except ImportError as err:
+        raise OptionError("backend 'dask' needs the dask extra; install it with: pip install 'selectkit[dask]'") from err
+    if scheduler is None:
+        try:
+            distributed.get_client()
+        except ValueError as err:
+            raise OptionError("backend 'dask' needs the address of a scheduler (tcp://HOST:8786); no Dask client "
+                              "runs in this process") from err
+        return
+    try:
+        client = distributed.Client(scheduler, timeout=timeout)
+    except (OSError, TimeoutError) as err:
+        raise OptionError(f"cannot reach the Dask scheduler at {scheduler!r} within {timeout:.0f} s ({err}); "
+                          f"check the address and that the scheduler runs") from err
+    client.close()
+
+
+def check_run_options(*, n_jobs: int = 1, backend: str = "loky", scheduler: str | None = None,
+                      timeout: float = 10.0) -> None:
+    """Check the parallel options before any work: workers, backend, and that a Dask scheduler answers."""
+    from .parallel import BACKENDS
+
+    check_n_jobs(n_jobs)
+    _check_choice(backend, BACKENDS, "parallel backend")
+    if scheduler is not None and backend != "dask":
+        raise OptionError(f"a scheduler address needs backend 'dask' (got backend {backend!r})")
+    if backend == "dask":
+        check_scheduler(scheduler, timeout=timeout)
 
 
 def _make_run(name, user_options, *, seed, time_budget, exact_limit, folds, criterion, aim) -> MethodRun:
@@ -299,6 +464,7 @@ def run_methods(
     backend: str = "loky",
     scheduler: str | None = None,
     should_stop: Callable[[], bool] | None = None,
+    deadline=None,
 ) -> list:
     """Run every planned search, unit by unit, and merge each into a ``Found``.
 
@@ -316,6 +482,11 @@ def run_methods(
         Polled as each unit finishes (before each, with one worker); when it returns True no new unit
         starts and each search is merged from the units that finished (and
         marked not proven exact).
+    deadline : selectkit._budget.Deadline, optional
+        The run's time budget; default ``setup.deadline``.  It is polled like
+        ``should_stop`` and, through the plan, checked inside the searches; a
+        search it cuts says so in ``stopped_by`` with the time that was left
+        when the search started.
 
     Returns
     -------
@@ -326,9 +497,15 @@ def run_methods(
     check_n_jobs(n_jobs)
     done = dict(done or {})
     founds = []
+    if deadline is not None and deadline is not setup.deadline:
+        from dataclasses import replace
+
+        setup = replace(setup, deadline=deadline)  # planned afresh with this budget
+    deadline = setup.deadline
     session = dask_session(scheduler) if backend == "dask" else nullcontext()
     with session:
-        for run, units, keys in setup.planned:
+        for run, units, keys in _plans(setup):
+            left = None if deadline is None else deadline.remaining()
             results: dict[int, Any] = {i: done[k] for i, k in enumerate(keys) if k in done}
             todo = [i for i in range(len(units)) if i not in results]
 
@@ -337,21 +514,53 @@ def run_methods(
                 if on_unit is not None:
                     on_unit(keys[todo[j]], result)
 
-            stopped = should_stop is not None and bool(todo) and should_stop()
+            stop = should_stop
+            if deadline is not None:
+                # Every search runs at least one unit (planned with what is left of the budget, it returns
+                # at once when nothing is left, with what its planning found); no unit starts after that.
+                def stop(user=should_stop, results=results):
+                    return (deadline.expired() and bool(results)) or (user is not None and bool(user()))
+
+            stopped = stop is not None and bool(todo) and stop()
             if todo and not stopped:
                 finished = run_units(_call_unit, [(run.module_name, units[i]) for i in todo], n_jobs=n_jobs,
                                      backend=backend, scheduler=scheduler, on_result=_record,
-                                     should_stop=should_stop)
+                                     should_stop=stop)
                 stopped = len(finished) < len(todo)
             ordered = [results.get(i) for i in range(len(units))]
             merged = run.module.merge(setup.candidates, setup.moments, run.options, ordered)
             merged = merged if isinstance(merged, (list, tuple)) else [merged]
-            if stopped or any(r is None for r in ordered):
+            unfinished = stopped or any(r is None for r in ordered)
+            if unfinished:
                 from .searches._found import mark_incomplete
 
                 merged = [mark_incomplete(f, "stopped before every work unit finished") for f in merged]
+            if deadline is not None and deadline.expired():
+                from .searches._found import mark_incomplete
+
+                done_units = sum(r is not None for r in ordered)
+                merged = [mark_incomplete(
+                    f, f"the {deadline.describe()} of the whole run ran out during search {run.name!r} "
+                       f"({_seconds(left)} were left when it started; {done_units} of {len(units)} work units "
+                       f"finished)") if unfinished or "time budget" in str(f.stopped_by) else f for f in merged]
             founds.extend(merged)
     return founds
+
+
+def _plans(setup: SearchSetup):
+    """``(run, units, keys)`` of each search.  With a time budget and no plan made yet, each search is
+    planned just before it runs, so that it is given what is left of the budget then."""
+    if setup.deadline is None or "planned" in setup.__dict__:
+        yield from setup.planned
+        return
+    for run in setup.runs:
+        yield _plan_run(setup, run)
+
+
+def _seconds(value) -> str:
+    from ._budget import format_seconds
+
+    return format_seconds(value)
 
 
 # ----------------------------------------------------------------------------------------------------
@@ -360,8 +569,14 @@ def run_methods(
 
 
 def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: str = "loky",
-           scheduler: str | None = None) -> "Result":
-    """Rank the pooled models, check the best ones and return a :class:`Result`."""
+           scheduler: str | None = None, deadline=None) -> "Result":
+    """Rank the pooled models, check the best ones and return a :class:`Result`.
+
+    ``deadline`` (default ``setup.deadline``) is the run's time budget: the
+    bootstrap resamples and the outer folds of the honest error stop when it
+    runs out, and the shortlist's notes say which stage stopped, what it did,
+    and that the figures rest on that part.  Ranking and checks always run.
+    """
     from . import rank as _rank_module
 
     from .searches.crossval import press, score_subsets
@@ -381,25 +596,52 @@ def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: st
 
     shortlist = _rank(scores)
     if scores is not None and not press_ranks:
-        shown = set(shortlist.subsets)
+        shown = set(shortlist.subsets) | set(shortlist.model_subsets)
         scores["press"] = [press(setup.candidates, sub) if sub in shown and np.isfinite(rss) else np.nan
                            for sub, rss in zip(scores["subset"], scores["rss"])]
         shortlist = _rank(scores)  # same order (PRESS does not rank): now with PRESS shown
+    deadline = setup.deadline if deadline is None else deadline
     stability = None
     if s["stability"] > 0:
         stability = _rank_module.stability(
             setup.candidates,
-            _SearchRunner(tuple(setup.runs)),
+            _SearchRunner(tuple(setup.runs), deadline),
             n_boot=s["stability"],
             seed=s["seed"],
             n_jobs=n_jobs,
             backend=backend,
             criterion=shortlist.criterion,
+            deadline=deadline,
         )
     result = Result(setup=setup, founds=tuple(founds), ranked=shortlist, stability=stability)
     if s.get("honest_folds", 0) >= 2:
-        result.honest_error(folds=s["honest_folds"], n_jobs=n_jobs, backend=backend, scheduler=scheduler)
+        result.honest_error(folds=s["honest_folds"], n_jobs=n_jobs, backend=backend, scheduler=scheduler,
+                            deadline=deadline)
+    if deadline is not None:
+        _note_budget(result, founds, deadline)
     return result
+
+
+def _note_budget(result: "Result", founds, deadline) -> None:
+    """Say in the shortlist's notes which stages the time budget cut, and what they did."""
+    from dataclasses import replace
+
+    notes = [f"search {f.method!r} was cut short by the {deadline.describe()}: {f.stopped_by}"
+             for f in founds if "time budget" in str(f.stopped_by)]
+    if result.stability is not None:
+        notes += [n for n in result.stability.notes if "time budget" in n]
+    elif result.settings.get("stability", 0) > 0:
+        notes.append(f"The {deadline.describe()} ran out before the bootstrap resamples could be compared with the "
+                     f"searches on all rows: no stability is shown.")
+    honest = getattr(result, "honest", None)
+    if honest is not None:
+        notes += [n for n in getattr(honest, "notes", ()) if "time budget" in n]
+    elif result.settings.get("honest_folds", 0) >= 2:
+        notes.append(f"The {deadline.describe()} ran out before an outer fold of the honest error finished: "
+                     f"no honest error is shown.")
+    if notes:
+        result._ranked = replace(result._ranked, notes=tuple(result._ranked.notes) + tuple(notes))
+
 
 
 @dataclass(frozen=True)
@@ -408,17 +650,30 @@ class _SearchRunner:
     resamples for stability, outer training folds for the honest error) and pools them."""
 
     runs: tuple
+    deadline: Any = None
 
     def __call__(self, candidates):
+        from ._budget import BudgetSpent
         from .moments import moments_of
         from .searches._found import pool
 
         moments = moments_of(candidates)
         found = []
         for run in self.runs:
+            if self.deadline is not None and self.deadline.expired():
+                raise BudgetSpent(f"the {self.deadline.describe()} ran out before search {run.name!r}")
+            run = _settled(run, candidates, moments, self.deadline)
             units = run.module.plan(candidates, moments, run.options)
-            merged = run.module.merge(candidates, moments, run.options, [run.module.run_unit(u) for u in units])
+            results = []
+            for unit in units:
+                if self.deadline is not None and self.deadline.expired():
+                    raise BudgetSpent(f"the {self.deadline.describe()} ran out during search {run.name!r}")
+                results.append(run.module.run_unit(unit))
+            merged = run.module.merge(candidates, moments, run.options, results)
             found.extend(merged if isinstance(merged, (list, tuple)) else [merged])
+        if self.deadline is not None and self.deadline.expired():
+            # the clock may have cut a search: a repeat that did not run to its end is left out
+            raise BudgetSpent(f"the {self.deadline.describe()} ran out during the searches")
         return pool(found)
 
 
@@ -463,9 +718,14 @@ def search(
         Seed of every random draw (folds, bootstrap).
     **options
         Roles of columns (``predictors``, ``forced``, ``exclude``,
-        ``weights``, ``missing``, ``keep_identifiers``), candidate forms
+        ``weights``, ``missing``, ``keep_identifiers``), ``decimal_mark`` of a
+        CSV table ("." or ","; default: decided from its numbers), candidate forms
         (``forms``, ``fractional_polynomials``, ``shifts``, ``interactions``,
-        ``response_transform``), ranking (``criterion``, ``aim`` — "explain"
+        ``response_transform``), near-duplicate variables and collinear groups
+        (``prefer`` — variables to keep —, ``twin_limit``, ``vif_limit``),
+        ``curvature_test`` (curved forms only for predictors that show
+        curvature with the others in the fit; see
+        :func:`selectkit.candidates.build_candidates`), ranking (``criterion``, ``aim`` — "explain"
         ranks by BIC, "predict" by AICc —, ``convention``, ``shortlist_size``,
         ``max_delta``, ``folds``, ``stability``, ``honest_folds`` — outer
         folds for the honest error of the whole procedure, 0 to skip),
@@ -492,6 +752,7 @@ def search(
     >>> result.terms(0)  # doctest: +SKIP
     ('log(light_mol_m2_day)', 'sqrt(co2_above_ambient_ppm)', ...)
     """
+    check_run_options(n_jobs=n_jobs, backend=backend, scheduler=scheduler)
     setup = prepare_search(data, response=response, methods=methods, seed=seed, **options)
     founds = run_methods(setup, n_jobs=n_jobs, backend=backend, scheduler=scheduler)
     return finish(setup, founds, n_jobs=n_jobs, backend=backend, scheduler=scheduler)
@@ -503,7 +764,10 @@ class Result:
     Attributes
     ----------
     shortlist : DataFrame
-        One row per shortlisted model, best first.
+        One row per shortlisted answer (a set of variables, in its best
+        forms), best first; see :class:`selectkit.rank.Shortlist`.
+    models : DataFrame
+        The model-level list: the best models, whatever answer they belong to.
     candidates : CandidateSet
     founds : tuple of Found
         What each search returned.
@@ -522,8 +786,19 @@ class Result:
     # -- tables -------------------------------------------------------------------------------------
     @property
     def shortlist(self) -> pd.DataFrame:
-        """The shortlist as a DataFrame, best model first."""
+        """The shortlist as a DataFrame: one row per answer (a set of variables), best first.
+
+        Each row is the answer's best model with ``answer_weight``,
+        ``models_in_answer`` and ``form_alternatives`` (the other forms within
+        Δ ≤ 2 of it).  ``terms(i)``, ``model(i)`` and ``checks(i)`` take the
+        row number ``i`` of this table.
+        """
         return self._ranked.table
+
+    @property
+    def models(self) -> pd.DataFrame:
+        """The model-level list: the best pooled models, whatever answer each belongs to (column ``answer``)."""
+        return self._ranked.models
 
     @property
     def ranking(self):
@@ -577,7 +852,8 @@ class Result:
         params = np.asarray(self.model(i).params)
         return params[0] + X @ params[1:]
 
-    def honest_error(self, *, folds: int = 5, n_jobs: int = 1, backend: str = "loky", scheduler: str | None = None):
+    def honest_error(self, *, folds: int = 5, n_jobs: int = 1, backend: str = "loky", scheduler: str | None = None,
+                     deadline=None):
         """Honest prediction error of the whole procedure (searches + ranking), by outer cross-validation.
 
         Every search of this result and the choice of the best model by the
@@ -586,7 +862,9 @@ class Result:
         choice (Varma & Simon 2006).  Compare ``error`` with ``naive_error``,
         the CV error of the model chosen on all rows: the difference is the
         optimism of selection.  The result is kept as ``self.honest`` and shown
-        in the report.
+        in the report.  With a ``deadline`` (a :class:`selectkit._budget.Deadline`)
+        the outer folds stop when it runs out; the result then rests on the
+        folds that finished and its ``notes`` say so.
 
         Returns
         -------
@@ -600,11 +878,11 @@ class Result:
         table = self._ranked.table
         naive = float(table["cv_mse"].iloc[0]) if "cv_mse" in table and len(table) else float("nan")
         self.honest = procedure_cv_error(
-            self.candidates, _SearchRunner(tuple(self._setup.runs)), criterion=criterion,
+            self.candidates, _SearchRunner(tuple(self._setup.runs), deadline), criterion=criterion,
             convention=self._setup.settings["convention"], folds=folds, seed=self._setup.settings["seed"],
             moments=self._setup.moments, naive_error=naive,
             procedure=" + ".join(r.name for r in self._setup.runs) + " search(es)",
-            n_jobs=n_jobs, backend=backend, scheduler=scheduler,
+            n_jobs=n_jobs, backend=backend, scheduler=scheduler, deadline=deadline,
         )
         return self.honest
 
@@ -649,12 +927,40 @@ class Result:
 
     # -- outputs ------------------------------------------------------------------------------------
     def diagnoses(self, count: int | None = None) -> list:
+        """Assumption checks of the first ``count`` shortlisted models (all by default), best first.
+
+        A model that cannot be refitted or checked (its columns are dependent on
+        these rows even after centring and scaling) is ``None`` in the list and
+        its reason is added to the shortlist's ``notes``, which the report, the
+        JSON document and the summary show; the other models are checked and
+        reported as usual, so one such model never stops the run.
+        """
+        from .errors import SearchError
+
         count = len(self._ranked.subsets) if count is None else min(count, len(self._ranked.subsets))
-        return [self.checks(i) for i in range(count)]
+        out = []
+        for i in range(count):
+            fit = self._ranked.fits[i] if i < len(self._ranked.fits) else None
+            problem = getattr(fit, "problem", None)
+            if problem is None:
+                try:
+                    out.append(self.checks(i))
+                    continue
+                except SearchError as err:
+                    problem = str(err)
+            out.append(None)
+            terms = " + ".join(self.terms(i)) or "intercept only"
+            note = f"Model {i + 1} ({terms}) could not be refitted or checked and is shown without them: {problem}"
+            if note not in self._ranked.notes:
+                import dataclasses
+
+                self._ranked = dataclasses.replace(self._ranked, notes=tuple(self._ranked.notes) + (note,))
+        return out
 
     def _report_contents(self) -> dict:
+        diagnoses = self.diagnoses()  # first: a model that cannot be checked adds a note to the shortlist
         return dict(settings=self.settings, candidates=self.candidates, founds=self.founds,
-                    shortlist=self._ranked, diagnoses=self.diagnoses(), stability=self.stability,
+                    shortlist=self._ranked, diagnoses=diagnoses, stability=self.stability,
                     honest=self.honest)
 
     def write(self, folder) -> dict:
@@ -675,17 +981,22 @@ class Result:
         """A short plain-text summary."""
         from .report import text
 
+        best = [d for d in self.diagnoses(1) if d is not None]  # first: it may add a note
         return text.summary(settings=self.settings, founds=self.founds, shortlist=self._ranked,
-                            diagnoses=self.diagnoses(1), honest=self.honest)
+                            diagnoses=best, honest=self.honest)
 
     def __repr__(self) -> str:
-        return (f"<selectkit.Result: {len(self._ranked.subsets)} shortlisted models of "
+        return (f"<selectkit.Result: {len(self._ranked.subsets)} shortlisted answers of "
                 f"{self._setup.settings['response']!r}, best: {' + '.join(self.terms(0)) or '(intercept only)'}>")
 
     def _repr_html_(self) -> str:
-        table = self.shortlist.head(10).to_html(index=False, escape=True, float_format=lambda v: f"{v:.4g}")
-        head = html.escape(f"selectkit: {len(self._ranked.subsets)} shortlisted models of "
-                           f"{self._setup.settings['response']}")
+        columns = [c for c in ("answer", "terms", "delta_from_best", "answer_weight", "form_alternatives",
+                               self._ranked.criterion) if c in self.shortlist.columns]
+        table = self.shortlist[list(dict.fromkeys(columns))].head(10).to_html(
+            index=False, escape=True, float_format=lambda v: f"{v:.4g}")
+        head = html.escape(f"selectkit: {len(self._ranked.subsets)} shortlisted answers (sets of variables, each "
+                           f"in its best forms) of {self._setup.settings['response']}; the model-level list is "
+                           "result.models")
         caution = ("p-values of a selected model are optimistic; association is not causation; "
                    "the decision rests with the practitioner.")
         return f"<div><strong>{head}</strong>{table}<p><em>{html.escape(caution)}</em></p></div>"

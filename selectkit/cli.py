@@ -11,14 +11,23 @@ Commands::
     selectkit job status FOLDER                       progress of a job, readable from another shell
 
 Bad input ends with one line on standard error and exit code 2 (no traceback
-unless ``--debug``); an interrupt exits with 130 after the unit in hand.
+unless ``--debug``); an interrupt exits with 130 after the unit in hand. Option
+names must be written in full (no abbreviations: ``--fold`` is refused rather
+than taken for ``--folds``). Output closed early by the reader (``| head``) ends
+quietly with 141, as a tool stopped by SIGPIPE does. Warnings of the libraries
+underneath are shown as one plain line each (with ``--debug``: as Python shows
+them, with their source). Names from the user's files are printed with their
+control characters escaped (``\\x1b``), so a column name cannot drive the terminal.
 """
 
 from __future__ import annotations
 
 import argparse
+import math
+import os
 import sys
 import time
+import warnings
 from pathlib import Path
 
 from . import __version__
@@ -29,6 +38,73 @@ __all__ = ["main", "build_parser"]
 EXIT_BAD_INPUT = 2
 EXIT_INTERNAL = 1
 EXIT_INTERRUPTED = 130
+EXIT_BROKEN_PIPE = 141  # 128 + SIGPIPE: what a shell reports for a tool whose reader went away
+
+
+def _printable(text) -> str:
+    from .report.text import printable
+
+    return printable(text)
+
+
+def _show(text="", *, file=None) -> None:
+    """Print ``text`` for a person: its own line breaks kept, every other control character escaped."""
+    print("\n".join(_printable(line) for line in str(text).split("\n")), file=file or sys.stdout, flush=True)
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse with whole option names only and errors on one line.
+
+    Abbreviations are off (``allow_abbrev=False``) for this parser and, through ``parser_class``, every
+    subparser: a typo such as ``--fold`` or ``--see`` is refused instead of silently meaning ``--folds`` or
+    ``--seed``. A usage error is one line on standard error and exit code 2, like every other bad input.
+    """
+
+    def __init__(self, *args, **kwargs):
+        kwargs.setdefault("allow_abbrev", False)
+        super().__init__(*args, **kwargs)
+
+    def error(self, message):
+        self.exit(EXIT_BAD_INPUT, f"{_printable(self.prog)}: error: {_printable(message)} "
+                                  f"(see {_printable(self.prog)} --help)\n")
+
+
+def _whole_number(least: int, meaning: str, *, also=None):
+    """An argparse type: a whole number of at least ``least`` (or exactly ``also``), else a one-line refusal."""
+    def convert(text: str) -> int:
+        try:
+            value = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number; give {meaning}") from None
+        if value < least and value != also:
+            raise argparse.ArgumentTypeError(f"{value} is too small; give {meaning}")
+        return value
+
+    return convert
+
+
+def _number_at_least(least: float, meaning: str, *, strictly: bool = False):
+    """An argparse type: a finite number ``>= least`` (``> least`` when ``strictly``), else a refusal."""
+    def convert(text: str) -> float:
+        try:
+            value = float(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a number; give {meaning}") from None
+        if not math.isfinite(value) or value < least or (strictly and value == least):
+            raise argparse.ArgumentTypeError(f"{text} is out of range; give {meaning}")
+        return value
+
+    return convert
+
+
+_TOP = _whole_number(1, "at least 1 model")
+_FOLDS = _whole_number(2, "at least 2 folds")
+_RESAMPLES = _whole_number(0, "0 (skip) or a positive number of resamples")
+_OUTER_FOLDS = _whole_number(2, "0 (skip) or at least 2 outer folds", also=0)
+_WORKERS = _whole_number(1, "a positive number of worker processes, or -1 for every core", also=-1)
+_SEED = _whole_number(0, "a seed of 0 or more")
+_DELTA = _number_at_least(0.0, "a distance of 0 or more")
+_SECONDS = _number_at_least(0.0, "a positive number of seconds", strictly=True)
 
 
 def _csv_list(text: str) -> list[str]:
@@ -49,6 +125,9 @@ def _add_table_roles(p: argparse.ArgumentParser) -> None:
                    help="drop rows with missing values (default: refuse and list them)")
     p.add_argument("--keep-id-columns", type=_csv_list, metavar="COL,COL", default=[],
                    help="keep these identifier-like columns as predictors (excluded by default)")
+    p.add_argument("--decimal-mark", choices=(".", ",", "point", "comma"), default=None,
+                   help="decimal mark of a CSV table (default: decided from its numbers; the other mark is "
+                        "then read as grouping thousands)")
     p.add_argument("--forms", type=_csv_list, metavar="FORM,FORM", default=None,
                    help="forms of each numeric predictor: identity, log, sqrt, reciprocal, square, "
                         "boxcox, boxtidwell (default: all of them)")
@@ -56,6 +135,14 @@ def _add_table_roles(p: argparse.ArgumentParser) -> None:
                    help="also try the fractional-polynomial powers -2, -1, -0.5, 0, 0.5, 1, 2, 3")
     p.add_argument("--shift", action="append", default=[], metavar="COL=C",
                    help="allow log/sqrt/reciprocal of COL + C (C a number, or 'auto'); repeatable")
+    p.add_argument("--prefer", type=_csv_list, metavar="COL,COL", default=[],
+                   help="variables to keep when they nearly duplicate another or sit in a nearly collinear group")
+    p.add_argument("--all-forms", action="store_true",
+                   help="offer every curved form of every predictor, not only of those that bend once the "
+                        "other predictors are in the fit (t^2 > log n)")
+    p.add_argument("--keep-twins", action="store_true",
+                   help="do not set aside near-duplicate variables (|r| >= 0.999) or members of a collinear "
+                        "group (VIF >= 1000)")
     p.add_argument("--pairwise-products", action="store_true",
                    help="add every pairwise product x*z of numeric predictors (hierarchy kept)")
     p.add_argument("--response-form", default=None, metavar="FORM",
@@ -75,28 +162,29 @@ def _add_search_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--statsmodels-convention", action="store_true",
                    help="count k coefficients (not k+1 parameters) in AIC/BIC, as statsmodels does; "
                         "rankings are unchanged")
-    p.add_argument("--top", type=int, default=10, metavar="N", help="models in the shortlist (default 10)")
-    p.add_argument("--within-delta", type=float, default=None, metavar="D",
+    p.add_argument("--top", type=_TOP, default=10, metavar="N", help="models in the shortlist (default 10)")
+    p.add_argument("--within-delta", type=_DELTA, default=None, metavar="D",
                    help="keep only models within D of the best by the ranking criterion")
-    p.add_argument("--folds", type=int, default=5, metavar="K", help="folds for cross-validated error (default 5)")
-    p.add_argument("--resamples", type=int, default=0, metavar="B",
+    p.add_argument("--folds", type=_FOLDS, default=5, metavar="K", help="folds for cross-validated error (default 5)")
+    p.add_argument("--resamples", type=_RESAMPLES, default=0, metavar="B",
                    help="bootstrap resamples for the stability of the selection (default 0: skip)")
-    p.add_argument("--honest-error", type=int, default=0, metavar="K",
+    p.add_argument("--honest-error", type=_OUTER_FOLDS, default=0, metavar="K",
                    help="also estimate the honest error of the whole procedure by repeating it inside K outer "
                         "folds (costs K more searches; default 0: skip)")
     p.add_argument("--rows-in-time-order", action="store_true",
                    help="row order means time or sequence (enables the Durbin-Watson check, blocked folds)")
-    p.add_argument("--workers", type=int, default=1, metavar="N", help="worker processes (-1: all cores)")
+    p.add_argument("--workers", type=_WORKERS, default=1, metavar="N", help="worker processes (-1: all cores)")
     p.add_argument("--backend", default="loky", help="joblib backend: loky, threading, multiprocessing, dask")
     p.add_argument("--scheduler", default=None, metavar="ADDRESS", help="Dask scheduler address for --backend dask")
-    p.add_argument("--seed", type=int, default=0, help="seed of every random draw (default 0)")
-    p.add_argument("--time-budget", type=float, default=None, metavar="SECONDS",
+    p.add_argument("--seed", type=_SEED, default=0, help="seed of every random draw (default 0)")
+    p.add_argument("--time-budget", type=_SECONDS, default=None, metavar="SECONDS",
                    help="stop searching after this long and report the best found (marked not proven exact)")
 
 
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="selectkit",
+        allow_abbrev=False,
         description="Find which predictors, in which forms, give a defensible linear regression model.",
         epilog="Cautions: p-values of a selected model are optimistic; association is not causation; "
                "the decision rests with the practitioner.",
@@ -105,7 +193,7 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--debug", action="store_true", help="show the full traceback on errors")
     commands = parser.add_subparsers(dest="command", metavar="COMMAND")
     # --debug is accepted after the command too; SUPPRESS keeps the top-level value when absent.
-    common = argparse.ArgumentParser(add_help=False)
+    common = _Parser(add_help=False, allow_abbrev=False)
     common.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                         help="show the full traceback on errors")
 
@@ -129,8 +217,8 @@ def build_parser() -> argparse.ArgumentParser:
                                         "the bundled invented greenhouse data.")
     p.add_argument("-o", "--out", default="selectkit-demo", metavar="FOLDER",
                    help="folder for the outputs (default: selectkit-demo)")
-    p.add_argument("--workers", type=int, default=1, metavar="N", help="worker processes")
-    p.add_argument("--seed", type=int, default=0)
+    p.add_argument("--workers", type=_WORKERS, default=1, metavar="N", help="worker processes (-1: all cores)")
+    p.add_argument("--seed", type=_SEED, default=0, help="seed of every random draw (default 0)")
 
     job = commands.add_parser("job", parents=[common], help="overnight jobs: job files, run stores, resume, status",
                               description="Run long searches from a job file with a run store that survives "
@@ -152,7 +240,8 @@ def build_parser() -> argparse.ArgumentParser:
                         description="Continue a job from its run store. Only where and how long it runs may "
                                     "change; everything that decides what is found comes from the store.")
     j.add_argument("folder")
-    j.add_argument("--workers", type=int, default=None, metavar="N", help="worker processes for the rest of the job")
+    j.add_argument("--workers", type=_WORKERS, default=None, metavar="N",
+                   help="worker processes for the rest of the job (-1: all cores)")
     j.add_argument("--backend", default=None, help="joblib backend for the rest of the job (e.g. dask)")
     j.add_argument("--scheduler", default=None, metavar="ADDRESS", help="Dask scheduler address")
     j.add_argument("--time-budget", default=None, metavar="DURATION",
@@ -203,11 +292,16 @@ def _table_options(args) -> dict:
         weights=args.row_weights,
         missing="drop" if args.drop_incomplete_rows else "refuse",
         keep_identifiers=args.keep_id_columns,
+        decimal_mark=args.decimal_mark,
         forms=args.forms,
         fractional_polynomials=args.fractional_powers,
         shifts=_shifts(args.shift),
         interactions=args.pairwise_products,
         response_transform=_response_form(args.response_form),
+        prefer=args.prefer,
+        twin_limit=None if args.keep_twins else 0.999,
+        vif_limit=None if args.keep_twins else 1000.0,
+        curvature_test=not args.all_forms,
     )
 
 
@@ -230,7 +324,7 @@ def _search_options(args) -> dict:
 
 def _say(text: str = "", *, quiet: bool = False) -> None:
     if not quiet:
-        print(text, flush=True)
+        _show(text)
 
 
 def _search_and_write(setup, *, out, workers=1, backend="loky", scheduler=None, quiet=False):
@@ -240,8 +334,9 @@ def _search_and_write(setup, *, out, workers=1, backend="loky", scheduler=None, 
     from . import api
 
     show = not quiet and sys.stderr.isatty()
-    bar = tqdm(total=len(api.unit_keys(setup)), desc="searching", unit="unit", file=sys.stderr, disable=not show,
-               leave=False)
+    # with a time budget each search is planned just before it runs (to get what is left): no total up front
+    total = None if setup.deadline is not None else len(api.unit_keys(setup))
+    bar = tqdm(total=total, desc="searching", unit="unit", file=sys.stderr, disable=not show, leave=False)
     founds = api.run_methods(setup, n_jobs=workers, backend=backend, scheduler=scheduler,
                              on_unit=lambda key, result: bar.update(1))
     bar.close()
@@ -259,10 +354,15 @@ def _run_search(args) -> int:
     from . import api
 
     started = time.perf_counter()
+    api.check_output_folder(args.out)  # settings that can be checked before any work, checked first
+    api.check_run_options(n_jobs=args.workers, backend=args.backend, scheduler=args.scheduler)
     setup = api.prepare_search(args.table, **_table_options(args), **_search_options(args))
     for note in setup.dataset.report.notes:
         if note.kind in ("warning", "dropped"):
             _say(f"note: {note.message}", quiet=args.quiet)
+    for refusal in setup.candidates.refused:
+        if refusal.form == "every form":  # a whole variable left out of the search: say it here, not only in forms
+            _say(f"note: {refusal.family} is not in the search: {refusal.reason}", quiet=args.quiet)
     _say(f"read {setup.dataset.n} rows; {len(setup.candidates.terms)} candidate terms from "
          f"{len(setup.candidates.families)} variables; running: {', '.join(r.name for r in setup.runs)}",
          quiet=args.quiet)
@@ -280,28 +380,35 @@ def _run_forms(args) -> int:
     from . import data as _data
 
     opts = _table_options(args)
-    build = {k: opts.pop(k) for k in ("fractional_polynomials", "shifts", "interactions", "response_transform")}
+    build = {k: opts.pop(k) for k in ("fractional_polynomials", "shifts", "interactions", "response_transform",
+                                     "prefer", "twin_limit", "vif_limit", "curvature_test")}
     forms = opts.pop("forms")
     if forms is not None:
         build["forms"] = tuple(forms)
     dataset = _data.prepare(args.table, **opts)
     cands = _candidates.build_candidates(dataset, **build)
     for note in dataset.report.notes:
-        print(f"note: {note.message}")
+        _show(f"note: {note.message}")
     for note in cands.notes:
-        print(f"note: {note}")
+        _show(f"note: {note}")
     table = cands.describe()
     import pandas as pd
 
+    # Escape the names cell by cell (not the printed lines) so that the columns stay aligned.
+    shown = table.rename(columns=_printable)
+    for column in shown.columns[shown.dtypes == object]:
+        shown[column] = shown[column].map(lambda v: _printable(v) if isinstance(v, str) else v)
     with pd.option_context("display.max_rows", None, "display.width", 160, "display.max_colwidth", 60):
-        print(table.to_string(index=False))
+        _show(shown.to_string(index=False))
     print(f"{len(cands.terms)} terms in {len(cands.families)} families, {cands.matrix.shape[1]} columns, "
           f"{dataset.n} rows")
     if args.save:
         from ._io import atomic_write_text
 
-        atomic_write_text(Path(args.save), table.to_csv(index=False))
-        print(f"wrote {args.save}")
+        from .report.tables import csv_text
+
+        atomic_write_text(Path(args.save), csv_text(table))  # formula-safe, as every CSV selectkit writes
+        _show(f"wrote {args.save}")
     return 0
 
 
@@ -309,7 +416,7 @@ def _run_demo(args) -> int:
     import pandas as pd
 
     from . import api
-    from .demo import RESPONSE, TRUE_TERMS, demo_csv_path, make_greenhouse
+    from .demo import RESPONSE, TRUE_TERMS, demo_csv_path, make_greenhouse, recovery
 
     path = demo_csv_path()
     data = pd.read_csv(path) if path is not None else make_greenhouse()
@@ -320,21 +427,23 @@ def _run_demo(args) -> int:
     setup = api.prepare_search(data, response=RESPONSE, seed=args.seed, honest_folds=5)
     print(f"demo: {len(setup.candidates.terms)} candidate terms; running {', '.join(r.name for r in setup.runs)}")
     result, paths = _search_and_write(setup, out=args.out, workers=args.workers)
-    print(result.summary())
-    found_terms = set(result.terms(0))
-    truth = set(TRUE_TERMS)
-    if found_terms == truth:
-        print("demo: the best model is exactly the generating model.")
+    _show(result.summary())
+    found = recovery(result)
+    if not found.missing_variables and not found.extra_variables:
+        print("demo: the top answer holds exactly the generating variables.")
     else:
-        missing = sorted(truth - found_terms)
-        extra = sorted(found_terms - truth)
-        print(f"demo: best model differs from the generating model: missing {missing or 'none'}, "
-              f"extra {extra or 'none'}")
-        ranks = [i for i in range(len(result.ranking.subsets)) if set(result.terms(i)) == truth]
-        print(f"demo: the generating model is shortlisted at position {ranks[0] + 1}" if ranks
-              else "demo: the generating model is not in the shortlist")
+        print(f"demo: the top answer differs from the generating variables: missing "
+              f"{list(found.missing_variables) or 'none'}, extra {list(found.extra_variables) or 'none'}")
+    if found.best_is_truth:
+        print("demo: its best model is exactly the generating model.")
+    elif found.forms_offered:
+        where = f" (model {found.model_position} of the model-level list)" if found.model_position else ""
+        print("demo: the generating forms are among the top answer's forms within Δ ≤ 2: the data cannot tell "
+              f"them from its best forms{where}.")
+    else:
+        print(f"demo: generating form(s) not among the top answer's forms: {', '.join(found.forms_not_offered)}")
     for label, p in paths.items():
-        print(f"  {label}: {p}")
+        _show(f"  {label}: {p}")
     print(f"demo: done in {time.perf_counter() - started:.1f} s")
     return 0
 
@@ -349,7 +458,7 @@ def _run_job(args) -> int:
         from ._io import atomic_write_text
 
         atomic_write_text(out, jobs.starter_job(args.table, response=args.response))
-        print(f"wrote {out}; fill in what it asks, then: selectkit job run {out}")
+        _show(f"wrote {out}; fill in what it asks, then: selectkit job run {out}")
         return 0
     if args.job_command == "run":
         outcome = jobs.run_job(args.job_file, resume=not args.fresh, progress=False if args.quiet else None)
@@ -358,35 +467,95 @@ def _run_job(args) -> int:
                  if getattr(args, key) is not None}
         outcome = jobs.resume_job(args.folder, progress=False if args.quiet else None, **given)
     elif args.job_command == "status":
-        print(jobs.store_status(args.folder).render())
+        _show(jobs.store_status(args.folder).render())
         return 0
     else:
         raise SelectkitError("name a job command: new, run, resume or status (see selectkit job --help)")
-    print(outcome.render())
+    _show(outcome.render())
     return 0 if outcome.complete else 3
+
+
+#: What a kind of warning means for the person reading it, when its own text does not say.
+_WARNING_MEANINGS = (
+    (RuntimeWarning, "a numerical step met a value it could not use, such as a zero, a negative number or an "
+                     "overflow; results it touched may be missing or less precise"),
+    ((FutureWarning, DeprecationWarning, PendingDeprecationWarning),
+     "a library announces a change in a later version; these results are not affected"),
+)
+
+
+def _warning_source(filename: str) -> str:
+    """The library a warning came from (``numpy``, ``statsmodels``...), not its source path."""
+    parts = Path(str(filename)).parts
+    for marker in ("site-packages", "dist-packages"):
+        if marker in parts and parts.index(marker) + 1 < len(parts):
+            return Path(parts[parts.index(marker) + 1]).stem
+    return "selectkit" if "selectkit" in parts else "Python"
+
+
+def _plain_warnings():
+    """A ``warnings.showwarning`` that prints each distinct warning once, as one plain line on stderr."""
+    seen = set()
+
+    def show(message, category, filename, lineno, file=None, line=None):
+        text = " ".join(str(message).split())
+        if (category, text) in seen:
+            return
+        seen.add((category, text))
+        meaning = next((m for kinds, m in _WARNING_MEANINGS if issubclass(category, kinds)), None)
+        print(_printable(f"selectkit: warning from {_warning_source(filename)}: {text}"
+                         + (f" ({meaning})" if meaning else "")), file=sys.stderr, flush=True)
+
+    return show
+
+
+def _quiet_after_broken_pipe() -> None:
+    """Point standard output at the null device so that Python's own flush at exit cannot fail again."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    except (AttributeError, OSError, ValueError):  # no real file descriptor (an embedding, a test's capture)
+        pass
 
 
 def main(argv=None) -> int:
     """Run the command line; return the exit code."""
+    try:
+        return _main(argv)
+    except BrokenPipeError:  # the reader went away (`selectkit job status | head`): stop quietly
+        _quiet_after_broken_pipe()
+        return EXIT_BROKEN_PIPE
+
+
+def _main(argv) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     if args.command is None:
         parser.print_help()
         return EXIT_BAD_INPUT
+    with warnings.catch_warnings():  # restores Python's own warning display afterwards
+        if not args.debug:
+            warnings.showwarning = _plain_warnings()
+        return _run_command(args)
+
+
+def _run_command(args) -> int:
     handlers = {"search": _run_search, "forms": _run_forms, "demo": _run_demo, "job": _run_job}
     try:
         return handlers[args.command](args)
     except SelectkitError as err:
         if args.debug:
             raise
-        print(f"selectkit: error: {err}", file=sys.stderr)
+        print(f"selectkit: error: {_printable(err)}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         print("selectkit: interrupted", file=sys.stderr)
         return EXIT_INTERRUPTED
+    except BrokenPipeError:
+        raise
     except Exception as err:  # an internal fault: one line, and how to see more
         if args.debug:
             raise
-        print(f"selectkit: internal error ({type(err).__name__}: {err}); rerun with --debug for the traceback",
-              file=sys.stderr)
+        print(f"selectkit: internal error ({type(err).__name__}: {_printable(err)}); rerun with --debug for "
+              "the traceback", file=sys.stderr)
         return EXIT_INTERNAL

@@ -21,12 +21,13 @@ outbreak in the story), which the influence checks should flag.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-__all__ = ["RESPONSE", "TRUE_TERMS", "SEED", "make_greenhouse", "demo_csv_path"]
+__all__ = ["RESPONSE", "TRUE_TERMS", "SEED", "make_greenhouse", "demo_csv_path", "Recovery", "recovery"]
 
 RESPONSE = "yield_kg_m2"
 #: Readable names of the terms of the generating model.
@@ -113,3 +114,55 @@ def demo_csv_path() -> Path | None:
     """Path of the bundled CSV when running from a source checkout, else None."""
     path = Path(__file__).resolve().parent.parent / "demo" / "greenhouse.csv"
     return path if path.is_file() else None
+
+
+@dataclass(frozen=True)
+class Recovery:
+    """How a search's shortlist compares with the generating model.
+
+    Attributes
+    ----------
+    missing_variables, extra_variables : tuple of str
+        Generating variables the top answer lacks, and variables it holds that the generating model does not.
+    forms_offered : bool
+        Whether every generating form is the top answer's best form or one of its forms within Δ ≤ 2.
+    forms_not_offered : tuple of str
+        Generating forms that are neither.
+    best_is_truth : bool
+        Whether the best model is exactly the generating model.
+    model_position : int or None
+        Position (1 = best) of the generating model in the model-level list, None when it is not listed.
+    """
+
+    missing_variables: tuple[str, ...]
+    extra_variables: tuple[str, ...]
+    forms_offered: bool
+    forms_not_offered: tuple[str, ...]
+    best_is_truth: bool
+    model_position: int | None
+
+
+def recovery(result) -> Recovery:
+    """Compare the top answer of a :class:`selectkit.Result` on the demo data with the generating model."""
+    cands = result.candidates
+    family = {t.name: t.family for t in cands.terms}
+    truth_variables = {family.get(t, t) for t in TRUE_TERMS}
+    best = set(result.terms(0))
+    top_variables = {family[t] for t in best}
+    offered = set(best)
+    for _, forms in result.ranking.answer_forms[0]:
+        offered.update(forms)
+    not_offered = tuple(t for t in TRUE_TERMS if t not in offered)
+    position = None
+    for i, terms in enumerate(result.models["terms"]):
+        if set(str(terms).split(" + ")) == set(TRUE_TERMS):
+            position = i + 1
+            break
+    return Recovery(
+        missing_variables=tuple(sorted(truth_variables - top_variables)),
+        extra_variables=tuple(sorted(top_variables - truth_variables)),
+        forms_offered=not not_offered,
+        forms_not_offered=not_offered,
+        best_is_truth=best == set(TRUE_TERMS),
+        model_position=position,
+    )

@@ -2,18 +2,38 @@
 independence, multicollinearity and influence.
 
 :func:`diagnose` refits one model by QR and returns a :class:`Diagnosis`: a
-tuple of named :class:`Check` results (statistic, p-value, passed, a one-line
-verdict with the number behind it, the published reference and a remedy in
-words), plus the data behind the residual plots and the influence table.
+tuple of named :class:`Check` results (statistic, p-value, a verdict level,
+a one-line verdict with the number behind it, the published reference and a
+remedy in words), plus the data behind the residual plots and the influence
+table.
 
 Every statistic is computed here from the QR decomposition with numpy and
 scipy; the tests compare each with its reference implementation in statsmodels
 or scipy.  Models with row weights are checked on the whitened scale
 (√wᵢ·yᵢ, √wᵢ·xᵢ), where the weighted model is an ordinary least-squares one.
 
-Thresholds marked "common practice" are rules of thumb with no single
-published source; they flag rows and terms for a look, never for automatic
-action.
+Verdicts in proportion
+----------------------
+Each check ends in one of three levels — ``"fine"``, ``"worth a look"``,
+``"a problem"`` — or ``"not assessed"`` where it does not apply.  A level
+weighs the size of a departure, not only whether a test detects it: with tens
+of thousands of rows every test detects departures too small to matter, and a
+screening cut-off flags a fixed share of clean rows by design.
+
+* Screening cut-offs (leverage 2k/n, Cook's distance 4/n) can reach
+  "worth a look" at most; "a problem" needs a stronger published threshold
+  (Cook's distance above the median of F(k, n − k), leverage above 0.5).
+* Tests (RESET, Shapiro-Wilk, Jarque-Bera, Breusch-Pagan) that do not reject
+  at ``alpha`` are "fine"; a rejection is graded by the size of the departure
+  (skewness and excess kurtosis of the residuals; Cohen's f² of the added
+  terms).
+* ``Check.passed`` is kept for compatibility: True for "fine" and
+  "worth a look" (nothing stops the model being used; the verdict names what
+  to look at), False for "a problem", None for "not assessed".
+
+Each rule and its source is given beside its constant below; thresholds marked
+"common practice" are rules of thumb with no single published source.  They
+point at rows and terms for a look, never for automatic action.
 """
 
 from __future__ import annotations
@@ -30,40 +50,100 @@ __all__ = [
     "Check",
     "Diagnosis",
     "diagnose",
+    "LEVELS",
+    "FINE",
+    "WORTH_A_LOOK",
+    "PROBLEM",
+    "NOT_ASSESSED",
     "SHAPIRO_MAX_ROWS",
     "VIF_LIMIT",
+    "VIF_PROBLEM",
     "CONDITION_LIMIT",
+    "CONDITION_PROBLEM",
+    "ROWS_LISTED",
 ]
+
+#: The verdict levels, mildest first, then the level of a check that does not apply.
+FINE, WORTH_A_LOOK, PROBLEM, NOT_ASSESSED = "fine", "worth a look", "a problem", "not assessed"
+LEVELS = (FINE, WORTH_A_LOOK, PROBLEM, NOT_ASSESSED)
+_PASSED = {FINE: True, WORTH_A_LOOK: True, PROBLEM: False, NOT_ASSESSED: None}
 
 #: scipy's Shapiro-Wilk p-value is accurate up to this many rows (Royston 1995); above, it is not run.
 SHAPIRO_MAX_ROWS = 5000
-#: VIF above which a term is flagged (common practice).
+#: VIF (GVIF^(1/df) for a block) above which a term is "worth a look" (common practice).
 VIF_LIMIT = 10.0
-#: Condition number of the standardised design above which collinearity is flagged (common practice;
-#: Belsley, Kuh & Welsch 1980 discuss 30 as a level where dependencies start to matter).
+#: VIF above which collinearity is "a problem": the term shares over 99 % of its variation with the
+#: others (common practice; O'Brien 2007, Quality & Quantity 41, 673-690, shows why 10 alone is no verdict).
+VIF_PROBLEM = 100.0
+#: Condition number of the standardised design above which collinearity is "worth a look", and above
+#: which it is "a problem": Belsley, Kuh & Welsch (1980) read 30 to 100 as moderate to strong
+#: dependencies and above 100 as strong (bands quoted from memory; their scaling is not centred).
 CONDITION_LIMIT = 30.0
-#: Durbin-Watson statistics inside this range are read as no first-order autocorrelation (common practice).
+CONDITION_PROBLEM = 100.0
+#: Durbin-Watson statistics inside this range are "fine" (no first-order autocorrelation to speak of),
+#: outside the wider one "a problem" (|ρ̂| ≈ |1 − d/2| above 0.5); between, "worth a look" (common practice).
 DURBIN_WATSON_RANGE = (1.5, 2.5)
+DURBIN_WATSON_PROBLEM_RANGE = (1.0, 3.0)
+#: Sample skewness |g₁| above which the residuals' shape is "worth a look" / "a problem" (Bulmer 1979,
+#: Principles of Statistics, calls 0.5-1 moderately and above 1 highly skewed; quoted from memory).
+SKEWNESS_LOOK, SKEWNESS_PROBLEM = 0.5, 1.0
+#: Excess kurtosis g₂ above which (or, for the first, below minus which) the shape is "worth a look" /
+#: "a problem" (common practice).  Only heavy tails (g₂ > 2) are "a problem": light tails cost
+#: least squares little.
+EXCESS_KURTOSIS_LOOK, EXCESS_KURTOSIS_PROBLEM = 1.0, 2.0
+#: Up to this many rows a rejected normality test is "worth a look" even when the estimated departure is
+#: small, and "a problem" at p < NORMALITY_STRONG_P: with few rows the coefficient tests lean on the
+#: normal shape and skewness and kurtosis are estimated roughly (our own rule; common practice).
+SMALL_SAMPLE_ROWS = 100
+NORMALITY_STRONG_P = 0.001
+#: Cohen's f² below which a rejected RESET or Breusch-Pagan test is "worth a look" rather than
+#: "a problem": Cohen (1988), Statistical Power Analysis for the Behavioral Sciences, 2nd ed., calls
+#: f² = 0.02 a small effect.
+EFFECT_F2_SMALL = 0.02
+#: Leverage above which a row is "worth a look" (and above 2k/n), and "a problem" (and above 2k/n):
+#: Huber (1981), Robust Statistics, reads hᵢᵢ ≤ 0.2 as safe, 0.2-0.5 as risky, above 0.5 as to be avoided.
+LEVERAGE_LOOK, LEVERAGE_PROBLEM = 0.2, 0.5
+#: Percentiles of F(k, n − k) that Cook's distance is compared with: above the 20th a row is "worth a
+#: look" (Kutner, Nachtsheim, Neter & Li 2005, Applied Linear Statistical Models, 5th ed., sec. 10.4:
+#: below the 10th-20th percentile a row has little influence; quoted from memory), above the median
+#: "a problem" (Cook & Weisberg 1982, Residuals and Influence in Regression).
+COOKS_LOOK_PERCENTILE, COOKS_PROBLEM_PERCENTILE = 0.2, 0.5
+#: Rows above 4/n make Cook's distance "worth a look" only when they outnumber the count expected with
+#: normal errors by more than this many standard deviations (our own rule; see ``_influence_checks``).
+EXCESS_ROWS_SD = 3.0
+#: At most this many rows are named in a check's verdict, largest first.
+ROWS_LISTED = 10
 
 _REFERENCES = {
     "reset": "Ramsey, J. B. (1969). Tests for specification errors in classical linear least-squares "
-             "regression analysis. J. R. Statist. Soc. B 31(2), 350-371.",
+             "regression analysis. J. R. Statist. Soc. B 31(2), 350-371. Size: Cohen's f² below 0.02 is "
+             "small (Cohen 1988).",
     "shapiro_wilk": "Shapiro, S. S. and Wilk, M. B. (1965). An analysis of variance test for normality. "
-                    "Biometrika 52, 591-611; p-value by Royston (1995), AS R94.",
+                    "Biometrika 52, 591-611; p-value by Royston (1995), AS R94. Size bands: skewness 0.5 "
+                    "and 1 (Bulmer 1979), excess kurtosis 1 and 2 (common practice).",
     "jarque_bera": "Jarque, C. M. and Bera, A. K. (1980). Efficient tests for normality, homoscedasticity "
-                   "and serial independence of regression residuals. Economics Letters 6(3), 255-259.",
+                   "and serial independence of regression residuals. Economics Letters 6(3), 255-259. "
+                   "Size bands: skewness 0.5 and 1 (Bulmer 1979), excess kurtosis 1 and 2 (common practice).",
     "breusch_pagan": "Breusch, T. S. and Pagan, A. R. (1979). Econometrica 47(5), 1287-1294; studentised "
-                     "form of Koenker, R. (1981). J. Econometrics 17, 107-112.",
+                     "form of Koenker, R. (1981). J. Econometrics 17, 107-112. Size: Cohen's f² below 0.02 "
+                     "is small (Cohen 1988).",
     "durbin_watson": "Durbin, J. and Watson, G. S. (1950, 1951). Testing for serial correlation in least "
                      "squares regression I, II. Biometrika 37, 409-428; 38, 159-178.",
     "vif": "Marquardt, D. W. (1970). Technometrics 12(3), 591-612; generalised VIF for blocks: Fox, J. and "
-           "Monette, G. (1992). JASA 87, 178-183. Limit 10: common practice.",
+           "Monette, G. (1992). JASA 87, 178-183. Limits 10 and 100: common practice.",
     "condition_number": "Belsley, D. A., Kuh, E. and Welsch, R. E. (1980). Regression Diagnostics. Wiley. "
-                        "Limit 30: common practice.",
+                        "Bands 30 and 100 (from memory).",
+    "outlier": " Rows named by the mean-shift outlier test: externally studentised residual against "
+               "t(n-k-1), Bonferroni-adjusted (Cook, R. D. and Weisberg, S. 1982, Residuals and Influence in "
+               "Regression, ch. 2).",
     "leverage": "Hoaglin, D. C. and Welsch, R. E. (1978). The hat matrix in regression and ANOVA. "
-                "American Statistician 32(1), 17-22 (limit 2k/n).",
+                "American Statistician 32(1), 17-22 (screening cut-off 2k/n); Huber, P. J. (1981). Robust "
+                "Statistics. Wiley (0.2 risky, above 0.5 to be avoided).",
     "cooks_distance": "Cook, R. D. (1977). Detection of influential observation in linear regression. "
-                      "Technometrics 19(1), 15-18. Limit 4/n: common practice.",
+                      "Technometrics 19(1), 15-18; Cook, R. D. and Weisberg, S. (1982). Residuals and "
+                      "Influence in Regression. Chapman & Hall (median of F(k, n-k)); Kutner, M. H. et al. "
+                      "(2005). Applied Linear Statistical Models, 5th ed. (20th percentile). Screening "
+                      "cut-off 4/n: common practice.",
 }
 
 
@@ -85,13 +165,26 @@ class Check:
     pvalue : float or None
         None for checks judged by a threshold rather than a test.
     passed : bool or None
-        None when the check was not assessed (the verdict says why).
+        Kept for compatibility with the level: True for ``"fine"`` and
+        ``"worth a look"``, False for ``"a problem"``, None for
+        ``"not assessed"`` (the verdict says why).
     verdict : str
         One plain sentence with the number behind it.
     reference : str
-        Published source of the test or of the threshold.
+        Published source of the test and of the thresholds.
     remedy : str or None
-        What to try when the check fails.
+        What to try or to look at when the check is not fine.
+    level : str
+        ``"fine"``, ``"worth a look"``, ``"a problem"`` or ``"not assessed"``
+        (see :data:`LEVELS`).  When not given it follows ``passed``
+        (True → fine, False → a problem, None → not assessed); when given it
+        must agree with ``passed``.
+    rows : tuple of str
+        The rows named in the verdict (at most :data:`ROWS_LISTED`, largest
+        first), as the verdict names them: by the identifier column, or by
+        data row of the file counting from 1.
+    rows_not_listed : int
+        How many more rows are above the check's cut-off than are named.
     """
 
     name: str
@@ -102,6 +195,24 @@ class Check:
     verdict: str
     reference: str
     remedy: str | None = None
+    level: str | None = None
+    rows: tuple[str, ...] = ()
+    rows_not_listed: int = 0
+
+    def __post_init__(self):
+        if self.level is None:
+            object.__setattr__(self, "level", {True: FINE, False: PROBLEM, None: NOT_ASSESSED}[self.passed])
+        elif self.level not in LEVELS:
+            raise OptionError(f"check level must be one of {', '.join(map(repr, LEVELS))} (got {self.level!r})")
+        elif _PASSED[self.level] is not self.passed:
+            raise OptionError(f"check {self.name!r}: level {self.level!r} needs passed={_PASSED[self.level]!r} "
+                              f"(got {self.passed!r})")
+
+
+def _check(name, aspect, statistic, pvalue, level, verdict, reference, remedy=None, rows=(), rows_not_listed=0):
+    """A :class:`Check` whose ``passed`` follows from its level."""
+    return Check(name, aspect, statistic, pvalue, _PASSED[level], verdict, reference, remedy, level,
+                 tuple(rows), int(rows_not_listed))
 
 
 @dataclass(frozen=True, eq=False)
@@ -130,8 +241,15 @@ class Diagnosis:
         (GVIF^(1/df), comparable with a VIF) and ``flagged``.
     condition_number : float
     flagged_rows : DataFrame
-        ``row`` (position in the data used), ``leverage``, ``cooks_distance``,
-        ``studentized_residual`` and ``reason``.
+        Every row above a screening cut-off (leverage 2k/n or Cook's distance
+        4/n), largest Cook's distance first: ``row`` (0-based position in the
+        data used), ``name`` (as the verdicts name it, see ``rows_named``),
+        ``leverage``, ``cooks_distance``, ``studentized_residual`` and
+        ``reason``.  The verdicts name at most :data:`ROWS_LISTED` of them.
+    rows_named : str
+        How rows are named: ``"by <identifier column>"`` when intake set an
+        identifier column aside, otherwise ``"data rows of the file, counting
+        from 1"`` (or ``"rows of the table, counting from 1"`` for a DataFrame).
     """
 
     subset: tuple[int, ...]
@@ -151,6 +269,7 @@ class Diagnosis:
     term_vif: pd.DataFrame
     condition_number: float
     flagged_rows: pd.DataFrame
+    rows_named: str = "rows, counting from 1"
 
     def check(self, name: str) -> Check:
         """The check called ``name``; raises listing the names when unknown."""
@@ -163,23 +282,30 @@ class Diagnosis:
         """The checks as a DataFrame (one row per check)."""
         return pd.DataFrame([
             {"aspect": c.aspect, "check": c.name, "statistic": c.statistic, "pvalue": c.pvalue,
-             "passed": c.passed, "verdict": c.verdict, "remedy": c.remedy, "reference": c.reference}
+             "level": c.level, "passed": c.passed, "verdict": c.verdict, "remedy": c.remedy,
+             "reference": c.reference}
             for c in self.checks
         ])
 
     @property
     def remedies(self) -> tuple[str, ...]:
-        """Remedies of the failed checks, each once."""
+        """Remedies of the checks that are "a problem", then of those "worth a look", each once."""
         out: list[str] = []
-        for c in self.checks:
-            if c.passed is False and c.remedy and c.remedy not in out:
-                out.append(c.remedy)
+        for level in (PROBLEM, WORTH_A_LOOK):
+            for c in self.checks:
+                if c.level == level and c.remedy and c.remedy not in out:
+                    out.append(c.remedy)
         return tuple(out)
 
     @property
     def failed(self) -> tuple[str, ...]:
-        """Names of the failed checks."""
-        return tuple(c.name for c in self.checks if c.passed is False)
+        """Names of the checks whose level is "a problem" (``passed`` False)."""
+        return tuple(c.name for c in self.checks if c.level == PROBLEM)
+
+    @property
+    def worth_a_look(self) -> tuple[str, ...]:
+        """Names of the checks whose level is "worth a look"."""
+        return tuple(c.name for c in self.checks if c.level == WORTH_A_LOOK)
 
 
 # --------------------------------------------------------------------------- helpers
@@ -190,14 +316,18 @@ def _p(value: float) -> str:
 
 
 def _ols(design, y):
-    """QR least squares: coefficients, fitted, residuals, hat diagonal, rank."""
-    q, r = np.linalg.qr(design)
-    diag = np.abs(np.diag(r))
-    rank = int(np.sum(diag > diag.max() * 1e-10)) if diag.size else 0
-    beta = np.linalg.solve(r, q.T @ y) if rank == design.shape[1] else np.linalg.lstsq(design, y, rcond=None)[0]
-    fitted = design @ beta
-    hat = np.sum(q * q, axis=1)
-    return beta, fitted, y - fitted, hat, rank
+    """QR least squares on the column-scaled design: coefficients, fitted, residuals, hat diagonal, rank.
+
+    The first column (the intercept, √w under weights) is projected out of the
+    others, which are scaled to unit length before the QR and the rank test
+    (see :func:`selectkit.rank._least_squares`, the one home of this fit):
+    the raw design's scale — an offset of 10⁹, a column in 10⁻³ beside one in
+    10⁹ — never decides the rank.
+    """
+    from .rank import _least_squares
+
+    fit = _least_squares(design, y)
+    return fit.coef, fit.fitted, fit.residuals, fit.hat, fit.rank
 
 
 def _rss(design, y):
@@ -219,8 +349,20 @@ def _model_arrays(candidates, subset):
 # --------------------------------------------------------------------------- checks
 
 
+def _test_level(p, alpha, effect):
+    """Level of a test with an effect size: fine unless it rejects; then Cohen's f² decides."""
+    if p >= alpha:
+        return FINE
+    return PROBLEM if effect >= EFFECT_F2_SMALL else WORTH_A_LOOK
+
+
 def _reset(design, y, fitted, rss, alpha):
-    """Ramsey's RESET: F test of adding ŷ² and ŷ³ (powers of the standardised fitted values)."""
+    """Ramsey's RESET: F test of adding ŷ² and ŷ³ (powers of the standardised fitted values).
+
+    The size of a bend is Cohen's f² of the two added powers,
+    f² = (rss − rss_aug) / rss_aug: a rejection with f² below 0.02 (Cohen's
+    small effect) is "worth a look", above it "a problem".
+    """
     n, k = design.shape
     spread = fitted.std()
     if k == 1 or spread <= 1e-12 * max(1.0, np.abs(fitted).max()):
@@ -237,19 +379,38 @@ def _reset(design, y, fitted, rss, alpha):
     dfd = n - k - 2
     f = ((rss - rss_aug) / 2.0) / (rss_aug / dfd)
     p = float(stats.f.sf(f, 2, dfd))
-    passed = p >= alpha
-    if passed:
-        verdict = f"RESET F = {f:.3g}, {_p(p)}: no sign that the mean bends away from these terms."
+    effect = (rss - rss_aug) / rss_aug if rss_aug > 0 else np.inf
+    level = _test_level(p, alpha, effect)
+    head = f"RESET F = {f:.3g}, {_p(p)}"
+    if level == FINE:
+        verdict = f"{head}: no sign that the mean bends away from these terms."
+    elif level == WORTH_A_LOOK:
+        verdict = (f"{head}: the test detects a bend, but a slight one (f² = {effect:.2g}, below Cohen's small "
+                   f"effect {EFFECT_F2_SMALL:g}); with {n} rows even slight bends are detected.")
     else:
-        verdict = (f"RESET F = {f:.3g}, {_p(p)}: the mean response bends in a way the terms do not "
+        verdict = (f"{head}, f² = {effect:.2g}: the mean response bends in a way the terms do not "
                    "follow; the model misses a curve or a term.")
-    return Check("reset", "linearity", float(f), p, passed, verdict, _REFERENCES["reset"],
-                 None if passed else
-                 "Try a transformed form of a term (log, square root, reciprocal) or a missing term; "
-                 "the residuals-against-term plots show which term bends.")
+    return _check("reset", "linearity", float(f), p, level, verdict, _REFERENCES["reset"],
+                  None if level == FINE else
+                  "Try a transformed form of a term (log, square root, reciprocal) or a missing term; "
+                  "the residuals-against-term plots show which term bends.")
 
 
-def _shapiro(resid, alpha):
+def _shape(resid):
+    """Sample skewness g₁ = m₃/m₂^{3/2} and excess kurtosis g₂ = m₄/m₂² − 3 (biased central moments).
+
+    The moment estimators of Jarque & Bera (1980); Joanes & Gill (1998,
+    The Statistician 47, 183-189) call them g₁ and g₂.  None when the
+    residuals do not vary.
+    """
+    centred = resid - resid.mean()
+    m2 = float(np.mean(centred ** 2))
+    if m2 <= 0:
+        return None
+    return float(np.mean(centred ** 3) / m2 ** 1.5), float(np.mean(centred ** 4) / m2 ** 2 - 3.0)
+
+
+def _shapiro(resid, alpha, outliers=((), "", 0)):
     n = resid.shape[0]
     if n > SHAPIRO_MAX_ROWS:
         return Check("shapiro_wilk", "normality", None, None, None,
@@ -259,43 +420,97 @@ def _shapiro(resid, alpha):
     if n < 3:
         return Check("shapiro_wilk", "normality", None, None, None,
                      f"Not run: the test needs at least 3 rows ({n} given).", _REFERENCES["shapiro_wilk"])
+    shape = _shape(resid)
+    if shape is None:
+        return Check("shapiro_wilk", "normality", None, None, None,
+                     "Not assessed: the residuals are all zero.", _REFERENCES["shapiro_wilk"])
     w, p = stats.shapiro(resid)
-    return _normality_check("shapiro_wilk", "Shapiro-Wilk W", float(w), float(p), alpha, n)
+    return _normality_check("shapiro_wilk", "Shapiro-Wilk W", float(w), float(p), alpha, n, shape, outliers)
 
 
-def _jarque_bera(resid, alpha):
-    """JB = n/6 · (S² + (K − 3)²/4), S and K from the biased central moments; χ²(2) p-value."""
+def _jarque_bera(resid, alpha, outliers=((), "", 0)):
+    """JB = n/6 · (g₁² + g₂²/4), g₁, g₂ from the biased central moments; χ²(2) p-value."""
     n = resid.shape[0]
-    centred = resid - resid.mean()
-    m2 = np.mean(centred ** 2)
-    if m2 <= 0:
+    shape = _shape(resid)
+    if shape is None:
         return Check("jarque_bera", "normality", None, None, None,
                      "Not assessed: the residuals are all zero.", _REFERENCES["jarque_bera"])
-    skew = np.mean(centred ** 3) / m2 ** 1.5
-    kurt = np.mean(centred ** 4) / m2 ** 2
-    jb = n / 6.0 * (skew ** 2 + (kurt - 3.0) ** 2 / 4.0)
+    skew, excess = shape
+    jb = n / 6.0 * (skew ** 2 + excess ** 2 / 4.0)
     p = float(stats.chi2.sf(jb, 2))
-    check = _normality_check("jarque_bera", "Jarque-Bera", float(jb), p, alpha, n)
-    extra = f" (skewness {skew:.2f}, kurtosis {kurt:.2f})"
-    return Check(check.name, check.aspect, check.statistic, check.pvalue, check.passed,
-                 check.verdict[:-1] + extra + ".", check.reference, check.remedy)
+    return _normality_check("jarque_bera", "Jarque-Bera", float(jb), p, alpha, n, shape, outliers)
 
 
-def _normality_check(name, label, statistic, p, alpha, n):
-    passed = p >= alpha
-    if passed:
-        verdict = f"{label} = {statistic:.4g}, {_p(p)}: the residuals look compatible with normal errors."
+def _normality_level(p, alpha, n, skew, excess):
+    """Level of a normality test, weighing the size of the departure as well as the p-value.
+
+    * p ≥ alpha: "fine".
+    * Otherwise "a problem" when |g₁| > 1 or g₂ > 2; "worth a look" when
+      |g₁| > 0.5 or |g₂| > 1.
+    * A rejection with a smaller estimated departure is "fine" with more than
+      :data:`SMALL_SAMPLE_ROWS` rows (the test detects trivial departures);
+      with fewer it is "worth a look", and "a problem" at p < 0.001.
+
+    Returns the level and which rule decided (``"test"``, ``"size"``,
+    ``"few rows"``, ``"small"``).
+    """
+    if p >= alpha:
+        return FINE, "test"
+    if abs(skew) > SKEWNESS_PROBLEM or excess > EXCESS_KURTOSIS_PROBLEM:
+        return PROBLEM, "size"
+    few = n <= SMALL_SAMPLE_ROWS
+    if few and p < NORMALITY_STRONG_P:
+        return PROBLEM, "few rows"
+    if abs(skew) > SKEWNESS_LOOK or abs(excess) > EXCESS_KURTOSIS_LOOK:
+        return WORTH_A_LOOK, "size"
+    if few:
+        return WORTH_A_LOOK, "few rows"
+    return FINE, "small"
+
+
+def _normality_check(name, label, statistic, p, alpha, n, shape, outliers=((), "", 0)):
+    skew, excess = shape
+    level, rule = _normality_level(p, alpha, n, skew, excess)
+    head = f"{label} = {statistic:.4g}, {_p(p)}"
+    size = f"skewness {skew:.2f}, excess kurtosis {excess:.2f}"
+    look = f"|skewness| > {SKEWNESS_LOOK:g} or |excess kurtosis| > {EXCESS_KURTOSIS_LOOK:g}"
+    problem = f"|skewness| > {SKEWNESS_PROBLEM:g} or excess kurtosis > {EXCESS_KURTOSIS_PROBLEM:g}"
+    bands = f"a problem from {problem}" if level == PROBLEM else f"worth a look from {look}, a problem from {problem}"
+    if rule == "test":
+        verdict = f"{head} ({size}): the residuals look compatible with normal errors."
+    elif rule == "small":
+        verdict = (f"{head}: the test detects a departure, but its size is small ({size}; worth a look only from "
+                   f"{look}); with {n} rows even slight departures are detected, and this one matters little "
+                   "for the coefficients.")
+    elif rule == "few rows":
+        verdict = (f"{head}: the residuals depart from a normal shape ({size}); with only {n} rows the size "
+                   "is estimated roughly and the coefficient tests lean on the normal shape"
+                   + (", and the test rejects strongly." if level == PROBLEM else "."))
+    elif level == PROBLEM:
+        verdict = f"{head}: the residuals depart from a normal shape by a sizeable amount ({size}; {bands})."
     else:
-        verdict = f"{label} = {statistic:.4g}, {_p(p)}: the residuals depart from a normal shape."
-    remedy = None if passed else (
-        "Look at the Q-Q plot and the flagged rows first; with many rows, mild non-normality matters "
-        "little for the coefficients, while skewed errors often call for a response transform (log or "
-        "Box-Cox)." + (" With this many rows the test detects even small departures." if n > 500 else ""))
-    return Check(name, "normality", statistic, p, passed, verdict, _REFERENCES[name], remedy)
+        light = abs(skew) <= SKEWNESS_LOOK and excess < -EXCESS_KURTOSIS_LOOK
+        verdict = (f"{head}: the residuals depart from a normal shape by a moderate amount ({size}; {bands})"
+                   + ("; the tails are lighter than normal, which costs least squares little." if light else "."))
+    names, text, rest = outliers if level != FINE else ((), "", 0)
+    if text:
+        verdict += (f" Rows far off the fit (Bonferroni outlier test at {alpha:g}), largest |studentised "
+                    f"residual| first, {text}.")
+    remedy = None if level == FINE else (
+        "Look at the Q-Q plot and the rows named here and under influence first; with many rows, mild "
+        "non-normality matters little for the coefficients, while skewed errors often call for a response "
+        "transform (log or Box-Cox) and a few rows far off the fit for a check of how they were recorded.")
+    return _check(name, "normality", statistic, p, level, verdict, _REFERENCES[name] + _REFERENCES["outlier"],
+                  remedy, names, rest)
 
 
 def _breusch_pagan(design, resid, fitted, alpha):
-    """Koenker's studentised Breusch-Pagan: LM = n·R² of e² on the design; χ²(k − 1)."""
+    """Koenker's studentised Breusch-Pagan: LM = n·R² of e² on the design; χ²(k − 1).
+
+    The size of a change in spread is Cohen's f² = R²/(1 − R²) of that
+    auxiliary regression: a rejection with f² below 0.02 is "worth a look",
+    above it "a problem".
+    """
     n, k = design.shape
     if k == 1:
         return Check("breusch_pagan", "constant variance", None, None, None,
@@ -307,23 +522,31 @@ def _breusch_pagan(design, resid, fitted, alpha):
     if tss_aux <= 0:
         return Check("breusch_pagan", "constant variance", None, None, None,
                      "Not assessed: the squared residuals do not vary.", _REFERENCES["breusch_pagan"])
-    lm = n * (1.0 - rss_aux / tss_aux)
+    r2 = 1.0 - rss_aux / tss_aux
+    lm = n * r2
     p = float(stats.chi2.sf(lm, k - 1))
-    passed = p >= alpha
+    effect = r2 / (1.0 - r2) if r2 < 1 else np.inf
+    level = _test_level(p, alpha, effect)
     grows = np.corrcoef(np.abs(resid), fitted)[0, 1] > 0 if fitted.std() > 0 else False
-    if passed:
-        verdict = f"Breusch-Pagan LM = {lm:.3g}, {_p(p)}: no sign that the spread of the errors changes."
+    head = f"Breusch-Pagan LM = {lm:.3g}, {_p(p)}"
+    if level == FINE:
+        verdict = f"{head}: no sign that the spread of the errors changes."
         remedy = None
     else:
-        verdict = (f"Breusch-Pagan LM = {lm:.3g}, {_p(p)}: the spread of the errors changes with the terms"
-                   + (", growing with the fitted value." if grows else "."))
+        if level == PROBLEM:
+            verdict = (f"{head}, f² = {effect:.2g}: the spread of the errors changes with the terms"
+                       + (", growing with the fitted value." if grows else "."))
+        else:
+            verdict = (f"{head}: the spread of the errors changes with the terms, but slightly (f² = "
+                       f"{effect:.2g} of the squared residuals on the terms, below Cohen's small effect "
+                       f"{EFFECT_F2_SMALL:g})" + (", growing with the fitted value." if grows else "."))
         remedy = ("A response transform (log or Box-Cox) often steadies a spread that grows with the fitted "
                   "value; otherwise use row weights or heteroscedasticity-consistent standard errors."
                   if grows else
                   "Look at the scale-location plot; use row weights for the term the spread follows, or "
                   "heteroscedasticity-consistent standard errors.")
-    return Check("breusch_pagan", "constant variance", float(lm), p, passed, verdict,
-                 _REFERENCES["breusch_pagan"], remedy)
+    return _check("breusch_pagan", "constant variance", float(lm), p, level, verdict,
+                  _REFERENCES["breusch_pagan"], remedy)
 
 
 def _durbin_watson(resid, time_ordered):
@@ -333,18 +556,22 @@ def _durbin_watson(resid, time_ordered):
                      _REFERENCES["durbin_watson"])
     dw = float(np.sum(np.diff(resid) ** 2) / np.sum(resid ** 2))
     low, high = DURBIN_WATSON_RANGE
-    passed = low <= dw <= high
-    if passed:
+    worst_low, worst_high = DURBIN_WATSON_PROBLEM_RANGE
+    if low <= dw <= high:
+        level = FINE
         verdict = f"Durbin-Watson = {dw:.3f}, inside {low}-{high}: no sign of correlation between neighbouring rows."
     else:
         kind = "positive" if dw < low else "negative"
-        verdict = (f"Durbin-Watson = {dw:.3f}, outside {low}-{high} (common practice): neighbouring rows have "
-                   f"{kind}ly correlated errors.")
-    return Check("durbin_watson", "independence", dw, None, passed, verdict,
-                 _REFERENCES["durbin_watson"] + " Range 1.5-2.5: common practice.",
-                 None if passed else
-                 "Errors follow each other in time: add a trend or season term, model the correlation "
-                 "(e.g. a time-series error model), or widen the standard errors (HAC).")
+        level = WORTH_A_LOOK if worst_low <= dw <= worst_high else PROBLEM
+        where = (f"outside {low}-{high} but inside {worst_low:g}-{worst_high:g}" if level == WORTH_A_LOOK
+                 else f"outside {worst_low:g}-{worst_high:g}")
+        verdict = (f"Durbin-Watson = {dw:.3f}, {where} (common practice): neighbouring rows have "
+                   f"{kind}ly correlated errors (first-order correlation about {1 - dw / 2:.2f}).")
+    return _check("durbin_watson", "independence", dw, None, level, verdict,
+                  _REFERENCES["durbin_watson"] + " Ranges 1.5-2.5 and 1-3: common practice.",
+                  None if level == FINE else
+                  "Errors follow each other in time: add a trend or season term, model the correlation "
+                  "(e.g. a time-series error model), or widen the standard errors (HAC).")
 
 
 def _vif_tables(x, labels, owners):
@@ -395,6 +622,7 @@ def _vif_tables(x, labels, owners):
 
 
 def _vif_check(term_vif):
+    """Largest VIF (GVIF^(1/df) for a block): fine up to 10, worth a look up to 100, a problem above."""
     if term_vif.empty:
         return Check("vif", "multicollinearity", None, None, None,
                      "Not assessed: the model has no term besides the intercept.", _REFERENCES["vif"])
@@ -406,25 +634,36 @@ def _vif_check(term_vif):
     value = float(worst["gvif_per_column"])
     if not flagged:
         verdict = f"Largest VIF {value:.3g} ({worst['term']}) is below {VIF_LIMIT:g}: the terms are not strongly collinear."
-        return Check("vif", "multicollinearity", value, None, True, verdict, _REFERENCES["vif"])
+        return _check("vif", "multicollinearity", value, None, FINE, verdict, _REFERENCES["vif"])
+    level = PROBLEM if value > VIF_PROBLEM else WORTH_A_LOOK
     verdict = (f"Largest VIF {value:.3g} ({worst['term']}); {len(flagged)} term(s) above {VIF_LIMIT:g}: "
-               + ", ".join(flagged) + ". Their coefficients are unstable.")
-    return Check("vif", "multicollinearity", value, None, False, verdict, _REFERENCES["vif"],
-                 "Keep one of the correlated terms, combine them, or centre the components of an "
-                 "interaction; the fitted values are unaffected, only the split between terms is.")
+               + ", ".join(flagged)
+               + (f". Above {VIF_PROBLEM:g} a term shares over 99 % of its variation with the others: its "
+                  "coefficient is unstable." if level == PROBLEM else
+                  f", below {VIF_PROBLEM:g}: their coefficients are less precise than they would be apart."))
+    return _check("vif", "multicollinearity", value, None, level, verdict, _REFERENCES["vif"],
+                  "Keep one of the correlated terms, combine them, or centre the components of an "
+                  "interaction; the fitted values are unaffected, only the split between terms is.")
 
 
 def _condition_check(condition, p):
+    """Condition number of the standardised design: fine up to 30, worth a look up to 100, a problem above."""
     if p < 2:
         return Check("condition_number", "multicollinearity", None if p == 0 else 1.0, None, None,
                      "Not assessed: fewer than two terms.", _REFERENCES["condition_number"])
-    passed = bool(condition <= CONDITION_LIMIT)
-    verdict = (f"Condition number of the standardised design = {condition:.3g}, "
-               + (f"below {CONDITION_LIMIT:g}." if passed else
-                  f"above {CONDITION_LIMIT:g}: near-dependencies among the terms."))
-    return Check("condition_number", "multicollinearity", condition, None, passed, verdict,
-                 _REFERENCES["condition_number"],
-                 None if passed else "See the VIFs for which terms are involved; drop or combine them.")
+    if condition <= CONDITION_LIMIT:
+        level = FINE
+        tail = f"below {CONDITION_LIMIT:g}."
+    elif condition <= CONDITION_PROBLEM:
+        level = WORTH_A_LOOK
+        tail = f"between {CONDITION_LIMIT:g} and {CONDITION_PROBLEM:g}: moderate near-dependencies among the terms."
+    else:
+        level = PROBLEM
+        tail = f"above {CONDITION_PROBLEM:g}: strong near-dependencies among the terms."
+    verdict = f"Condition number of the standardised design = {condition:.3g}, " + tail
+    return _check("condition_number", "multicollinearity", condition, None, level, verdict,
+                  _REFERENCES["condition_number"],
+                  None if level == FINE else "See the VIFs for which terms are involved; drop or combine them.")
 
 
 def _influence(resid, hat, n, k, rss):
@@ -437,46 +676,216 @@ def _influence(resid, hat, n, k, rss):
     return studentized, cooks
 
 
-def _influence_checks(hat, cooks, studentized, n, k):
-    leverage_limit = 2.0 * k / n
-    cooks_limit = 4.0 / n
-    high_leverage = np.flatnonzero(hat > leverage_limit)
-    high_cooks = np.flatnonzero(~(cooks <= cooks_limit))  # NaN/inf (hᵢᵢ = 1) count as flagged
-    rows = sorted(set(high_leverage) | set(high_cooks))
+def _outlier_rows(studentized, n, k, alpha, namer, how):
+    """Rows whose response is far off the fit: the mean-shift outlier test with a Bonferroni bound.
+
+    tᵢ = rᵢ √((n − k − 1)/(n − k − rᵢ²)), the externally studentised residual
+    from the internally studentised rᵢ, is t(n − k − 1) under normal errors;
+    a row is named when n · 2·P(T > |tᵢ|) < alpha (Cook & Weisberg 1982,
+    ch. 2; equals ``statsmodels`` ``outlier_test(method="bonf")``).
+    Returns (names, text, rest) as :func:`_listed`, text prefixed by ``how``.
+    """
+    dof = n - k - 1
+    if dof < 1:
+        return (), "", 0
+    r2 = studentized ** 2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        external = np.abs(studentized) * np.sqrt(dof / (n - k - r2))
+    external = np.where(np.isfinite(external), external, 0.0)
+    bonferroni = np.minimum(1.0, n * 2.0 * stats.t.sf(external, dof))
+    far = np.flatnonzero(bonferroni < alpha)
+    names, text, rest = _listed(far, external, namer)
+    return names, (f"{how}: {text}" if text else ""), rest
+
+
+def _row_namer(candidates, n):
+    """How rows are named in verdicts, and a function from 0-based position to that name.
+
+    By the first identifier column intake set aside (``Dataset.identifiers``)
+    when there is one; otherwise by the 1-based data row of the file
+    (``Dataset.source_rows`` + 1, so rows dropped for missing values keep
+    their place), or 1-based position when the candidates carry no dataset.
+    """
+    dataset = getattr(candidates, "dataset", None)
+    source_rows = getattr(dataset, "source_rows", None)
+    if source_rows is not None and len(source_rows) != n:
+        source_rows = None
+    identifiers = getattr(dataset, "identifiers", None)
+    if identifiers is not None and identifiers.shape[1] > 0 and len(identifiers) == n:
+        column = str(identifiers.columns[0])
+        values = identifiers.iloc[:, 0].to_numpy(dtype=object)
+
+        def by_identifier(i):
+            value = values[i]
+            if value is None or (isinstance(value, float) and np.isnan(value)):
+                row = int(source_rows[i]) + 1 if source_rows is not None else i + 1
+                return f"(no {column}, data row {row})"
+            if isinstance(value, (float, np.floating)) and float(value).is_integer():
+                return str(int(value))
+            return str(value)
+
+        return f"by {column}", by_identifier
+    if source_rows is not None:
+        report = getattr(dataset, "report", None)
+        where = "data rows of the file" if getattr(report, "source", None) is not None else "rows of the table"
+        return f"{where}, counting from 1", lambda i: str(int(source_rows[i]) + 1)
+    return "rows, counting from 1", lambda i: str(int(i) + 1)
+
+
+def _listed(indices, values, namer):
+    """At most ROWS_LISTED of ``indices``, largest ``values`` first (non-finite first): names, text, rest."""
+    indices = np.asarray(indices, dtype=np.int64)
+    if indices.size == 0:
+        return (), "", 0
+    key = np.where(np.isfinite(values[indices]), values[indices], np.inf)
+    order = indices[np.lexsort((indices, -key))]  # largest first, ties by position
+    shown = order[:ROWS_LISTED]
+    names = tuple(namer(int(i)) for i in shown)
+    rest = int(order.size - shown.size)
+    text = ", ".join(f"{name} ({values[i]:.3g})" for name, i in zip(names, shown))
+    return names, text + (f" and {rest} more" if rest else ""), rest
+
+
+def _count(number, what="row"):
+    return f"{number} {what}" + ("" if number == 1 else "s")
+
+
+def _expected_above_cooks(hat, n, k, limit):
+    """Expected number, and its standard deviation, of rows with Dᵢ > limit under normal errors.
+
+    Dᵢ = rᵢ² hᵢᵢ / (k (1 − hᵢᵢ)) with rᵢ the internally studentised residual,
+    and rᵢ²/(n − k) ~ Beta(½, (n − k − 1)/2) under normal errors given the
+    design (Beckman & Trussell 1974, JASA 69, 199-201; Cook & Weisberg 1982,
+    sec. 2.2 — quoted from memory).  So P(Dᵢ > c) =
+    P(Beta > c k (1 − hᵢᵢ) / (hᵢᵢ (n − k))), and the count above c is a sum
+    of nearly independent indicators: mean Σpᵢ, variance Σpᵢ(1 − pᵢ).  The
+    rows share s², which makes the indicators slightly negatively correlated,
+    so this standard deviation is a little too large and the "more than
+    chance" rule errs towards "fine" (checked against a simulation in the
+    tests).  None when n − k − 1 < 1.
+    """
+    if n - k - 1 < 1:
+        return None
+    with np.errstate(divide="ignore", invalid="ignore"):
+        bound = limit * k * (1.0 - hat) / (hat * (n - k))
+    bound = np.where(hat >= 1.0, 0.0, bound)
+    share = stats.beta.sf(np.clip(bound, 0.0, 1.0), 0.5, (n - k - 1) / 2.0)
+    return float(share.sum()), float(np.sqrt(np.sum(share * (1.0 - share))))
+
+
+def _influence_checks(hat, cooks, studentized, n, k, rss, namer, how):
+    """Leverage and Cook's distance checks, and the table of rows above a screening cut-off.
+
+    Cook's distance: "a problem" when a row is above the median of
+    F(k, n − k) (Cook & Weisberg 1982); "worth a look" when a row is above
+    its 20th percentile (Kutner et al. 2005), or when more rows exceed the
+    4/n screening cut-off than normal errors would put there — the expected
+    count plus three standard deviations (see ``_expected_above_cooks``):
+    about 5 % of clean rows are above 4/n by design, so the count alone says
+    nothing; "fine" otherwise.
+
+    Leverage: "a problem" above 0.5, "worth a look" above 0.2 (Huber 1981);
+    both also need hᵢᵢ > 2k/n (Hoaglin & Welsch 1978), so that with n < 10k,
+    where 2k/n exceeds 0.2, only rows that stand apart from the average
+    leverage k/n count.  Leverage is a property of the design, not of the
+    errors, so no share of rows is expected above 2k/n by chance; rows above
+    it are named, but alone never lift the level.
+    """
+    leverage_screen = 2.0 * k / n
+    cooks_screen = 4.0 / n
+    high_leverage = np.flatnonzero(hat > leverage_screen)
+    not_finite = ~np.isfinite(cooks)
+    high_cooks = np.flatnonzero(~(cooks <= cooks_screen))  # NaN/inf (hᵢᵢ = 1) count as above
+    rows = np.union1d(high_leverage, high_cooks).astype(np.int64)
+    sort_key = np.where(np.isfinite(cooks[rows]), cooks[rows], np.inf)
+    rows = rows[np.lexsort((-hat[rows], -sort_key))]
+    in_cooks, in_leverage = set(high_cooks.tolist()), set(high_leverage.tolist())
     flagged = pd.DataFrame({
-        "row": np.array(rows, dtype=np.int64),
-        "leverage": hat[rows] if rows else np.array([]),
-        "cooks_distance": cooks[rows] if rows else np.array([]),
-        "studentized_residual": studentized[rows] if rows else np.array([]),
-        "reason": [" and ".join(r for r, hit in (("Cook's distance", i in set(high_cooks)),
-                                                 ("leverage", i in set(high_leverage))) if hit)
+        "row": rows,
+        "name": [namer(int(i)) for i in rows],
+        "leverage": hat[rows],
+        "cooks_distance": cooks[rows],
+        "studentized_residual": studentized[rows],
+        "reason": [" and ".join(r for r, hit in (("Cook's distance", int(i) in in_cooks),
+                                                 ("leverage", int(i) in in_leverage)) if hit)
                    for i in rows],
     })
-    remedy = ("Check the flagged rows for recording or entry errors and for conditions unlike the rest; "
+    remedy = ("Check the named rows for recording or entry errors and for conditions unlike the rest; "
               "refit without them only to see how much the model moves, report both fits, and never "
               "delete rows automatically.")
 
-    def listing(indices):
-        shown = ", ".join(str(int(i)) for i in indices[:10])
-        return ("row " if len(indices) == 1 else "rows ") + shown + (
-            f" and {len(indices) - 10} more" if len(indices) > 10 else "")
+    # ---- Cook's distance
+    if rss <= 0:
+        cooks_check = Check("cooks_distance", "influence", None, None, None,
+                            "Not assessed: the model fits every row exactly.", _REFERENCES["cooks_distance"])
+    else:
+        f_look = float(stats.f.ppf(COOKS_LOOK_PERCENTILE, k, n - k))
+        f_median = float(stats.f.ppf(COOKS_PROBLEM_PERCENTILE, k, n - k))
+        top = float(np.inf if not_finite.any() else cooks.max())
+        above_median = int(np.sum(not_finite | (cooks > f_median)))
+        above_look = int(np.sum(not_finite | (cooks > f_look)))
+        expected = _expected_above_cooks(hat, n, k, cooks_screen)
+        excess = expected is not None and high_cooks.size > expected[0] + EXCESS_ROWS_SD * expected[1]
+        if expected is None:
+            screen = f"{_count(high_cooks.size)} above the 4/n = {cooks_screen:.3g} screening cut-off"
+        else:
+            screen = (f"{_count(high_cooks.size)} above the 4/n = {cooks_screen:.3g} screening cut-off, where "
+                      f"normal errors would put about {expected[0]:.0f} ± {expected[1]:.0f}"
+                      + (" — more than chance explains: a group of rows, often far out in the terms, fits "
+                         "worse than the rest" if excess else
+                         (" (the cut-off flags about one clean row in twenty by design)" if n >= 100 else "")))
+        dist = f"F({k}, {n - k})"
+        if above_median:
+            level = PROBLEM
+            head = (f"Largest Cook's distance {top:.3g}; {_count(above_median)} above the median of {dist}, "
+                    f"{f_median:.3g} (Cook & Weisberg 1982): deleting such a row alone moves the coefficients "
+                    "outside their 50 % confidence region")
+        elif above_look:
+            level = WORTH_A_LOOK
+            head = (f"Largest Cook's distance {top:.3g}; {_count(above_look)} above the 20th percentile of "
+                    f"{dist}, {f_look:.3g}, but below its median {f_median:.3g}: a sizeable pull on the fit")
+        elif excess:
+            level = WORTH_A_LOOK
+            head = (f"Largest Cook's distance {top:.3g}, below the 20th percentile of {dist}, {f_look:.3g}: "
+                    "no single row moves the fit much")
+        else:
+            level = FINE
+            head = (f"Largest Cook's distance {top:.3g}, below the 20th percentile of {dist}, {f_look:.3g}: "
+                    "no row moves the fit much")
+        names, text, rest = ((), "", 0) if level == FINE else _listed(high_cooks, cooks, namer)
+        verdict = f"{head}; {screen}." + (f" Largest first, {how}: {text}." if text else "")
+        cooks_check = _check("cooks_distance", "influence", top, None, level, verdict,
+                             _REFERENCES["cooks_distance"], None if level == FINE else remedy, names, rest)
 
-    def count(indices):
-        return f"{len(indices)} row" + ("" if len(indices) == 1 else "s")
+    # ---- leverage
+    look_limit = max(LEVERAGE_LOOK, leverage_screen)
+    problem_limit = max(LEVERAGE_PROBLEM, leverage_screen)
 
-    top = float(np.nanmax(np.where(np.isfinite(cooks), cooks, np.nan))) if np.isfinite(cooks).any() else np.inf
-    cooks_check = Check(
-        "cooks_distance", "influence", top, None, bool(high_cooks.size == 0),
-        (f"Largest Cook's distance {top:.3g}; no row above 4/n = {cooks_limit:.3g}." if high_cooks.size == 0 else
-         f"Largest Cook's distance {top:.3g}; {count(high_cooks)} above 4/n = {cooks_limit:.3g}: "
-         f"{listing(high_cooks)}."),
-        _REFERENCES["cooks_distance"], None if high_cooks.size == 0 else remedy)
-    leverage_check = Check(
-        "leverage", "influence", float(hat.max()) if hat.size else None, None, bool(high_leverage.size == 0),
-        (f"Largest leverage {hat.max():.3g}; no row above 2k/n = {leverage_limit:.3g}." if high_leverage.size == 0
-         else f"Largest leverage {hat.max():.3g}; {count(high_leverage)} above 2k/n = {leverage_limit:.3g}, "
-              f"far from the others in the terms' space: {listing(high_leverage)}."),
-        _REFERENCES["leverage"], None if high_leverage.size == 0 else remedy)
+    def label(limit, published):
+        return (f"{published:g} (Huber 1981)" if limit == published else f"2k/n = {leverage_screen:.3g}")
+
+    top_h = float(hat.max())
+    above_problem = int(np.sum(hat > problem_limit))
+    above_look = int(np.sum(hat > look_limit))
+    screen = (f"{_count(high_leverage.size)} above the 2k/n = {leverage_screen:.3g} screening cut-off"
+              if high_leverage.size else f"no row above the 2k/n = {leverage_screen:.3g} screening cut-off")
+    if above_problem:
+        level = PROBLEM
+        head = (f"Largest leverage {top_h:.3g}; {_count(above_problem)} above "
+                f"{label(problem_limit, LEVERAGE_PROBLEM)}: such a row largely fits itself, and the model's "
+                "course near it rests on that row alone")
+    elif above_look:
+        level = WORTH_A_LOOK
+        head = (f"Largest leverage {top_h:.3g}; {_count(above_look)} above {label(look_limit, LEVERAGE_LOOK)}, "
+                "far from the others in the terms' space: their own response carries much of their fitted value")
+    else:
+        level = FINE
+        head = (f"Largest leverage {top_h:.3g}, not above {label(look_limit, LEVERAGE_LOOK)}: no row's own "
+                "response carries much of its fitted value")
+    names, text, rest = ((), "", 0) if level == FINE else _listed(high_leverage, hat, namer)
+    verdict = f"{head}; {screen}." + (f" Largest first, {how}: {text}." if text else "")
+    leverage_check = _check("leverage", "influence", top_h, None, level, verdict, _REFERENCES["leverage"],
+                            None if level == FINE else remedy, names, rest)
     return cooks_check, leverage_check, flagged
 
 
@@ -496,7 +905,7 @@ def diagnose(candidates, subset, *, time_ordered=False, alpha=0.05) -> Diagnosis
         Durbin-Watson statistic judged.
     alpha : float, default 0.05
         Level at which the tests (RESET, Shapiro-Wilk, Jarque-Bera,
-        Breusch-Pagan) are judged.
+        Breusch-Pagan) reject; a rejection is then graded by its size.
 
     Returns
     -------
@@ -504,22 +913,38 @@ def diagnose(candidates, subset, *, time_ordered=False, alpha=0.05) -> Diagnosis
 
     Notes
     -----
+    Each check ends "fine", "worth a look", "a problem" or "not assessed"
+    (``Check.level``; ``Check.passed`` is False only for "a problem").
+
     * Linearity — RESET (Ramsey 1969): F test of adding ŷ² and ŷ³ to the model,
       F(2, n − k − 2); equals ``statsmodels.stats.diagnostic.linear_reset``
-      with ``power=3, use_f=True``.
+      with ``power=3, use_f=True``.  A rejection is "a problem" when the added
+      powers' Cohen's f² reaches 0.02 (Cohen 1988), else "worth a look".
     * Normality — Shapiro-Wilk (scipy, up to 5000 rows) and Jarque-Bera,
-      JB = n/6 (S² + (K − 3)²/4) ~ χ²(2).
+      JB = n/6 (g₁² + g₂²/4) ~ χ²(2), g₁ the skewness and g₂ the excess
+      kurtosis.  A rejection is "a problem" when |g₁| > 1 or g₂ > 2, "worth a
+      look" when |g₁| > 0.5 or |g₂| > 1, and otherwise "fine" above 100 rows
+      (a trivial departure) but "worth a look" up to 100 rows ("a problem" at
+      p < 0.001).
     * Constant variance — studentised Breusch-Pagan (Koenker 1981):
-      LM = n·R² of eᵢ² on the design ~ χ²(k − 1).
+      LM = n·R² of eᵢ² on the design ~ χ²(k − 1), graded like RESET with
+      f² = R²/(1 − R²).
     * Independence — Durbin-Watson d = Σ(eᵢ − eᵢ₋₁)²/Σeᵢ², only when
-      ``time_ordered``; 1.5 ≤ d ≤ 2.5 is read as no autocorrelation (common
-      practice).
+      ``time_ordered``; fine inside 1.5-2.5, a problem outside 1-3, worth a
+      look between (common practice).
     * Multicollinearity — VIFⱼ = 1/(1 − R²ⱼ) per column, GVIF^(1/df) per term
-      (Fox & Monette 1992) flagged above 10 (common practice); the condition
-      number of the design with columns centred and scaled to unit length,
-      flagged above 30 (common practice).
-    * Influence — leverage hᵢᵢ flagged above 2k/n (Hoaglin & Welsch 1978) and
-      Cook's distance flagged above 4/n (common practice).
+      (Fox & Monette 1992): worth a look above 10, a problem above 100 (common
+      practice); the condition number of the design with columns centred and
+      scaled to unit length: worth a look above 30, a problem above 100
+      (Belsley, Kuh & Welsch 1980).
+    * Influence — Cook's distance Dᵢ: a problem above the median of
+      F(k, n − k) (Cook & Weisberg 1982), worth a look above its 20th
+      percentile (Kutner et al. 2005) or when more rows exceed the 4/n
+      screening cut-off than normal errors explain; leverage hᵢᵢ: a problem
+      above 0.5, worth a look above 0.2 (Huber 1981), each only when also
+      above the 2k/n screening cut-off (Hoaglin & Welsch 1978).  At most ten
+      rows are named per check, largest first, by the identifier column when
+      intake found one, otherwise by data row of the file counting from 1.
 
     Examples
     --------
@@ -545,19 +970,29 @@ def diagnose(candidates, subset, *, time_ordered=False, alpha=0.05) -> Diagnosis
     k = design.shape[1]
     if n <= k:
         raise SearchError(f"the model has {k} coefficients but only {n} rows; it cannot be checked")
-    _, fitted_w, resid, hat, rank_ = _ols(design_w, y_w)
-    if rank_ < k:
+    from .rank import RANK_TOLERANCE, _least_squares
+
+    # The rank test runs on the centred, unit-length columns, never on the raw design.
+    fit = _least_squares(design_w, y_w)
+    fitted_w, resid, hat = fit.fitted, fit.residuals, fit.hat
+    if fit.dependent >= 0:
+        names = ["intercept"] + list(labels)
+        before = ", ".join(names[:fit.dependent]) or "nothing"
         raise SearchError(
-            "the model's columns are linearly dependent on these rows ("
-            + ", ".join(labels) + "); drop one of the dependent terms")
+            f"the model's column {names[fit.dependent]!r} is a linear combination of {before} on these {n} "
+            f"rows even after centring and scaling the columns (the part outside their span is at most "
+            f"{RANK_TOLERANCE:g} of its length); the model ({', '.join(labels)}) cannot be checked — drop "
+            "that term or one it depends on")
     rss = float(resid @ resid)
     studentized, cooks = _influence(resid, hat, n, k, rss)
     per_column, term_vif, condition = _vif_tables(x, labels, owners)
-    cooks_check, leverage_check, flagged = _influence_checks(hat, cooks, studentized, n, k)
+    rows_named, namer = _row_namer(candidates, n)
+    cooks_check, leverage_check, flagged = _influence_checks(hat, cooks, studentized, n, k, rss, namer, rows_named)
+    outliers = _outlier_rows(studentized, n, k, alpha, namer, rows_named)
     checks = (
         _reset(design_w, y_w, fitted_w, rss, alpha),
-        _shapiro(resid, alpha),
-        _jarque_bera(resid, alpha),
+        _shapiro(resid, alpha, outliers),
+        _jarque_bera(resid, alpha, outliers),
         _breusch_pagan(design_w, resid, fitted_w, alpha),
         _durbin_watson(resid, time_ordered),
         _vif_check(term_vif),
@@ -585,4 +1020,5 @@ def diagnose(candidates, subset, *, time_ordered=False, alpha=0.05) -> Diagnosis
         term_vif=term_vif,
         condition_number=condition,
         flagged_rows=flagged,
+        rows_named=rows_named,
     )

@@ -184,7 +184,67 @@ def _empty(width: int) -> Moments:
     return Moments(0, 0.0, np.zeros(width), np.zeros((width, width)))
 
 
-def _chunk_moments(X: np.ndarray, y: np.ndarray, w: np.ndarray | None, first_row: int) -> Moments:
+#: Deviations from the mean below this (√ of the smallest normal double, ≈ 1.5e-154) have squares
+#: that underflow: their sums of squares and cross-products are zero or lose their digits.
+SMALLEST_SPREAD = float(np.sqrt(np.finfo(np.float64).tiny))
+#: Deviations above this (≈ 1.3e148: √ of the largest double over 10⁶ rows' worth of headroom)
+#: have sums of squares that overflow once enough rows are added.
+LARGEST_SPREAD = float(np.sqrt(np.finfo(np.float64).max) / 2.0 ** 20)
+
+
+def _what(j: int, width: int, names) -> str:
+    """How an error names variable ``j`` of ``width`` (the response last)."""
+    if names is not None and j < len(names):
+        return f"{'the response' if j == width - 1 else 'column'} {str(names[j])!r}"
+    return "the response" if j == width - 1 else f"candidate column {j}"
+
+
+def _check_range(Z: np.ndarray, D: np.ndarray, C: np.ndarray, mean: np.ndarray, first_row: int, names) -> None:
+    """Raise when a column's spread is beyond what double-precision cross-products can hold.
+
+    The cross-products are formed from deviations dᵢ = xᵢ − x̄; with every |dᵢ|
+    below :data:`SMALLEST_SPREAD` each dᵢ² is below the smallest normal double
+    (2.2e-308) and underflows, and with |dᵢ| above :data:`LARGEST_SPREAD` the
+    sums Σdᵢ² overflow to infinity.  Either way no least-squares quantity of
+    the column (rss, R², a criterion) can be represented, whatever the
+    algorithm, so this is an input error whose fix is to rescale the column.
+    """
+    rows, width = Z.shape
+    with np.errstate(over="ignore", invalid="ignore"):
+        size = np.abs(D)
+        spread = np.max(size, axis=0) if rows else np.zeros(width)
+    bad_big = ~np.isfinite(mean) | ~np.isfinite(np.diag(C)) | ~(spread <= LARGEST_SPREAD)
+    bad_small = (spread > 0) & (spread < SMALLEST_SPREAD)
+    where = f"rows {first_row}..{first_row + rows - 1}"
+    for j in range(width):
+        column = None if names is None or j >= len(names) else str(names[j])
+        if bad_small[j]:
+            count = int(np.count_nonzero(D[:, j]))
+            factor = f"1e{min(int(np.ceil(-np.log10(spread[j]))), 300)}"  # 1e300: still a finite double
+            raise InputError(
+                f"{_what(j, width, names)} varies around its mean by at most {spread[j]:.2g} ({count} of the "
+                f"{rows} {where} differ from it): below {SMALLEST_SPREAD:.2g}, where squares of "
+                "double-precision numbers underflow, so no least-squares fit can use it — multiply it by "
+                f"{factor} (or another power of ten) before the search",
+                column=column, column_index=j, count=count,
+            )
+        if bad_big[j]:
+            values = size[:, j] if np.isfinite(mean[j]) else np.abs(Z[:, j])
+            count = int(np.count_nonzero(~(values <= LARGEST_SPREAD)))
+            top = float(np.max(values))
+            fix = (f"divide it by 1e{int(np.floor(np.log10(top)))} (or another power of ten)" if np.isfinite(top)
+                   else "divide it by a power of ten")
+            raise InputError(
+                f"{_what(j, width, names)} varies around its mean by up to {top:.2g} ({count} of the {rows} "
+                f"{where} beyond {LARGEST_SPREAD:.2g}): its sums of squares overflow double precision "
+                f"(largest 1.8e308), so no least-squares fit can use it — {fix} before the search; the "
+                "ranking does not change and the coefficients scale with it",
+                column=column, column_index=j, count=count,
+            )
+
+
+def _chunk_moments(X: np.ndarray, y: np.ndarray, w: np.ndarray | None, first_row: int,
+                   names=None) -> Moments:
     """Two-pass centred moments of one chunk (response appended last)."""
     if X.ndim == 1:
         X = X[:, None]
@@ -198,7 +258,7 @@ def _chunk_moments(X: np.ndarray, y: np.ndarray, w: np.ndarray | None, first_row
     if bad.any():
         counts = bad.sum(axis=0)
         j = int(np.flatnonzero(counts)[0])
-        what = "the response" if j == Z.shape[1] - 1 else f"candidate column {j}"
+        what = _what(j, Z.shape[1], names)
         raise InputError(
             f"{what} has {int(counts[j])} missing or infinite values in rows {first_row}.."
             f"{first_row + Z.shape[0] - 1}; drop or impute those rows before computing moments",
@@ -207,9 +267,12 @@ def _chunk_moments(X: np.ndarray, y: np.ndarray, w: np.ndarray | None, first_row
     if w is None:
         if rows == 0:
             return _empty(Z.shape[1])
-        mean = Z.mean(axis=0)
-        D = Z - mean
-        return Moments(rows, float(rows), mean, _symmetric(D.T @ D))
+        with np.errstate(over="ignore", invalid="ignore"):
+            mean = Z.mean(axis=0)
+            D = Z - mean
+            C = _symmetric(D.T @ D)
+        _check_range(Z, D, C, mean, first_row, names)
+        return Moments(rows, float(rows), mean, C)
     w = np.asarray(w, dtype=np.float64).reshape(-1)
     if w.shape[0] != rows:
         raise InputError(f"the weights have {w.shape[0]} rows but the data have {rows} (chunk at row {first_row})")
@@ -222,12 +285,15 @@ def _chunk_moments(X: np.ndarray, y: np.ndarray, w: np.ndarray | None, first_row
     total = float(w.sum())
     if total == 0:
         return Moments(rows, 0.0, np.zeros(Z.shape[1]), np.zeros((Z.shape[1], Z.shape[1])))
-    mean = w @ Z / total
-    D = Z - mean
-    return Moments(rows, total, mean, _symmetric((D * w[:, None]).T @ D))
+    with np.errstate(over="ignore", invalid="ignore"):
+        mean = w @ Z / total
+        D = Z - mean
+        C = _symmetric((D * w[:, None]).T @ D)
+    _check_range(Z, D, C, mean, first_row, names)
+    return Moments(rows, total, mean, C)
 
 
-def compute_moments(matrix, y, weights=None, *, chunk_rows: int = DEFAULT_CHUNK_ROWS) -> Moments:
+def compute_moments(matrix, y, weights=None, *, chunk_rows: int = DEFAULT_CHUNK_ROWS, names=None) -> Moments:
     """Weighted means and centred cross-products of ``[matrix, y]`` in one chunked pass.
 
     Parameters
@@ -241,6 +307,8 @@ def compute_moments(matrix, y, weights=None, *, chunk_rows: int = DEFAULT_CHUNK_
     chunk_rows : int
         Rows per chunk; each chunk is centred on its own mean (two-pass) and
         merged pairwise (Chan, Golub & LeVeque 1979).
+    names : sequence of str, optional
+        Names of the m columns and the response (last), for the errors.
 
     Returns
     -------
@@ -249,7 +317,12 @@ def compute_moments(matrix, y, weights=None, *, chunk_rows: int = DEFAULT_CHUNK_
     Raises
     ------
     InputError
-        On mismatched lengths, missing/infinite values or invalid weights.
+        On mismatched lengths, missing/infinite values or invalid weights, and
+        when a column's deviations from its mean are so small that their
+        squares underflow (below :data:`SMALLEST_SPREAD`) or so large that
+        their sums of squares overflow (above :data:`LARGEST_SPREAD`): no
+        double-precision cross-product can hold such a column, and the error
+        says by which power of ten to rescale it.
 
     Examples
     --------
@@ -272,8 +345,9 @@ def compute_moments(matrix, y, weights=None, *, chunk_rows: int = DEFAULT_CHUNK_
         raise InputError(f"the weights have {w.shape[0]} rows but the data have {yv.shape[0]}; pass one weight per row")
     step = _check_chunk_rows(chunk_rows)
     return moments_from_chunks(
-        (X[s:s + step], yv[s:s + step], None if w is None else w[s:s + step])
-        for s in range(0, max(X.shape[0], 1), step)
+        ((X[s:s + step], yv[s:s + step], None if w is None else w[s:s + step])
+         for s in range(0, max(X.shape[0], 1), step)),
+        names=names,
     )
 
 
@@ -294,16 +368,21 @@ def moments_of(candidates, *, chunk_rows: int = 65536) -> Moments:
     candidates : CandidateSet
         Anything with ``matrix``, ``y`` and ``weights``.
     """
-    return compute_moments(candidates.matrix, candidates.y, candidates.weights, chunk_rows=chunk_rows)
+    names = getattr(candidates, "column_names", None)
+    response = getattr(candidates, "response", None)
+    names = tuple(names) + (response,) if names is not None and response is not None else None
+    return compute_moments(candidates.matrix, candidates.y, candidates.weights, chunk_rows=chunk_rows, names=names)
 
 
-def moments_from_chunks(chunks: Iterable) -> Moments:
+def moments_from_chunks(chunks: Iterable, *, names=None) -> Moments:
     """Merge the moments of chunks of rows given as ``(X, y, w_or_None)`` triples.
 
     Parameters
     ----------
     chunks : iterable of tuple
         ``(X, y)`` or ``(X, y, w)``; every ``X`` must have the same columns.
+    names : sequence of str, optional
+        Names of the columns and the response (last), for the errors.
 
     Returns
     -------
@@ -322,7 +401,7 @@ def moments_from_chunks(chunks: Iterable) -> Moments:
             raise InputError(f"each chunk must be (X, y) or (X, y, weights); got a tuple of {len(chunk)} items")
         X = np.asarray(X, dtype=np.float64)
         yv = np.asarray(y, dtype=np.float64).reshape(-1)
-        part = _chunk_moments(X, yv, w, first_row)
+        part = _chunk_moments(X, yv, w, first_row, names)
         first_row += yv.shape[0]
         if total is None:
             total = part
@@ -337,6 +416,14 @@ def moments_from_chunks(chunks: Iterable) -> Moments:
         raise InputError("no rows to compute moments from; the data are empty")
     if not total.weight_sum > 0:
         raise InputError(f"all {total.n} weights are zero; at least one row needs a positive weight")
+    diagonal = np.diag(total.cross)
+    if not np.all(np.isfinite(diagonal)):
+        j = int(np.flatnonzero(~np.isfinite(diagonal))[0])
+        raise InputError(
+            f"{_what(j, diagonal.shape[0], names)} has a sum of squares about its mean over {total.n} rows that "
+            "overflows double precision (largest 1.8e308); divide it by a power of ten before the search",
+            column=None if names is None or j >= len(names) else str(names[j]), column_index=j, count=total.n,
+        )
     return total
 
 

@@ -24,6 +24,7 @@ import numpy as np
 import pandas as pd
 
 from . import criteria as _criteria
+from ._budget import BudgetSpent
 from .errors import InputError, OptionError, SearchError, SelectkitError
 from .moments import moments_of
 from .parallel import run_units, spawn_seeds
@@ -99,6 +100,10 @@ class ModelFit:
         Rows and coefficients (intercept included).
     sigma : float
         Residual standard error √(rss/(n − k)).
+    problem : str or None
+        Why the model could not be refitted (its columns are dependent on
+        these rows even after scaling); the coefficient table then holds NaN
+        and the equation says so.  None for a model that was refitted.
     """
 
     subset: tuple[int, ...]
@@ -108,17 +113,35 @@ class ModelFit:
     n: int
     k: int
     sigma: float
+    problem: str | None = None
 
 
 @dataclass(frozen=True, eq=False)
 class Shortlist:
-    """The ranked models.
+    """The ranked answers and models.
+
+    The first level is the **answer**: a set of variables, whatever their
+    forms.  Models that hold the same variables in different forms (x or x²
+    over a narrow positive range, say) are one answer; the data often cannot
+    tell such forms apart, and a list of models would repeat one answer in
+    several spellings.  Answers are ranked by their best model.
 
     Attributes
     ----------
     table : DataFrame
-        The shortlisted rows (at most ``size``, within ``max_delta``), best first;
-        columns as in ``scored``.
+        One row per shortlisted answer (at most ``size``, its best model within
+        ``max_delta``), best first: the row of the answer's best model (columns
+        as in ``scored``) with ``answer_weight`` (the summed model weight of
+        every pooled model holding exactly these variables),
+        ``models_in_answer`` (how many pooled models do), and
+        ``form_alternatives`` (for each variable seen in more than one form
+        among the answer's models within Δ ≤ 2 of its best, on
+        ``weight_criterion``, those forms: ``"night_temp_c or
+        night_temp_c^2"``; variables joined by ``"; "``; empty when the best
+        forms stand alone).
+    models : DataFrame
+        The model-level list: the best ``size`` pooled models (within
+        ``max_delta``), whatever answer they belong to; columns as in ``scored``.
     scored : DataFrame
         Every pooled model, scored and ordered.  Columns: ``position`` (1 = best),
         ``terms`` (readable names joined by ``" + "``), ``variables`` (the
@@ -133,9 +156,16 @@ class Shortlist:
         BIC weights — approximate posterior model probabilities — for BIC), ``comparable_support`` (Δ ≤ 2 for an information
         criterion; within one standard error of the best for ``cv_mse``; empty
         otherwise), ``found_by`` (searches that found the model, comma-separated)
-        and ``term_indices`` (space-separated indices into ``CandidateSet.terms``).
+        ``term_indices`` (space-separated indices into ``CandidateSet.terms``)
+        and ``answer`` (the number of the answer the model belongs to, 1 =
+        the best answer).
     subsets : tuple of tuple of int
-        The shortlisted models' term indices, in table order.
+        The term indices of each shortlisted answer's best model, in table order.
+    model_subsets : tuple of tuple of int
+        The term indices of the models of ``models``, in its order.
+    answer_forms : tuple
+        For each shortlisted answer, ``form_alternatives`` as
+        ``((variable, (form, form, ...)), ...)``.
     all_subsets : tuple of tuple of int
         Every pooled model's term indices, in ``scored`` order.
     criterion : str
@@ -153,7 +183,7 @@ class Shortlist:
         pooled models holding any form of it), ``models_holding`` and
         ``leading_form`` (its form with the largest summed weight).
     fits : tuple of ModelFit
-        The QR refit of each shortlisted model, in table order.
+        The QR refit of each shortlisted answer's best model, in table order.
     n : int
         Rows the models were fitted to.
     notes : tuple of str
@@ -164,6 +194,9 @@ class Shortlist:
     scored: pd.DataFrame
     subsets: tuple[tuple[int, ...], ...]
     all_subsets: tuple[tuple[int, ...], ...]
+    models: pd.DataFrame
+    model_subsets: tuple[tuple[int, ...], ...]
+    answer_forms: tuple
     criterion: str
     criterion_reason: str
     aim: str
@@ -179,7 +212,7 @@ class Shortlist:
         return len(self.subsets)
 
     def terms(self, i: int) -> tuple[str, ...]:
-        """Readable term names of shortlisted model ``i`` (0 = best)."""
+        """Readable term names of the best model of shortlisted answer ``i`` (0 = best)."""
         return self.fits[i].terms
 
 
@@ -477,6 +510,49 @@ def _score_table(candidates, moments, n, pooled, *, convention, criterion, aim, 
     return table, subsets, name, reason, weight_criterion, cp_source
 
 
+def _answers(candidates, table, subsets, weight_criterion):
+    """Group the ordered models by the variables they hold; one row per answer, best answer first.
+
+    Returns the scored table with an ``answer`` column and a frame indexed by
+    answer number with ``best_row`` (the row of its best model in the table),
+    ``answer_weight``, ``models_in_answer``, ``form_alternatives`` (text) and
+    ``alternatives`` (the same as ``((variable, (form, ...)), ...)``).
+    """
+    keys = [frozenset(candidates.terms[j].family for j in sub) for sub in subsets]
+    number: dict[frozenset, int] = {}
+    for key in keys:
+        number.setdefault(key, len(number) + 1)
+    table = table.copy()
+    table["answer"] = [number[key] for key in keys]
+    weights = table["model_weight"].to_numpy(dtype=float)
+    ic = table[weight_criterion].to_numpy(dtype=float)
+    members: dict[int, list[int]] = {}
+    for row, answer in enumerate(table["answer"]):
+        members.setdefault(int(answer), []).append(row)
+    rows = []
+    for answer, rows_of in members.items():
+        best = rows_of[0]
+        close = [r for r in rows_of if np.isfinite(ic[r]) and ic[r] - ic[best] <= COMPARABLE_DELTA] or [best]
+        forms: dict[str, list[str]] = {}
+        for j in subsets[best]:
+            forms[candidates.terms[j].family] = []
+        for r in close:
+            for j in subsets[r]:
+                names = forms[candidates.terms[j].family]
+                if candidates.terms[j].name not in names:
+                    names.append(candidates.terms[j].name)
+        alternatives = tuple((family, tuple(names)) for family, names in forms.items() if len(names) > 1)
+        rows.append({
+            "answer": answer,
+            "best_row": best,
+            "answer_weight": float(np.nansum(weights[rows_of])),
+            "models_in_answer": len(rows_of),
+            "form_alternatives": "; ".join(" or ".join(names) for _, names in alternatives),
+            "alternatives": alternatives,
+        })
+    return table, pd.DataFrame(rows).set_index("answer")
+
+
 def _variable_support(candidates, subsets, weights) -> pd.DataFrame:
     """Summed model weight of the pooled models that hold each family."""
     families: list[str] = []
@@ -619,11 +695,19 @@ def rank(
     if weight_criterion != name:
         notes.append(f"Model weights and variable support use {weight_criterion.upper()}, "
                      f"since {name} has no likelihood weights.")
-    keep = np.arange(len(table)) < size
+    table, answers = _answers(candidates, table, ordered, weight_criterion)
+    within = np.ones(len(table), dtype=bool)
     if max_delta is not None:
-        keep &= table["delta_from_best"].to_numpy(dtype=float) <= max_delta
-    shortlist_table = table[keep].reset_index(drop=True)
-    short_subsets = tuple(ordered[i] for i in np.flatnonzero(keep))
+        within = table["delta_from_best"].to_numpy(dtype=float) <= max_delta
+    keep = within & (np.arange(len(table)) < size)
+    models_table = table[keep].reset_index(drop=True)
+    model_subsets = tuple(ordered[i] for i in np.flatnonzero(keep))
+    best_rows = [int(r) for r in answers["best_row"] if within[int(r)]][:size]
+    shortlist_table = table.iloc[best_rows].reset_index(drop=True)
+    for column in ("answer_weight", "models_in_answer", "form_alternatives"):
+        shortlist_table[column] = answers.loc[shortlist_table["answer"], column].to_numpy()
+    short_subsets = tuple(ordered[r] for r in best_rows)
+    answer_forms = tuple(answers.loc[int(a), "alternatives"] for a in shortlist_table["answer"])
     support = _variable_support(candidates, ordered, table["model_weight"].to_numpy())
     fits = tuple(fit_model(candidates, s) for s in short_subsets)
     return Shortlist(
@@ -631,6 +715,9 @@ def rank(
         scored=table,
         subsets=short_subsets,
         all_subsets=tuple(ordered),
+        models=models_table,
+        model_subsets=model_subsets,
+        answer_forms=answer_forms,
         criterion=name,
         criterion_reason=reason,
         aim=aim,
@@ -678,6 +765,168 @@ def _design(candidates, subset):
     return pd.DataFrame(columns), labels
 
 
+#: A design column counts as dependent on the columns before it when, centred (its projection on
+#: the first column removed) and scaled to unit length, the part of it outside their span is at
+#: most this long — the tolerance of the data intake (:data:`selectkit.data.COLLINEARITY_TOLERANCE`).
+RANK_TOLERANCE = 1e-7
+
+
+@dataclass(frozen=True, eq=False)
+class _LeastSquares:
+    """A least-squares fit computed on the column-scaled design, reported in the original units.
+
+    Attributes
+    ----------
+    coef : ndarray, shape (k,)
+        Coefficients of the original columns (min-norm ones on the scaled
+        columns when the design is rank-deficient).
+    fitted, residuals, hat : ndarray, shape (n,)
+        Fitted values, residuals (y − fitted) and the diagonal of the hat matrix.
+    rank : int
+        Columns whose pivot is above :data:`RANK_TOLERANCE`.
+    dependent : int
+        Position of the first column within the tolerance of the span of the
+        columns before it (−1 when none is).
+    cov_root : ndarray, shape (k, k), or None
+        ``B`` with (DᵀD)⁻¹ = B Bᵀ in the original units (full rank only).
+    basis : ndarray, shape (n, k), or None
+        Orthonormal basis Q of the columns, nested like them (full rank only).
+    condition : float
+        Condition number of the scaled design (columns centred and of unit length).
+    """
+
+    coef: np.ndarray
+    fitted: np.ndarray
+    residuals: np.ndarray
+    hat: np.ndarray
+    rank: int
+    dependent: int
+    cov_root: np.ndarray | None
+    basis: np.ndarray | None
+    condition: float
+
+
+def _binary_exponents(values):
+    """Per column, the exponent e with max|x|·2⁻ᵉ in [0.5, 1) (0 for an all-zero column)."""
+    top = np.max(np.abs(values), axis=0) if values.shape[0] else np.zeros(values.shape[1:])
+    return np.where(top > 0, np.frexp(top)[1], 0).astype(np.int64)
+
+
+def _least_squares(design, y, *, tolerance=RANK_TOLERANCE) -> _LeastSquares:
+    """Least squares of ``y`` on ``design`` computed on the column-scaled design.
+
+    Each column (and ``y``) is first scaled by a power of two (exact in binary
+    floating point), so that no square or product overflows or underflows;
+    the first column (the intercept, √w under row weights) is then projected
+    out of the others and of ``y`` (two passes of Gram–Schmidt — with a column
+    of ones this centres them), and the other columns are scaled to unit
+    length.  Householder QR of that design E = D·M (M upper triangular) gives
+    the rank test — column j is dependent when its pivot |Rⱼⱼ|, the length of
+    its unit column outside the span of the columns before it, is at most
+    ``tolerance`` — and the fit: γ = R⁻¹Qᵀỹ, β = Mγ, (DᵀD)⁻¹ = (MR⁻¹)(MR⁻¹)ᵀ.
+    None of these steps changes the column space, so fitted values, residuals
+    and the hat matrix are those of the raw design, exact up to round-off,
+    while the raw design's condition number (often 10¹⁰ and more with offsets
+    or mixed units) never enters.
+
+    Parameters
+    ----------
+    design : ndarray, shape (n, k)
+        The first column must not be all zero (it is the intercept in selectkit).
+    y : ndarray, shape (n,)
+    tolerance : float, default RANK_TOLERANCE
+
+    Returns
+    -------
+    _LeastSquares
+
+    References
+    ----------
+    Golub, G. H. and Van Loan, C. F. (2013). Matrix Computations, 4th ed.,
+    §5.3 (QR least squares) and §5.5 (rank deficiency); Belsley, Kuh & Welsch
+    (1980) on scaling columns before judging their conditioning.
+    """
+    from scipy.linalg import solve_triangular
+
+    D = np.asarray(design, dtype=float)
+    yv = np.asarray(y, dtype=float).reshape(-1)
+    n, k = D.shape
+    if k == 0:
+        return _LeastSquares(np.zeros(0), np.zeros(n), yv.copy(), np.zeros(n), 0, -1,
+                             np.zeros((0, 0)), np.zeros((n, 0)), float("nan"))
+    column_exp = _binary_exponents(D)
+    y_exp = int(_binary_exponents(yv[:, None])[0])
+    Ds = np.ldexp(D, -column_exp)
+    ys = np.ldexp(yv, -y_exp)
+    first = Ds[:, 0]
+    first_ss = float(first @ first)
+    M = np.zeros((k, k))
+    E = np.zeros_like(Ds)
+    y_left = ys.copy()
+    y_on_first = 0.0
+    if first_ss > 0:
+        first_norm = np.sqrt(first_ss)
+        E[:, 0] = first / first_norm
+        M[0, 0] = 1.0 / first_norm
+        rest = Ds[:, 1:].copy()
+        on_first = np.zeros(k - 1)
+        for _ in range(2):  # the second pass removes what round-off left of the first column
+            c = (first @ rest) / first_ss
+            rest -= np.outer(first, c)
+            on_first += c
+            cy = float(first @ y_left) / first_ss
+            y_left -= cy * first
+            y_on_first += cy
+        lengths = np.sqrt(np.sum(rest * rest, axis=0))
+        safe = np.where(lengths > 0, lengths, 1.0)
+        E[:, 1:] = rest / safe
+        M[0, 1:] = -on_first / safe
+        M[np.arange(1, k), np.arange(1, k)] = 1.0 / safe
+    else:
+        first_norm = 0.0
+        lengths = np.sqrt(np.sum(Ds[:, 1:] ** 2, axis=0))
+        safe = np.where(lengths > 0, lengths, 1.0)
+        E[:, 1:] = Ds[:, 1:] / safe
+        M[np.arange(1, k), np.arange(1, k)] = 1.0 / safe
+    q, r = np.linalg.qr(E)
+    pivots = np.abs(np.diag(r))
+    below = np.flatnonzero(~(pivots > tolerance))
+    dependent = int(below[0]) if below.size else -1
+    rank = int(np.sum(pivots > tolerance))
+    singular_values = np.linalg.svd(r, compute_uv=False)
+    condition = (float(singular_values[0] / singular_values[-1]) if singular_values[-1] > 0
+                 else float("inf"))
+
+    if dependent < 0:
+        effects = q.T @ y_left
+        gamma = solve_triangular(r, effects)
+        left = y_left - q @ effects
+        again = q.T @ left  # one step of refinement
+        left -= q @ again
+        gamma += solve_triangular(r, again)
+        gamma[0] += y_on_first * first_norm
+        hat = np.sum(q * q, axis=1)
+        r_inverse = solve_triangular(r, np.eye(k))
+        cov_root = np.ldexp(M @ r_inverse, -column_exp[:, None])
+        basis = q
+    else:
+        u, s, vt = np.linalg.svd(E, full_matrices=False)
+        keep = s > tolerance * s[0] if s.size and s[0] > 0 else np.zeros(s.shape, dtype=bool)
+        u_kept = u[:, keep]
+        effects = u_kept.T @ y_left
+        gamma = vt[keep].T @ (effects / s[keep])
+        left = y_left - u_kept @ effects
+        if first_ss > 0:
+            gamma[0] += y_on_first * first_norm
+        hat = np.sum(u_kept * u_kept, axis=1)
+        cov_root = None
+        basis = None
+    coef = np.ldexp(M @ gamma, y_exp - column_exp)
+    residuals = np.ldexp(left, y_exp)
+    return _LeastSquares(coef=coef, fitted=yv - residuals, residuals=residuals, hat=hat, rank=rank,
+                         dependent=dependent, cov_root=cov_root, basis=basis, condition=condition)
+
+
 def refit(candidates, subset):
     """QR refit of one model with statsmodels (OLS, or WLS with the row weights).
 
@@ -690,9 +939,25 @@ def refit(candidates, subset):
     Returns
     -------
     statsmodels.regression.linear_model.RegressionResultsWrapper
-        Fitted with ``fit(method="qr")``; exog columns are named ``intercept``
-        and the coefficient labels (a term's readable name, ``[block = level]``
-        for a categorical level).
+        The results of a QR fit, as ``fit(method="qr")`` would return them;
+        exog columns are named ``intercept`` and the coefficient labels (a
+        term's readable name, ``[block = level]`` for a categorical level).
+
+    Raises
+    ------
+    SearchError
+        When a column is, after centring and scaling, within
+        :data:`RANK_TOLERANCE` of the span of the intercept and the columns
+        before it.
+
+    Notes
+    -----
+    The factorisation runs on the column-scaled design (see
+    :func:`_least_squares`): each column is centred and scaled to unit length
+    before the QR, and the coefficients and their covariance are transformed
+    back to the original units.  The raw design's condition number — often
+    10¹⁰ or more when the columns have offsets or differ in units — then
+    costs no digits beyond those the data themselves carry.
 
     Examples
     --------
@@ -705,6 +970,7 @@ def refit(candidates, subset):
     ['intercept', 'x0']
     """
     import statsmodels.api as sm
+    from statsmodels.regression.linear_model import OLSResults, RegressionResults, RegressionResultsWrapper
 
     subset = tuple(sorted(int(i) for i in subset))
     exog, _ = _design(candidates, subset)
@@ -713,7 +979,34 @@ def refit(candidates, subset):
         model = sm.OLS(y, exog)
     else:
         model = sm.WLS(y, exog, weights=np.asarray(candidates.weights, dtype=float))
-    return model.fit(method="qr")
+    wexog = np.asarray(model.wexog, dtype=float)
+    fit = _least_squares(wexog, np.asarray(model.wendog, dtype=float))
+    k = wexog.shape[1]
+    if fit.dependent >= 0:
+        names = list(exog.columns)
+        before = ", ".join(repr(c) for c in names[:fit.dependent]) or "nothing"
+        raise SearchError(
+            f"coefficient column {names[fit.dependent]!r} of the model ({', '.join(names[1:])}) is a linear "
+            f"combination of {before} on these {wexog.shape[0]} rows even after centring and scaling the "
+            f"columns (the part of it outside their span is at most {RANK_TOLERANCE:g} of its length); "
+            "drop it or one of the terms it depends on",
+            columns=tuple(names), singular_column=names[fit.dependent],
+        )
+    # What fit(method="qr") leaves on the model, computed from the scaled factorisation instead of
+    # inv(RᵀR) of the raw design (which fails or loses every digit when the raw columns differ in
+    # scale by 10¹⁰ or carry large offsets).
+    normalized_cov = fit.cov_root @ fit.cov_root.T
+    model.normalized_cov_params = normalized_cov
+    model.wexog_singular_values = np.linalg.svd(wexog, compute_uv=False)
+    model.rank = k
+    model.pinv_wexog = fit.cov_root @ fit.basis.T
+    model.effects = fit.basis.T @ np.asarray(model.wendog, dtype=float)
+    if model._df_model is None:
+        model._df_model = float(k - model.k_constant)
+    if model._df_resid is None:
+        model.df_resid = model.nobs - k
+    kind = OLSResults if isinstance(model, sm.OLS) else RegressionResults
+    return RegressionResultsWrapper(kind(model, fit.coef, normalized_cov_params=normalized_cov))
 
 
 def _number(value: float) -> str:
@@ -742,10 +1035,37 @@ def fit_model(candidates, subset, *, level=0.95) -> ModelFit:
     Returns
     -------
     ModelFit
+        When the model cannot be refitted (:func:`refit` raises
+        :class:`SearchError`), its ``problem`` holds the reason, its
+        coefficients are NaN and its equation says it was not refitted: one
+        such model never stops the others from being reported.
     """
     subset = tuple(sorted(int(i) for i in subset))
-    results = refit(candidates, subset)
     _, labels = _design(candidates, subset)
+    transform = candidates.response_transform
+    lhs = transform.name if transform.transform != "identity" else candidates.response
+    try:
+        results = refit(candidates, subset)
+    except SearchError as err:
+        k = len(labels) + 1
+        nothing = np.full(k, np.nan)
+        coefficients = pd.DataFrame({
+            "coefficient": [INTERCEPT_LABEL] + [label for _, _, label, _ in labels],
+            "term": [INTERCEPT_LABEL] + [term for term, _, _, _ in labels],
+            "estimate": nothing, "std_error": nothing, "ci_low": nothing, "ci_high": nothing,
+            "p_value_optimistic": nothing,
+        })
+        names = _term_names(candidates, subset)
+        return ModelFit(
+            subset=subset,
+            terms=names,
+            coefficients=coefficients,
+            equation=f"{lhs} ~ {_joined(names)} (not refitted: {err})",
+            n=int(candidates.matrix.shape[0]),
+            k=k,
+            sigma=float("nan"),
+            problem=str(err),
+        )
     ci = np.asarray(results.conf_int(alpha=1.0 - level))
     coefficients = pd.DataFrame({
         "coefficient": [INTERCEPT_LABEL] + [label for _, _, label, _ in labels],
@@ -756,8 +1076,6 @@ def fit_model(candidates, subset, *, level=0.95) -> ModelFit:
         "ci_high": ci[:, 1],
         "p_value_optimistic": np.asarray(results.pvalues, dtype=float),
     })
-    transform = candidates.response_transform
-    lhs = transform.name if transform.transform != "identity" else candidates.response
     n = int(results.nobs)
     k = int(len(results.params))
     return ModelFit(
@@ -813,6 +1131,10 @@ def _call_runner(runner, candidates, moments):
     return runner(candidates)
 
 
+#: Marks a replicate the time budget cut (left out of the shares, counted in the notes).
+_CUT = "cut by the time budget"
+
+
 def _replicate(payload):
     """One bootstrap replicate (module level so that it pickles)."""
     candidates, runner, seed_sequence, criterion, convention = payload
@@ -823,6 +1145,8 @@ def _replicate(payload):
     moments = moments_of(sample)
     try:
         found = _call_runner(runner, sample, moments)
+    except BudgetSpent:
+        return _CUT, None  # the run's time budget ran out: this replicate is left out, and said so
     except (SelectkitError, np.linalg.LinAlgError) as err:
         # A resample can make a model singular (a rare level drawn zero times): the replicate
         # is counted as failed and reported, never silently dropped.
@@ -847,6 +1171,7 @@ def stability(
     backend="loky",
     criterion="bic",
     convention="selectkit",
+    deadline=None,
 ) -> Stability:
     """Bootstrap stability of the selection: how often each variable and form is chosen.
 
@@ -878,10 +1203,18 @@ def stability(
         ``adj_r2``.  The cross-validated criteria (``press``, ``cv_mse``,
         ``holdout_mse``) are replaced by AICc, with a note.
     convention : str, default "selectkit"
+    deadline : selectkit._budget.Deadline, optional
+        The run's time budget.  No replicate starts once it has run out, and a
+        replicate it cuts (``runner`` raises ``BudgetSpent``) is left out; the
+        shares rest on the replicates that finished, ``n_boot`` counts them
+        and ``notes`` say how many of those asked for ran.  Without a deadline
+        every replicate runs.
 
     Returns
     -------
-    Stability
+    Stability or None
+        None only with a ``deadline`` that ran out before the search on all
+        rows or the first replicate finished.
 
     Notes
     -----
@@ -907,14 +1240,25 @@ def stability(
     if isinstance(n_boot, bool) or not isinstance(n_boot, (int, np.integer)) or n_boot < 1:
         raise OptionError(f"n_boot must be a whole number of replicates ≥ 1 (got {n_boot!r})")
     moments = moments_of(candidates)
-    full = _call_runner(runner, candidates, moments)
+    asked = int(n_boot)
+    try:
+        full = _call_runner(runner, candidates, moments)
+    except BudgetSpent:
+        return None  # the repeat on the full data did not finish: no replicate can be compared with it
     if len(full) == 0:
         raise SearchError("the search kept no model on the full data; stability cannot be assessed")
     names = [_term_names(candidates, s) for s in full.subsets]
     full_best = full.subsets[_best_of(full, criterion, convention=convention, tss=moments.tss,
                                       log_jacobian=0.0, names=names, candidates=candidates)]
     units = [(candidates, runner, child, criterion, convention) for child in spawn_seeds(seed, n_boot)]
-    results = run_units(_replicate, units, n_jobs=n_jobs, backend=backend)
+    results = run_units(_replicate, units, n_jobs=n_jobs, backend=backend, should_stop=deadline)
+    finished = [r for r in results if r[0] is not _CUT]
+    if deadline is not None and len(finished) < asked:
+        notes.append(f"The {deadline.describe()} ran out during the bootstrap: {len(finished)} of {asked} "
+                     f"resamples finished; the shares rest on those {len(finished)}.")
+        if not finished:
+            return None
+        results, n_boot = finished, len(finished)
     chosen = [subset for subset, _ in results]
     messages = sorted({message for _, message in results if message})
     ok = [s for s in chosen if s is not None]

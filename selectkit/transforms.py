@@ -11,7 +11,7 @@ transform        value                                            defined where
 ``identity``     x                                                everywhere
 ``log``          log(x + c)  (natural log)                        x + c > 0
 ``sqrt``         √(x + c)                                         x + c ≥ 0
-``reciprocal``   1/(x + c)                                        x + c ≠ 0
+``reciprocal``   1/(x + c)                                        x + c of one sign, ≠ 0
 ``square``       x²                                               everywhere
 ``power``        (x + c)^p, p = 0 meaning log(x + c)              see below
 ``boxcox``       ((x + c)^λ − 1)/λ, log(x + c) at λ = 0           x + c > 0
@@ -21,7 +21,7 @@ transform        value                                            defined where
 ===============  ===============================================  ================
 
 A power p is defined everywhere for p = 1, 2, 3; where x + c ≥ 0 for p = 0.5;
-where x + c ≠ 0 for p = −1, −2; where x + c > 0 for p = 0, −0.5
+where x + c is of one sign and ≠ 0 for p = −1, −2; where x + c > 0 for p = 0, −0.5
 (:func:`domain_problem` says why a form is undefined on given data).
 
 Readable names (:func:`term_name`) use plain notation: ``x``, ``log(x)``,
@@ -72,6 +72,7 @@ __all__ = [
     "box_tidwell",
     "apply",
     "domain_problem",
+    "has_pole",
     "term_name",
     "term_expression",
     "format_number",
@@ -518,19 +519,19 @@ def apply(transform, x, params=()):
 
 
 def _domain_kind(transform, p) -> str:
-    """'positive' (x + c > 0), 'nonnegative', 'nonzero' or 'any'."""
+    """'positive' (x + c > 0), 'nonnegative', 'one_sign' (x + c ≠ 0, all of one sign) or 'any'."""
     if transform in ("log", "boxcox", "boxtidwell"):
         return "positive"
     if transform == "sqrt":
         return "nonnegative"
     if transform == "reciprocal":
-        return "nonzero"
+        return "one_sign"
     if transform == "power":
         q = float(p["power"])
         if q == 0 or (q < 0 and q != int(q)):
             return "positive"
         if q < 0:
-            return "nonzero"
+            return "one_sign"
         if q != int(q):
             return "nonnegative"
     return "any"
@@ -540,8 +541,32 @@ def _count_word(count, n, what):
     return f"{count} of {n} values {'is' if count == 1 else 'are'} {what}"
 
 
+def has_pole(transform, params=()) -> bool:
+    """Whether the form tends to ±∞ as x + c → 0 (log, 1/x, negative powers, Box-Cox with λ ≤ 0).
+
+    Such a form is ruled by the rows nearest zero; the candidate generator
+    checks the leverage those rows get (see :mod:`selectkit.candidates`).
+    """
+    p = _params(params)
+    if transform == "log" or transform == "reciprocal":
+        return True
+    if transform in ("power", "boxtidwell"):
+        return float(p.get("power", 1.0)) <= 0
+    if transform == "boxcox":
+        return float(p.get("lambda", 1.0)) <= 0
+    return False
+
+
 def domain_problem(transform, x, params=(), *, column="x"):
     """Why a form is undefined on these data, or None when it is defined everywhere.
+
+    A form with a pole or a branch point at zero is defined only where the
+    (shifted) variable keeps one sign over the rows: log, Box-Cox, Box-Tidwell
+    and fractional negative powers need x + c > 0; √ and fractional positive
+    powers x + c ≥ 0; 1/x and negative whole powers x + c of one sign, never
+    zero.  A variable that crosses zero (a temperature in °C, a centred
+    column) has the pole *inside* the data, where a few rows near zero would
+    rule the fit; such a form is refused, not built.
 
     Parameters
     ----------
@@ -564,6 +589,8 @@ def domain_problem(transform, x, params=(), *, column="x"):
     '1 of 3 values is zero; log is undefined there'
     >>> domain_problem("log", [0.0, 1.0, 2.0], {"shift": 1}) is None
     True
+    >>> domain_problem("reciprocal", [-9.1, 2.0, 38.9], column="temp_c")
+    'temp_c crosses zero (min -9.1, max 38.9); reciprocal has a pole inside the data'
     """
     p = _params(params)
     c = float(p.get("shift", 0.0))
@@ -572,8 +599,11 @@ def domain_problem(transform, x, params=(), *, column="x"):
         return None
     v = np.asarray(x, dtype=float) + c
     n = v.shape[0]
+    if n == 0:
+        return None
     zero = int(np.count_nonzero(v == 0))
     negative = int(np.count_nonzero(v < 0))
+    positive = n - zero - negative
     if transform == "power":
         label = term_name(transform, column, {"power": p["power"]})
     elif transform == "boxtidwell":
@@ -583,11 +613,15 @@ def domain_problem(transform, x, params=(), *, column="x"):
     where = f"{column} + {format_number(c)}" if c else column
     shifted = f" (after the shift {format_number(c)})" if c else ""
     parts = []
-    if kind in ("positive", "nonzero") and zero:
+    if kind in ("positive", "one_sign") and zero:
         parts.append(_count_word(zero, n, "zero"))
     if kind in ("positive", "nonnegative") and negative:
         low = float(np.min(v))
         parts.append(_count_word(negative, n, f"negative (smallest {where} = {format_number(low)})"))
+    if kind == "one_sign" and negative and positive:
+        low, high = float(np.min(v)), float(np.max(v))
+        parts.append(f"{where} crosses zero (min {format_number(low)}, max {format_number(high)})")
+        return "; ".join(parts) + shifted + f"; {label} has a pole inside the data"
     if not parts:
         return None
     return "; ".join(parts) + shifted + f"; {label} is undefined there"

@@ -24,14 +24,32 @@ def demo_result():
     return selectkit.search(pd.read_csv(demo_csv_path()), response=RESPONSE, seed=0)
 
 
-def test_demo_search_shortlists_the_generating_model(demo_result):
-    shortlisted = [set(demo_result.terms(i)) for i in range(len(demo_result.shortlist))]
-    assert set(TRUE_TERMS) in shortlisted
+def _families(result, terms):
+    cands = result.candidates
+    return {cands.terms[cands.term_index(t)].family for t in terms}
+
+
+def test_the_top_answer_holds_the_generating_variables_in_the_generating_forms(demo_result):
+    top = demo_result.shortlist.iloc[0]
+    assert _families(demo_result, demo_result.terms(0)) == _families(demo_result, TRUE_TERMS)
+    # each generating form is the answer's best form or one of its alternatives within Δ ≤ 2
+    offered = set(demo_result.terms(0))
+    for _, forms in demo_result.ranking.answer_forms[0]:
+        offered.update(forms)
+    assert set(TRUE_TERMS) <= offered, top["form_alternatives"]
+    # the generating model itself is in the model-level list, under answer 1
+    models = demo_result.models
+    generating = [i for i, terms in enumerate(models["terms"]) if set(terms.split(" + ")) == set(TRUE_TERMS)]
+    assert generating and int(models["answer"].iloc[generating[0]]) == 1
+    # answers are distinct sets of variables
+    assert demo_result.shortlist["variables"].is_unique
 
 
 def test_checks_pass_on_the_generating_model(demo_result):
-    index = [set(demo_result.terms(i)) for i in range(len(demo_result.shortlist))].index(set(TRUE_TERMS))
-    checks = demo_result.checks(index)
+    from selectkit.diagnostics import diagnose
+
+    cands = demo_result.candidates
+    checks = diagnose(cands, tuple(cands.term_index(t) for t in TRUE_TERMS))
     by_name = {c.name: c for c in checks.checks}
     linearity = [c for name, c in by_name.items() if "linear" in name.lower() or "reset" in name.lower()]
     assert linearity and all(c.passed is not False for c in linearity)
@@ -41,5 +59,5 @@ def test_demo_command_runs_end_to_end(tmp_path):
     proc = subprocess.run([sys.executable, "-m", "selectkit", "demo", "--out", str(tmp_path / "demo")],
                           capture_output=True, text=True, timeout=600)
     assert proc.returncode == 0, proc.stderr
-    assert "generating model" in proc.stdout
+    assert "the top answer holds exactly the generating variables" in proc.stdout
     assert any(p.suffix == ".html" for p in (tmp_path / "demo").iterdir())

@@ -9,6 +9,7 @@ and the stack-loss data of Brownlee (1965) as shipped by ``statsmodels.datasets`
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pytest
 import statsmodels.api as sm
 from scipy import stats
@@ -17,7 +18,9 @@ from statsmodels.stats.diagnostic import het_breuschpagan, linear_reset
 from statsmodels.stats.outliers_influence import OLSInfluence, variance_inflation_factor
 from statsmodels.stats.stattools import durbin_watson
 
-from selectkit.diagnostics import diagnose
+from selectkit.candidates import build_candidates
+from selectkit.data import prepare
+from selectkit.diagnostics import LEVELS, Check, _normality_level, diagnose
 from selectkit.errors import OptionError, SearchError
 from tests.factories import make_candidates
 
@@ -143,8 +146,12 @@ def test_outlier_is_flagged_and_kept():
     diag = diagnose(make_candidates(x[:, None], y), (0,))
     assert 17 in set(diag.flagged_rows["row"])
     check = diag.check("cooks_distance")
-    assert check.passed is False and "17" in check.verdict
-    assert "never delete" in check.remedy
+    # Its Cook's distance (0.46) is above the 20th percentile of F(2, 58) but below the median.
+    assert stats.f.ppf(0.2, 2, 58) < check.statistic < stats.f.ppf(0.5, 2, 58)
+    assert check.level == "worth a look" and check.passed is True
+    assert check.rows[0] == "18" and "rows, counting from 1: 18 (" in check.verdict  # 0-based 17
+    assert "never delete" in check.remedy and check.remedy in diag.remedies
+    assert "cooks_distance" in diag.worth_a_look and "cooks_distance" not in diag.failed
     assert diag.n == n
 
 
@@ -154,9 +161,15 @@ def test_collinear_terms_are_flagged():
     a = rng.normal(size=n)
     X = np.column_stack([a, a + rng.normal(scale=0.05, size=n), rng.normal(size=n)])
     diag = diagnose(make_candidates(X, a + rng.normal(size=n)), (0, 1, 2))
-    assert diag.check("vif").passed is False
-    assert diag.check("condition_number").passed is False
+    vif = diag.check("vif")
+    assert vif.statistic > 100 and vif.level == "a problem" and vif.passed is False
+    condition = diag.check("condition_number")
+    assert 30 < condition.statistic <= 100 and condition.level == "worth a look" and condition.passed is True
     assert set(diag.term_vif.loc[diag.term_vif["flagged"], "term"]) == {"x0", "x1"}
+    # Milder collinearity: VIF between 10 and 100 is worth a look, not a problem.
+    X = np.column_stack([a, a + rng.normal(scale=0.2, size=n), rng.normal(size=n)])
+    mild = diagnose(make_candidates(X, a + rng.normal(size=n)), (0, 1, 2)).check("vif")
+    assert 10 < mild.statistic <= 100 and mild.level == "worth a look"
 
 
 def test_block_gvif_does_not_depend_on_the_reference_level():
@@ -204,5 +217,191 @@ def test_intercept_only_and_bad_input():
     with pytest.raises(OptionError, match="alpha"):
         diagnose(cands, (0,), alpha=5)
     dup = make_candidates(np.column_stack([X[:, 0], X[:, 0]]), rng.normal(size=30))
-    with pytest.raises(SearchError, match="linearly dependent"):
+    with pytest.raises(SearchError, match="linear combination"):
         diagnose(dup, (0, 1))
+
+
+# --------------------------------------------------------------------------- verdicts in proportion
+
+
+def _linear_table(n, seed, errors=None):
+    """A well-specified linear model: four normal predictors, y = 1 + Xβ + ε (normal unless given)."""
+    rng = np.random.default_rng(seed)
+    X = rng.normal(size=(n, 4))
+    noise = rng.normal(size=n) if errors is None else errors(rng, n)
+    return X, 1 + X @ np.array([1.0, 2.0, -1.0, 0.5]) + noise
+
+
+@pytest.fixture(scope="module")
+def clean_large():
+    X, y = _linear_table(20_000, seed=11)
+    return diagnose(make_candidates(X, y), (0, 1, 2, 3))
+
+
+def test_levels_and_passed_agree_on_every_check(clean_large, stackloss):
+    for diag in (clean_large, stackloss[2]):
+        for check in diag.checks:
+            assert check.level in LEVELS
+            assert check.passed is {"fine": True, "worth a look": True, "a problem": False,
+                                    "not assessed": None}[check.level]
+        assert set(diag.failed) == {c.name for c in diag.checks if c.level == "a problem"}
+        assert set(diag.table()["level"]) <= set(LEVELS)
+
+
+def test_check_refuses_a_level_that_contradicts_passed():
+    with pytest.raises(OptionError, match="needs passed=False"):
+        Check("x", "influence", 1.0, None, True, "v", "r", level="a problem")
+    with pytest.raises(OptionError, match="level must be one of"):
+        Check("x", "influence", 1.0, None, True, "v", "r", level="FAIL")
+    assert Check("x", "influence", 1.0, None, False, "v", "r").level == "a problem"  # derived from passed
+
+
+def test_clean_data_at_20000_rows_gives_no_problem_for_influence_or_normality(clean_large):
+    diag = clean_large
+    for name in ("leverage", "cooks_distance", "jarque_bera", "shapiro_wilk"):
+        assert diag.check(name).level != "a problem", diag.check(name).verdict
+    cooks = diag.check("cooks_distance")
+    # About one row in twenty is above 4/n by design (P(χ²₁ > 4) ≈ 0.046): that alone is not a finding.
+    above = int(np.sum(diag.cooks_distance > 4 / diag.n))
+    assert 700 < above < 1300
+    assert cooks.level == "fine" and cooks.rows == () and f"{above} rows above the 4/n" in cooks.verdict
+    assert diag.check("leverage").level == "fine"
+    assert diag.check("shapiro_wilk").level == "not assessed"
+
+
+def test_planted_gross_high_leverage_outlier_is_a_problem():
+    X, y = _linear_table(500, seed=12)
+    X[123, 0], y[123] = 25.0, -40.0  # far out in x0 (25 sd) and far off the plane
+    diag = diagnose(make_candidates(X, y), (0, 1, 2, 3))
+    cooks, leverage = diag.check("cooks_distance"), diag.check("leverage")
+    assert cooks.level == "a problem" and cooks.passed is False
+    assert leverage.level == "a problem" and leverage.statistic > 0.5
+    assert cooks.rows[0] == "124" and leverage.rows[0] == "124"  # 1-based row of the planted 0-based 123
+    assert {"cooks_distance", "leverage"} <= set(diag.failed)
+    # The same row on the 20,000-row table, with its 4 % of screened rows, still stands out.
+    X, y = _linear_table(20_000, seed=11)
+    X[9_000, 1], y[9_000] = 60.0, -300.0
+    big = diagnose(make_candidates(X, y), (0, 1, 2, 3)).check("cooks_distance")
+    assert big.level == "a problem" and big.rows[0] == "9001"
+
+
+def test_heavy_tailed_errors_are_a_problem_for_normality():
+    X, y = _linear_table(400, seed=13, errors=lambda rng, n: rng.standard_t(2, size=n))
+    diag = diagnose(make_candidates(X, y), (0, 1, 2, 3))
+    for name in ("shapiro_wilk", "jarque_bera"):
+        check = diag.check(name)
+        assert check.level == "a problem" and check.passed is False
+        assert "excess kurtosis" in check.verdict and "a problem from" in check.verdict
+
+
+def test_slight_departure_at_large_n_is_fine_and_the_verdict_says_why():
+    # t with 20 df: excess kurtosis 6/16 = 0.375, well below 1; Jarque-Bera rejects at 20,000 rows.
+    X, y = _linear_table(20_000, seed=14, errors=lambda rng, n: rng.standard_t(20, size=n))
+    check = diagnose(make_candidates(X, y), (0, 1, 2, 3)).check("jarque_bera")
+    assert check.pvalue < 0.05
+    assert check.level == "fine" and check.passed is True and check.remedy is None
+    assert "size is small" in check.verdict and "20000 rows even slight departures" in check.verdict
+
+
+def test_normality_rule_table():
+    # The rule of _normality_level, case by case: p-value first, then the size of the departure.
+    big_n, few = 5000, 40
+    assert _normality_level(0.20, 0.05, big_n, 3.0, 9.0)[0] == "fine"  # not rejected
+    assert _normality_level(1e-9, 0.05, big_n, 1.2, 0.0)[0] == "a problem"  # |skewness| > 1
+    assert _normality_level(1e-9, 0.05, big_n, 0.0, 2.5)[0] == "a problem"  # excess kurtosis > 2
+    assert _normality_level(1e-9, 0.05, big_n, 0.7, 0.0)[0] == "worth a look"
+    assert _normality_level(1e-9, 0.05, big_n, 0.0, -1.2)[0] == "worth a look"  # light tails: a look at most
+    assert _normality_level(1e-9, 0.05, big_n, 0.1, 0.3)[0] == "fine"  # detected but trivial
+    assert _normality_level(0.01, 0.05, few, 0.1, 0.3)[0] == "worth a look"  # few rows: the p-value counts
+    assert _normality_level(1e-4, 0.05, few, 0.1, 0.3)[0] == "a problem"
+
+
+def test_skewed_errors_at_small_n_are_a_problem():
+    rng = np.random.default_rng(15)
+    n = 30
+    x = rng.normal(size=n)
+    y = x + rng.exponential(size=n)  # exponential errors: skewness 2
+    check = diagnose(make_candidates(x[:, None], y), (0,)).check("shapiro_wilk")
+    assert check.pvalue < 0.05 and check.level == "a problem"
+
+
+def test_slight_bend_and_slight_change_of_spread_at_large_n_are_worth_a_look():
+    rng = np.random.default_rng(5)
+    n = 20_000
+    x = rng.uniform(0, 1, n)
+    reset = diagnose(make_candidates(x[:, None], x + 0.03 * x ** 2 + rng.normal(scale=0.1, size=n)),
+                     (0,)).check("reset")
+    assert reset.pvalue < 0.05 and reset.level == "worth a look" and "below Cohen's small effect" in reset.verdict
+    spread = diagnose(make_candidates(x[:, None], x + rng.normal(size=n) * (1 + 0.15 * x)), (0,)).check("breusch_pagan")
+    assert spread.pvalue < 0.05 and spread.level == "worth a look"
+
+
+def test_more_rows_above_4_over_n_than_chance_is_worth_a_look():
+    # The spread grows with |x|: rows far out in x fit worse, and more of them pass 4/n than normal errors would put there.
+    rng = np.random.default_rng(2)
+    n = 5000
+    x = rng.normal(size=n)
+    y = 1 + x + rng.normal(size=n) * (0.3 + np.abs(x))
+    diag = diagnose(make_candidates(x[:, None], y), (0,))
+    check = diag.check("cooks_distance")
+    assert check.statistic < stats.f.ppf(0.2, 2, n - 2)  # no single row is influential
+    assert check.level == "worth a look" and "more than chance explains" in check.verdict
+
+
+def test_at_most_ten_rows_are_listed_with_the_count_of_the_rest():
+    rng = np.random.default_rng(2)
+    n = 5000
+    x = rng.normal(size=n)
+    diag = diagnose(make_candidates(x[:, None], 1 + x + rng.normal(size=n) * (0.3 + np.abs(x))), (0,))
+    check = diag.check("cooks_distance")
+    above = np.flatnonzero(diag.cooks_distance > 4 / n)
+    assert len(check.rows) == 10 and check.rows_not_listed == above.size - 10
+    assert f"and {above.size - 10} more." in check.verdict
+    largest = above[np.argsort(-diag.cooks_distance[above], kind="stable")][:10]
+    assert check.rows == tuple(str(i + 1) for i in largest)  # largest first, named from 1
+    assert len(diag.flagged_rows) >= above.size  # the table keeps every screened row
+
+
+def test_rows_are_named_by_the_identifier_column_when_intake_found_one():
+    rng = np.random.default_rng(16)
+    n = 60
+    frame = pd.DataFrame({"plot_id": [f"bay-{i:03d}" for i in range(n)],
+                          "light": rng.normal(10, 2, n), "co2": rng.normal(400, 30, n)})
+    frame["yield_kg"] = 2 + 0.5 * frame["light"] + 0.01 * frame["co2"] + rng.normal(0, 0.3, n)
+    frame.loc[41, "light"] = 40.0  # far out in light, and off the plane
+    frame.loc[41, "yield_kg"] = 0.0
+    cands = build_candidates(prepare(frame, response="yield_kg"), forms=("identity",))
+    subset = tuple(i for i, t in enumerate(cands.terms) if t.name in ("light", "co2"))
+    diag = diagnose(cands, subset)
+    assert diag.rows_named == "by plot_id"
+    check = diag.check("cooks_distance")
+    assert check.rows[0] == "bay-041" and "by plot_id: bay-041 (" in check.verdict
+    assert diag.flagged_rows["name"].iloc[0] == "bay-041"
+
+
+def test_rows_are_named_by_data_row_of_the_file_counting_from_1(tmp_path):
+    rng = np.random.default_rng(17)
+    n = 40
+    light = rng.normal(10, 2, n)
+    yield_kg = 2 + 0.5 * light + rng.normal(0, 0.3, n)
+    light[30], yield_kg[30] = 40.0, 0.0  # 0-based row 30 of the data: data row 31 of the file
+    lines = ["light,yield_kg"] + [f"{a:.6f},{b:.6f}" for a, b in zip(light, yield_kg)]
+    lines[1 + 5] = ",1.0"  # data row 6 has no light: dropped, so positions after it shift by one
+    path = tmp_path / "bays.csv"
+    path.write_text("\n".join(lines) + "\n")
+    cands = build_candidates(prepare(path, response="yield_kg", missing="drop"), forms=("identity",))
+    diag = diagnose(cands, (next(i for i, t in enumerate(cands.terms) if t.name == "light"),))
+    assert diag.rows_named == "data rows of the file, counting from 1"
+    check = diag.check("leverage")
+    assert check.rows[0] == "31" and "data rows of the file, counting from 1: 31 (" in check.verdict
+
+
+def test_reports_show_the_level_words(stackloss):
+    from selectkit.report import html, text
+
+    _, _, diag = stackloss
+    marks = {text._mark(c) for c in diag.checks}
+    assert {m.strip() for m in marks} <= {"[fine]", "[worth a look]", "[a problem]", "[not assessed]"}
+    assert len({len(m) for m in marks}) == 1  # padded so the verdicts line up
+    page = html._checks_table(diag)
+    assert '<span class="look">worth a look</span>' in page and "passed" not in page and "failed" not in page

@@ -54,10 +54,10 @@ def run(tmp_path_factory):
             "stability": stab, "settings": settings, "folder": folder, "paths": paths}
 
 
-def test_write_outputs_writes_three_files_and_no_temporary_file(run):
+def test_write_outputs_writes_four_files_and_no_temporary_file(run):
     paths = run["paths"]
-    assert set(paths) == {"shortlist_csv", "shortlist_json", "report_html"}
-    assert sorted(os.listdir(run["folder"])) == ["report.html", "shortlist.csv", "shortlist.json"]
+    assert set(paths) == {"shortlist_csv", "models_csv", "shortlist_json", "report_html"}
+    assert sorted(os.listdir(run["folder"])) == ["models.csv", "report.html", "shortlist.csv", "shortlist.json"]
     for path in paths.values():
         assert path.stat().st_size > 0
 
@@ -70,6 +70,12 @@ def test_csv_round_trips(run):
     np.testing.assert_allclose(frame["bic"], table["bic"], rtol=1e-9)
     np.testing.assert_allclose(frame["model_weight"], table["model_weight"], rtol=1e-9)
     assert frame["cv_mse"].isna().all()  # scores were not requested: empty cells, not zeros
+    # one row per answer: no two rows hold the same variables
+    assert frame["variables"].is_unique and list(frame["answer"]) == list(range(1, len(frame) + 1))
+    models = pd.read_csv(run["paths"]["models_csv"])
+    assert list(models.columns) == [c for c in tables.MODEL_CSV_COLUMNS if c in run["shortlist"].models.columns]
+    assert list(models["terms"]) == list(run["shortlist"].models["terms"])
+    assert list(models["position"]) == list(range(1, len(models) + 1))
 
 
 def test_json_validates_against_its_schema(run):
@@ -80,8 +86,10 @@ def test_json_validates_against_its_schema(run):
     assert tables.validate_document(document) == []
     assert document["schema_version"] == tables.SCHEMA_VERSION
     assert document["ranking"]["criterion"] == "bic"
-    best = document["models"][0]
+    assert document["answers"][0]["answer"] == 1
+    best = document["answers"][0]["best_model"]
     assert best["terms"] == list(run["shortlist"].terms(0))
+    assert document["models"][0]["terms"] == best["terms"] and "checks" not in document["models"][0]
     assert best["scores"]["cv_mse"] is None  # NaN becomes null
     assert best["coefficients"][0]["coefficient"] == "intercept"
     assert {c["name"] for c in best["checks"]} >= {"reset", "breusch_pagan", "cooks_distance"}
@@ -91,6 +99,8 @@ def test_json_validates_against_its_schema(run):
 
 @pytest.mark.parametrize("breakage", [
     lambda d: d.pop("models"),
+    lambda d: d.pop("answers"),
+    lambda d: d["answers"][0].__setitem__("models_in_answer", 0),
     lambda d: d.__setitem__("schema_version", "0.9"),
     lambda d: d["models"][0].__setitem__("k", "three"),
     lambda d: d["models"][0]["scores"].__setitem__("aic", "low"),
@@ -172,8 +182,8 @@ def test_outputs_replace_older_files(run, tmp_path):
     old.write_text("stale", encoding="utf-8")
     paths = report.write_outputs(tmp_path, settings={}, candidates=run["candidates"], founds=[],
                                  shortlist=run["shortlist"], diagnoses=[])
-    assert paths["shortlist_csv"].read_text(encoding="utf-8").startswith("position,terms")
-    assert sorted(os.listdir(tmp_path)) == ["report.html", "shortlist.csv", "shortlist.json"]
+    assert paths["shortlist_csv"].read_text(encoding="utf-8").startswith("answer,variables")
+    assert sorted(os.listdir(tmp_path)) == ["models.csv", "report.html", "shortlist.csv", "shortlist.json"]
 
 
 def test_large_data_are_thinned_in_the_plots():

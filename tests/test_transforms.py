@@ -162,12 +162,15 @@ def test_domain_problems_name_the_count():
     msg = tf.domain_problem("sqrt", neg, column="temp")
     assert msg.startswith("2 of 4 values are negative (smallest temp = -2)")
     assert "sqrt is undefined" in msg
-    assert tf.domain_problem("reciprocal", neg) is None  # 1/x is defined for negatives
+    # 1/x is defined for negatives, but a variable of both signs has the pole inside the data
+    assert "crosses zero (min -2, max 4)" in tf.domain_problem("reciprocal", neg)
+    assert tf.domain_problem("reciprocal", -np.abs(neg) - 1) is None  # one sign, away from zero
     assert tf.domain_problem("log", neg, {"shift": 1.0}).startswith("1 of 4 values is zero; 1 of 4 values is negative")
     assert "after the shift 1" in tf.domain_problem("log", neg, {"shift": 1.0})
     assert tf.domain_problem("power", neg, {"power": 3.0}) is None
     assert tf.domain_problem("power", neg, {"power": -0.5}) is not None
-    assert tf.domain_problem("power", neg, {"power": -2.0}) is None
+    assert "pole inside the data" in tf.domain_problem("power", neg, {"power": -2.0})
+    assert tf.domain_problem("power", neg + 3, {"power": -2.0}) is None
     assert tf.domain_problem("yeojohnson", neg, {"lambda": 0.3}) is None
     assert tf.domain_problem("identity", neg) is None
 

@@ -1,8 +1,10 @@
 """Outputs of a run: the shortlist as CSV and JSON, a self-contained HTML report, figures, a text summary.
 
 :func:`write_outputs` is the single entry point that writes every file of a
-run into one folder, each atomically (a temporary file in the same folder,
-then ``os.replace``), so a reader never sees a half-written file.
+run into one folder as one set (see :func:`selectkit._io.output_set`): the
+files are written into a hidden staging folder and moved in only when every
+one of them is complete, so a failure or a kill part-way leaves the previous
+set whole rather than a new CSV beside an old report.
 """
 
 from __future__ import annotations
@@ -14,6 +16,7 @@ __all__ = ["OUTPUT_NAMES", "write_outputs"]
 #: File names written by :func:`write_outputs`, by label.
 OUTPUT_NAMES = {
     "shortlist_csv": "shortlist.csv",
+    "models_csv": "models.csv",
     "shortlist_json": "shortlist.json",
     "report_html": "report.html",
 }
@@ -21,7 +24,7 @@ OUTPUT_NAMES = {
 
 def write_outputs(folder, *, settings, candidates, founds, shortlist, diagnoses, stability=None,
                   honest=None) -> dict:
-    """Write ``shortlist.csv``, ``shortlist.json`` and ``report.html`` into ``folder``.
+    """Write ``shortlist.csv`` (answers), ``models.csv`` (models), ``shortlist.json`` and ``report.html`` into ``folder``.
 
     Parameters
     ----------
@@ -41,13 +44,14 @@ def write_outputs(folder, *, settings, candidates, founds, shortlist, diagnoses,
     Returns
     -------
     dict
-        Label (``shortlist_csv``, ``shortlist_json``, ``report_html``) → Path of the file written.
+        Label (``shortlist_csv``, ``models_csv``, ``shortlist_json``, ``report_html``) → Path of the file written.
 
     Raises
     ------
     InputError
         If the JSON document would not follow the shipped schema (a bug, reported rather than written).
     """
+    from .._io import output_set
     from . import html, tables
 
     folder = Path(folder)
@@ -57,12 +61,15 @@ def write_outputs(folder, *, settings, candidates, founds, shortlist, diagnoses,
     document = tables.shortlist_document(shortlist=shortlist, candidates=candidates, settings=settings,
                                          founds=founds, diagnoses=diagnoses, stability=stability, honest=honest)
     tables.check_document(document)
-    paths = {
-        "shortlist_csv": tables.write_csv(folder / OUTPUT_NAMES["shortlist_csv"], shortlist),
-        "shortlist_json": tables.write_json(folder / OUTPUT_NAMES["shortlist_json"], document),
-    }
-    paths["report_html"] = html.write_html(
-        folder / OUTPUT_NAMES["report_html"], shortlist=shortlist, settings=settings, candidates=candidates,
-        founds=founds, diagnoses=diagnoses, stability=stability, honest=honest,
-    )
-    return paths
+    # One set: every file is written into a staging folder first and moved in only when all are there.
+    with output_set(folder) as stage:
+        paths = {
+            "shortlist_csv": tables.write_csv(stage / OUTPUT_NAMES["shortlist_csv"], shortlist),
+            "models_csv": tables.write_models_csv(stage / OUTPUT_NAMES["models_csv"], shortlist),
+            "shortlist_json": tables.write_json(stage / OUTPUT_NAMES["shortlist_json"], document),
+        }
+        paths["report_html"] = html.write_html(
+            stage / OUTPUT_NAMES["report_html"], shortlist=shortlist, settings=settings, candidates=candidates,
+            founds=founds, diagnoses=diagnoses, stability=stability, honest=honest,
+        )
+    return {label: folder / Path(path).name for label, path in paths.items()}

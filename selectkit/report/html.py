@@ -37,7 +37,7 @@ th{background:#eef2f6;font-weight:600}
 td.num{text-align:right;font-variant-numeric:tabular-nums}
 .scroll{overflow-x:auto}
 .equation{font-family:ui-monospace,Menlo,Consolas,monospace;background:#f3f6f9;padding:.5rem .7rem;border-radius:4px;overflow-x:auto}
-.ok{color:#1d7a3a;font-weight:600}.fail{color:#b03a2e;font-weight:600}.na{color:#7b8189}
+.ok{color:#1d7a3a;font-weight:600}.look{color:#9a6700;font-weight:600}.fail{color:#b03a2e;font-weight:600}.na{color:#7b8189}
 .caution{border-left:4px solid #c0392b;background:#fdf3f1;padding:.6rem .9rem;margin:.6rem 0}
 .note{color:#55606b;font-size:.88rem}
 figure{margin:.6rem 0}figure img{max-width:100%;height:auto;border:1px solid #e3e1da}
@@ -183,26 +183,44 @@ def _criterion_text(shortlist) -> str:
 
 
 _SHORTLIST_HEADERS = {
-    "position": "#", "terms": "terms", "n_terms": "terms (count)", "k": "coefficients k",
+    "position": "model #", "answer": "answer", "terms": "terms", "n_terms": "terms (count)", "k": "coefficients k",
     "delta_from_best": "Δ", "model_weight": "weight", "comparable_support": "comparable support",
     "adj_r2": "adjusted R²", "r2": "R²", "cv_mse": "CV MSE", "cv_se": "CV SE",
     "holdout_mse": "held-out MSE", "press": "PRESS", "found_by": "found by",
+    "variables": "variables", "answer_weight": "weight of the answer", "models_in_answer": "models in it",
+    "form_alternatives": "forms as good (Δ ≤ 2)",
 }
 
 
 def _shortlist_section(shortlist) -> str:
-    columns = ["position", "terms", "n_terms", "k", "delta_from_best", "model_weight", "comparable_support",
-               shortlist.criterion, "aicc", "bic", "adj_r2", "cv_mse", "cv_se", "found_by"]
-    columns = list(dict.fromkeys(c for c in columns if c in shortlist.table.columns))
+    """The answers first (sets of variables, each in its best forms), then the model-level list."""
+    answer_columns = ["answer", "terms", "delta_from_best", "answer_weight", "models_in_answer",
+                      "form_alternatives", shortlist.criterion, "adj_r2", "cv_mse", "position"]
+    answer_columns = list(dict.fromkeys(c for c in answer_columns if c in shortlist.table.columns))
+    model_columns = ["position", "answer", "terms", "n_terms", "k", "delta_from_best", "model_weight",
+                     "comparable_support", shortlist.criterion, "aicc", "bic", "adj_r2", "cv_mse", "cv_se",
+                     "found_by"]
+    model_columns = list(dict.fromkeys(c for c in model_columns if c in shortlist.models.columns))
     notes = "".join(f"<p class=\"note\">{_e(n)}</p>" for n in shortlist.notes)
-    return _criterion_text(shortlist) + _table(shortlist.table[columns], headers=_SHORTLIST_HEADERS) + notes
+    answers_intro = (
+        "<p>An <b>answer</b> is a set of variables, whatever their forms: models that hold the same variables "
+        "in different forms are one answer, because the data often tell such forms apart only weakly. Each "
+        "row shows the answer's best model, the summed weight of every pooled model holding exactly those "
+        f"variables ({len(shortlist.scored)} models make {int(shortlist.scored['answer'].max())} answers), "
+        "and the other forms found within Δ ≤ 2 of its best. Answers are ranked by their best model.</p>")
+    models_intro = ("<h3>Model by model</h3><p class=\"note\">The best models whatever their answer; the "
+                    "column answer links each to its row above.</p>")
+    return (_criterion_text(shortlist) + answers_intro
+            + _table(shortlist.table[answer_columns], headers=_SHORTLIST_HEADERS)
+            + models_intro + _table(shortlist.models[model_columns], headers=_SHORTLIST_HEADERS) + notes)
 
 
 def _checks_table(diagnosis) -> str:
     rows = []
     for c in diagnosis.checks:
-        mark = {True: '<span class="ok">passed</span>', False: '<span class="fail">failed</span>',
-                None: '<span class="na">not assessed</span>'}[c.passed]
+        level = getattr(c, "level", None) or {True: "fine", False: "a problem", None: "not assessed"}[c.passed]
+        style = {"fine": "ok", "worth a look": "look", "a problem": "fail"}.get(level, "na")
+        mark = f'<span class="{style}">{_e(level)}</span>'
         remedy = f"<br><i>What to try:</i> {_e(c.remedy)}" if c.remedy else ""
         rows.append(f"<tr><td>{_e(c.aspect)}</td><td>{mark}</td><td>{_e(c.verdict)}{remedy}</td>"
                     f"<td class=\"note\">{_e(c.reference)}</td></tr>")
@@ -213,8 +231,13 @@ def _checks_table(diagnosis) -> str:
 def _model_section(position, fit, diagnosis, row) -> str:
     parts = [f'<p class="equation">{_e(fit.equation)}</p>',
              f"<p>n = {fit.n} rows, k = {fit.k} coefficients, residual standard error {_e(_fmt(fit.sigma))}; "
-             f"Δ = {_e(_fmt(row['delta_from_best']))}, weight {_e(_fmt(row['model_weight']))}; "
-             f"found by {_e(row['found_by'])}.</p>"]
+             f"Δ = {_e(_fmt(row['delta_from_best']))}, model weight {_e(_fmt(row['model_weight']))}, "
+             f"weight of the answer {_e(_fmt(row.get('answer_weight')))} over {_e(row.get('models_in_answer'))} "
+             f"model(s); found by {_e(row['found_by'])}.</p>"]
+    if row.get("form_alternatives"):
+        parts.append(f"<p>Forms as good for this answer (within Δ ≤ 2 of its best): "
+                     f"{_e(row['form_alternatives'])}. The data do not tell these apart; choose among them "
+                     "by what you know of the process.</p>")
     coefficients = fit.coefficients.rename(columns={"p_value_optimistic": "p-value (optimistic)",
                                                     "std_error": "standard error", "ci_low": "95% low",
                                                     "ci_high": "95% high"})
@@ -224,11 +247,21 @@ def _model_section(position, fit, diagnosis, row) -> str:
     if diagnosis is not None:
         parts.append("<h3>Assumption checks</h3>" + _checks_table(diagnosis))
         if len(diagnosis.flagged_rows):
+            # The diagnosis keeps every row above a screening cut-off, largest Cook's distance first;
+            # the page shows the first ten (the screening cut-offs flag about 5 % of clean rows).
+            shown = diagnosis.flagged_rows.head(10)
+            rest = len(diagnosis.flagged_rows) - len(shown)
+            named = getattr(diagnosis, "rows_named", "")
             parts.append("<h3>Rows to look at</h3>"
-                         + _table(diagnosis.flagged_rows, headers={"cooks_distance": "Cook's distance",
-                                                                   "studentized_residual": "studentised residual",
-                                                                   "reason": "flagged for"})
-                         + '<p class="note">Flagged rows are listed for a check, not removed.</p>')
+                         + _table(shown, headers={"name": "row name", "cooks_distance": "Cook's distance",
+                                                  "studentized_residual": "studentised residual",
+                                                  "reason": "above the screening cut-off of"})
+                         + '<p class="note">'
+                         + (f"Largest Cook's distance first; {rest} more rows are above a screening cut-off "
+                            "(leverage 2k/n or Cook's distance 4/n). " if rest else "")
+                         + (f"Rows are named {_e(named)}; " if named else "")
+                         + "row is the position among the rows used, counting from 0. "
+                         "Rows are listed for a check, not removed.</p>")
         parts.append("<h3>Residual plots</h3>")
         parts.append(_figure(plots.residual_panel(diagnosis),
                              "Residuals against fitted values, normal Q-Q, spread against fitted values, "
@@ -241,7 +274,7 @@ def _model_section(position, fit, diagnosis, row) -> str:
                                                                "columns": "coefficients"}))
     else:
         parts.append('<p class="note">The assumption checks of this model were not run.</p>')
-    return _section(f"model-{position}", f"Model {position}: {' + '.join(fit.terms) or 'intercept only'}",
+    return _section(f"model-{position}", f"Answer {position}: {' + '.join(fit.terms) or 'intercept only'}",
                     "".join(parts))
 
 
@@ -311,7 +344,7 @@ def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnos
          _figure(plots.variable_support(shortlist),
                  "Summed weight of the pooled models that hold each variable (any form).")
          + _support_note(founds, shortlist) + _table(shortlist.variable_support)),
-        ("shortlist", "The shortlist", _shortlist_section(shortlist)),
+        ("shortlist", "The shortlist: answers first", _shortlist_section(shortlist)),
     ]
     body = [_section(a, t, b) for a, t, b in sections]
     for i, fit in enumerate(shortlist.fits):
@@ -323,7 +356,7 @@ def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnos
         body.append(_section("honest-error", "How well the whole procedure predicts new rows",
                              _honest_section(honest)))
     body.append(_section("cautions", "Before you rely on these models", _cautions_section()))
-    nav_items = [(a, t) for a, t, _ in sections] + [(f"model-{i + 1}", f"Model {i + 1}")
+    nav_items = [(a, t) for a, t, _ in sections] + [(f"model-{i + 1}", f"Answer {i + 1}")
                                                     for i in range(len(shortlist.fits))]
     if stability is not None:
         nav_items.append(("stability", "Resampling"))

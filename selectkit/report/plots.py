@@ -189,10 +189,14 @@ def _cooks(axes, diagnosis):
     limit = 4.0 / diagnosis.n
     axes.vlines(rows, 0, cooks, color=np.where(cooks > limit, _ACCENT, _INK), linewidth=1)
     axes.axhline(limit, color=_MUTED, linewidth=0.8, linestyle=":")
-    for row in rows[cooks > limit][:8]:
-        axes.annotate(str(row), (row, cooks[row]), fontsize=7, color=_ACCENT,
+    # label the largest ones by the name the verdicts use (identifier or data row counting from 1)
+    flagged = getattr(diagnosis, "flagged_rows", None)
+    names = dict(zip(flagged["row"], flagged["name"])) if flagged is not None and "name" in flagged else {}
+    above = rows[cooks > limit]
+    for row in above[np.argsort(-cooks[above], kind="stable")][:8]:
+        axes.annotate(str(names.get(int(row), int(row) + 1)), (row, cooks[row]), fontsize=7, color=_ACCENT,
                       xytext=(2, 2), textcoords="offset points")
-    axes.set_xlabel("row")
+    axes.set_xlabel("position among the rows used")
     axes.set_ylabel("Cook's distance")
     axes.set_title("Cook's distance (dotted: 4/n)", fontsize=9)
 

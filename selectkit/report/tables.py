@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from importlib import resources
 from pathlib import Path
 
@@ -27,8 +28,12 @@ __all__ = [
     "SCHEMA_VERSION",
     "CSV_COLUMNS",
     "shortlist_frame",
+    "csv_text",
     "shortlist_csv",
     "write_csv",
+    "MODEL_CSV_COLUMNS",
+    "models_csv",
+    "write_models_csv",
     "shortlist_document",
     "write_json",
     "load_schema",
@@ -36,14 +41,18 @@ __all__ = [
     "check_document",
 ]
 
-SCHEMA_VERSION = "1.0"
+SCHEMA_VERSION = "2.0"
 
-#: Columns of the CSV shortlist, in order.
-CSV_COLUMNS = (
-    "position", "terms", "n_terms", "k", "delta_from_best", "model_weight", "comparable_support",
-    "rss", "log_likelihood", "aic", "aicc", "bic", "cp", "r2", "adj_r2",
+#: Columns of the model-level CSV (``models.csv``), in order.
+MODEL_CSV_COLUMNS = (
+    "position", "answer", "terms", "variables", "n_terms", "k", "delta_from_best", "model_weight",
+    "comparable_support", "rss", "log_likelihood", "aic", "aicc", "bic", "cp", "r2", "adj_r2",
     "press", "cv_mse", "cv_se", "holdout_mse", "found_by", "term_indices",
 )
+#: Columns of the CSV shortlist of answers (``shortlist.csv``), in order: the answer, then its best model.
+CSV_COLUMNS = (
+    "answer", "variables", "answer_weight", "models_in_answer", "form_alternatives",
+) + tuple(c for c in MODEL_CSV_COLUMNS if c not in ("answer", "variables"))
 
 _SCORE_KEYS = ("rss", "log_likelihood", "aic", "aicc", "bic", "cp", "r2", "adj_r2",
                "press", "cv_mse", "cv_se", "holdout_mse")
@@ -80,16 +89,96 @@ def _clean(value):
 
 # --------------------------------------------------------------------------- CSV
 
+#: First characters that make a spreadsheet read a text cell as a formula (or start one).
+_FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+#: A plain decimal number written as text (such as a level ``-1``): a spreadsheet reads it as a number.
+_PLAIN_NUMBER = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?")
+
+
+def _neutral_text(value):
+    """``value`` with a leading apostrophe when it is text a spreadsheet would run as a formula."""
+    if isinstance(value, str) and value.startswith(_FORMULA_STARTS) and not _PLAIN_NUMBER.fullmatch(value):
+        return "'" + value
+    return value
+
+
+def _is_textual(dtype) -> bool:
+    """Whether a column of this dtype may hold text (object, string or categorical columns)."""
+    return isinstance(dtype, pd.CategoricalDtype) or pd.api.types.is_object_dtype(dtype) \
+        or pd.api.types.is_string_dtype(dtype)
+
+
+def _spreadsheet_safe(frame: pd.DataFrame) -> pd.DataFrame:
+    """A copy of ``frame`` whose text cells and column names cannot start a spreadsheet formula.
+
+    Column names and levels come from the user's table, so a cell such as
+    ``=HYPERLINK(...)`` or ``@SUM(...)`` would be evaluated when the CSV is
+    opened in a spreadsheet (formula or "CSV" injection). Every text cell and
+    column name that begins with ``=``, ``+``, ``-``, ``@``, a tab or a carriage
+    return gets a leading apostrophe, which spreadsheets show as text. Numeric
+    columns and number cells are left as they are (a negative number stays a
+    number), and so is text that is a plain decimal number such as ``-1.5``.
+
+    This is common practice (the OWASP guidance on CSV injection, cited from
+    memory), not a published standard. The JSON output is never altered.
+    """
+    safe = frame.copy()
+    safe.columns = [_neutral_text(c) for c in safe.columns]
+    for i in range(safe.shape[1]):
+        column = safe.iloc[:, i]
+        if not _is_textual(column.dtype):  # numbers, booleans, dates: never text a spreadsheet could run
+            continue
+        safe.isetitem(i, column.astype(object).map(_neutral_text))
+    return safe
+
+
+def _holds_carriage_return(frame: pd.DataFrame) -> bool:
+    names = any(isinstance(c, str) and "\r" in c for c in frame.columns)
+    return names or any(isinstance(v, str) and "\r" in v
+                        for i in range(frame.shape[1]) if _is_textual(frame.iloc[:, i].dtype)
+                        for v in frame.iloc[:, i])
+
+
+def csv_text(frame: pd.DataFrame) -> str:
+    """Any output table as CSV text, safe to open in a spreadsheet (see :func:`_spreadsheet_safe`).
+
+    UTF-8, comma-separated, ``\\n`` line ends, numbers to 10 significant digits,
+    empty cells for missing values, no index column. Every CSV selectkit
+    writes goes through here. When a name holds a carriage return, the lines
+    end in ``\\r\\n`` instead (RFC 4180's line end): Python's CSV writer quotes
+    only cells holding a character of the line end, and an unquoted carriage
+    return would split a row for every reader.
+    """
+    safe = _spreadsheet_safe(frame)
+    line_end = "\r\n" if _holds_carriage_return(safe) else "\n"
+    return safe.to_csv(index=False, lineterminator=line_end, float_format="%.10g")
+
 
 def shortlist_frame(shortlist) -> pd.DataFrame:
-    """The shortlist's table with the CSV columns, in order."""
+    """The shortlist of answers with the CSV columns, in order (one row per answer, its best model's scores)."""
     table = shortlist.table
     return table[[c for c in CSV_COLUMNS if c in table.columns]].copy()
 
 
+def models_frame(shortlist) -> pd.DataFrame:
+    """The model-level list with the columns of ``models.csv``, in order."""
+    table = shortlist.models
+    return table[[c for c in MODEL_CSV_COLUMNS if c in table.columns]].copy()
+
+
+def models_csv(shortlist) -> str:
+    """The model-level list as CSV text (as :func:`shortlist_csv`)."""
+    return csv_text(models_frame(shortlist))
+
+
+def write_models_csv(path, shortlist) -> Path:
+    """Write the model-level CSV atomically; return the path."""
+    return atomic_write_text(path, models_csv(shortlist))
+
+
 def shortlist_csv(shortlist) -> str:
-    """The shortlist as CSV text (UTF-8, comma-separated, empty cells for missing values)."""
-    return shortlist_frame(shortlist).to_csv(index=False, lineterminator="\n", float_format="%.10g")
+    """The shortlist as CSV text (UTF-8, comma-separated, empty cells for missing values, formula-safe)."""
+    return csv_text(shortlist_frame(shortlist))
 
 
 def write_csv(path, shortlist) -> Path:
@@ -115,6 +204,7 @@ def _search_entry(found) -> dict:
 def _model_entry(row, fit, diagnosis) -> dict:
     entry = {
         "position": int(row["position"]),
+        "answer": int(row["answer"]),
         "terms": list(fit.terms) if fit is not None else [t for t in str(row["terms"]).split(" + ")],
         "term_indices": [int(i) for i in str(row["term_indices"]).split()],
         "variables": [v for v in str(row["variables"]).split(", ") if v],
@@ -136,7 +226,8 @@ def _model_entry(row, fit, diagnosis) -> dict:
     if diagnosis is not None:
         entry["checks"] = [
             {"name": c.name, "aspect": c.aspect, "statistic": _clean(c.statistic), "pvalue": _clean(c.pvalue),
-             "passed": c.passed, "verdict": c.verdict, "reference": c.reference, "remedy": c.remedy}
+             "level": c.level, "passed": c.passed, "verdict": c.verdict, "reference": c.reference,
+             "remedy": c.remedy, "rows": [str(r) for r in c.rows], "rows_not_listed": int(c.rows_not_listed)}
             for c in diagnosis.checks
         ]
         entry["flagged_rows"] = [int(r) for r in diagnosis.flagged_rows["row"]]
@@ -195,11 +286,20 @@ def shortlist_document(*, shortlist, candidates=None, settings=None, founds=(), 
         name = str(settings.get("response", "response"))
         response = {"name": name, "scale": name, "transform": "identity"}
     diagnoses = list(diagnoses or ())
-    models = []
+    answers = []
     for i, (_, row) in enumerate(shortlist.table.iterrows()):
         fit = shortlist.fits[i] if i < len(shortlist.fits) else None
         diagnosis = diagnoses[i] if i < len(diagnoses) else None
-        models.append(_model_entry(row, fit, diagnosis))
+        answers.append({
+            "answer": int(row["answer"]),
+            "variables": [v for v in str(row["variables"]).split(", ") if v],
+            "answer_weight": _clean(row["answer_weight"]),
+            "models_in_answer": int(row["models_in_answer"]),
+            "form_alternatives": [{"variable": variable, "forms": list(forms)}
+                                  for variable, forms in shortlist.answer_forms[i]],
+            "best_model": _model_entry(row, fit, diagnosis),
+        })
+    models = [_model_entry(row, None, None) for _, row in shortlist.models.iterrows()]
     return {
         "schema_version": SCHEMA_VERSION,
         "producer": {"name": "selectkit", "version": __version__},
@@ -216,6 +316,7 @@ def shortlist_document(*, shortlist, candidates=None, settings=None, founds=(), 
             "models_pooled": int(len(shortlist.scored)),
         },
         "searches": [_search_entry(f) for f in founds],
+        "answers": answers,
         "models": models,
         "variable_support": [
             {"variable": str(r["variable"]), "support": _clean(r["support"]),

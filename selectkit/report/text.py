@@ -6,7 +6,7 @@ import textwrap
 
 import math
 
-__all__ = ["CAUTIONS", "SHORT_CAUTION", "summary"]
+__all__ = ["CAUTIONS", "SHORT_CAUTION", "printable", "summary"]
 
 #: The cautions shown with every shortlist (title, text).
 CAUTIONS = (
@@ -35,6 +35,32 @@ SHORT_CAUTION = ("Caution: p-values and intervals of a selected model are optimi
 
 _TERMS_WIDTH = 78
 
+_SHORT_ESCAPES = {"\t": "\\t", "\n": "\\n", "\r": "\\r"}
+#: Characters a terminal acts on instead of showing: C0 controls, DEL, C1 controls, the bidirectional
+#: overrides and isolates (which reorder what is shown) and the Unicode line and paragraph separators.
+_UNSHOWN = [*range(0x00, 0x20), *range(0x7F, 0xA0), 0x200E, 0x200F, *range(0x202A, 0x202F),
+            *range(0x2066, 0x206A), 0x2028, 0x2029]
+_ESCAPES = {code: _SHORT_ESCAPES.get(chr(code), f"\\x{code:02x}" if code < 0x100 else f"\\u{code:04x}")
+            for code in _UNSHOWN}
+
+
+def printable(text) -> str:
+    r"""``text`` with every character a terminal would act on shown as an escape instead.
+
+    Column names, levels and file names come from the user's files; printed
+    raw, an escape sequence such as ``ESC[2J`` clears the screen and a newline
+    forges a line of output. Control characters (C0, DEL, C1), the
+    bidirectional overrides and the Unicode line separators are shown as
+    ``\x1b``, ``\n``, ``\u202e``...; everything else, backslashes included,
+    is kept as it is. Applying it twice changes nothing more.
+
+    Examples
+    --------
+    >>> print(printable("light\x1b[31m\nCO2"))
+    light\x1b[31m\nCO2
+    """
+    return str(text).translate(_ESCAPES)
+
 
 def _number(value) -> str:
     try:
@@ -46,23 +72,10 @@ def _number(value) -> str:
     return f"{value:.4g}" if abs(value) < 1e5 else f"{value:.6g}"
 
 
-def _mark(passed) -> str:
-    return {True: "ok  ", False: "FAIL", None: "n/a "}[passed]
-
-
-def _same_variables(table) -> str:
-    """A line naming listed models that hold the same variables in different forms, if any."""
-    if "variables" not in table or len(table) < 2:
-        return ""
-    groups: dict = {}
-    for _, row in table.iterrows():
-        groups.setdefault(row["variables"], []).append(int(row["position"]))
-    shared = [positions for positions in groups.values() if len(positions) > 1]
-    if not shared:
-        return ""
-    listed = "; ".join(", ".join(map(str, p)) for p in shared)
-    return (f"Models {listed} hold the same variables in different forms: the data tell those forms apart "
-            "only weakly; look at the variables' support rather than at one form.")
+def _mark(check) -> str:
+    """The check's level in brackets, padded so the verdicts line up: ``[fine]``, ``[worth a look]``..."""
+    level = getattr(check, "level", None) or {True: "fine", False: "a problem", None: "not assessed"}[check.passed]
+    return f"[{level}]".ljust(len("[worth a look]"))
 
 
 def summary(*, shortlist, settings=None, founds=(), diagnoses=(), paths=None, top=5, honest=None) -> str:
@@ -100,18 +113,24 @@ def summary(*, shortlist, settings=None, founds=(), diagnoses=(), paths=None, to
     lines.append(f"Ranked by {shortlist.criterion.upper()}: {shortlist.criterion_reason}")
     lines.append("")
     table = shortlist.table.head(top)
+    weight_name = shortlist.weight_criterion.upper()
+    lines.append(f"Answers, best first: each is a set of variables, shown in its best forms; weight is the summed "
+                 f"{weight_name} weight of every model holding exactly those variables.")
     # Terms are the point of the table: print them whole, wrapped at the "+" between terms.
-    lines.append(f"  {'#':>2}  {'Δ':>7}  {'weight':>6}  terms")
+    lines.append(f"  {'#':>2}  {'Δ':>7}  {'weight':>6}  terms of the best model")
     indent = " " * 23
     for _, row in table.iterrows():
-        terms = str(row["terms"]) or "(intercept only)"
+        terms = printable(row["terms"]) or "(intercept only)"
         wrapped = textwrap.wrap(terms, width=_TERMS_WIDTH, break_long_words=False, break_on_hyphens=False)
-        lines.append(f"  {int(row['position']):>2}  {float(row['delta_from_best']):>7.2f}  "
-                     f"{float(row['model_weight']):>6.3f}  {wrapped[0] if wrapped else ''}")
+        lines.append(f"  {int(row['answer']):>2}  {float(row['delta_from_best']):>7.2f}  "
+                     f"{float(row['answer_weight']):>6.3f}  {wrapped[0] if wrapped else ''}")
         lines.extend(indent + part for part in wrapped[1:])
-    same = _same_variables(table)
-    if same:
-        lines.append(same)
+        if row.get("form_alternatives"):
+            alternatives = textwrap.wrap(f"as good within Δ ≤ 2: {printable(row['form_alternatives'])}",
+                                         width=_TERMS_WIDTH, break_long_words=False, break_on_hyphens=False)
+            lines.extend(indent + part for part in alternatives)
+    lines.append(f"  ({len(shortlist.scored)} models make {int(shortlist.scored['answer'].max())} answers; "
+                 "the model-level list is in models.csv and in the report.)")
     if shortlist.fits:
         lines.append("")
         lines.append("Best model: " + shortlist.fits[0].equation)
@@ -119,7 +138,7 @@ def summary(*, shortlist, settings=None, founds=(), diagnoses=(), paths=None, to
         best = diagnoses[0]
         lines.append("Checks of the best model:")
         for check in best.checks:
-            lines.append(f"  [{_mark(check.passed)}] {check.aspect}: {check.verdict}")
+            lines.append(f"  {_mark(check)} {check.aspect}: {check.verdict}")
     if honest is not None:
         lines.append(f"Honest error of the whole procedure (outer CV): {_number(honest.error)} "
                      f"± {_number(honest.standard_error)}; the CV error of the chosen model, "
@@ -132,4 +151,5 @@ def summary(*, shortlist, settings=None, founds=(), diagnoses=(), paths=None, to
         lines.append("Files written:")
         for label, path in paths.items():
             lines.append(f"  {label}: {path}")
-    return "\n".join(lines)
+    # Names come from the user's files: no line may carry a control character to the terminal.
+    return "\n".join(printable(line) for line in lines)
