@@ -50,7 +50,7 @@ METHODS = ("auto", "exhaustive", "forward", "backward", "both", "crossval", "scr
 AIMS = ("explain", "predict")
 _EXACT_LIMIT = 40
 _SAVE_FORMAT = "selectkit-result"
-_SAVE_VERSION = 1
+_SAVE_VERSION = 2  # 2: shortlists hold answers (sets of variables) first
 
 
 def _check_choice(value, valid, what):

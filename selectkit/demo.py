@@ -16,7 +16,8 @@ Everything else is a decoy: a second light sensor that tracks the first
 follows light, a CO₂ set-point that is an exact shift of the CO₂ excess (intake
 reports it as collinear), bay and sensor identifiers, and six auxiliary
 probe readings of pure noise.  Four bays carry outlying yields (a pest
-outbreak in the story), which the influence checks should flag.
+outbreak in the story): the normality check calls the residuals' shape a
+problem and names the bays far off the fit.
 """
 
 from __future__ import annotations
