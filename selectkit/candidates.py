@@ -646,8 +646,14 @@ def _correlation(a, b):
 
 
 def _numeric_family(builder, col, x, y, weights, plan, shift_info, forced, near_duplicate, yeojohnson_asked,
-                    covariates=None):
-    """Build every form of one numeric predictor (``covariates``: held linear in Box-Tidwell)."""
+                    covariates=None, straight=None):
+    """Build every form of one numeric predictor.
+
+    ``covariates`` are held linear in Box-Tidwell; ``straight``, when given, is
+    why the curvature gate offers the raw form only: every other form that is
+    defined on the data is refused with it (one undefined there keeps its
+    domain reason).
+    """
     c, auto = shift_info if shift_info is not None else (0.0, False)
     if x.shape[0] == 0 or np.ptp(x) == 0:
         builder.refuse(col, "every form", f"{col} is constant on these data; no form of it can enter a model",
@@ -694,6 +700,11 @@ def _numeric_family(builder, col, x, y, weights, plan, shift_info, forced, near_
         if problem:
             label = _would_be_name(transform, col, q, shift_params)
             builder.refuse(col, form, _with_fix(problem, col, x, c, transform, q), name=label)
+            continue
+        if straight is not None and transform != "identity":
+            label = (f"{transform}({col})" if transform in ("boxcox", "yeojohnson")
+                     else _would_be_name(transform, col, q, shift_params))
+            builder.refuse(col, form, straight, name=label)
             continue
 
         if transform == "boxcox":
@@ -1049,17 +1060,8 @@ def build_candidates(
                 # sorted by name, so that the fit does not depend on the order of the columns
                 rest = [others[name] for name in sorted(others) if name != col]
                 covariates = np.column_stack(rest) if rest else None
-            family_plan = plan
-            if col in straight:
-                c = shift_map.get(col, (0.0, False))[0]
-                for form, q in plan:
-                    if form != "identity":
-                        label = (f"{form}({col})" if form in ("boxcox", "yeojohnson")
-                                 else _would_be_name(form, col, q, (("shift", c),) if c else ()))
-                        builder.refuse(col, form, straight[col], name=label)
-                family_plan = [("identity", None)]
-            _numeric_family(builder, col, x, y, weights, family_plan, shift_map.get(col), col in forced,
-                            near_duplicate, "yeojohnson" in forms, covariates)
+            _numeric_family(builder, col, x, y, weights, plan, shift_map.get(col), col in forced,
+                            near_duplicate, "yeojohnson" in forms, covariates, straight=straight.get(col))
         elif col in categorical:
             _categorical_family(builder, col, dataset.frame[col], col in forced)
     _set_aside_twins(builder, dataset, twin_limit=twin_limit, vif_limit=vif_limit, prefer=prefer, forced=forced)

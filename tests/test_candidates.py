@@ -777,3 +777,12 @@ def test_curvature_gate_rate_on_straight_tables_is_low():
         passed += sum(1 for c in frame if [t.name for t in cands.terms if t.family == c] != [c])
     expected = 160 * 2 * st.t.sf(np.sqrt(np.log(300)), 300 - 6 - 2)
     assert passed <= expected + 3 * np.sqrt(expected) + 2
+
+
+def test_the_gate_keeps_domain_reasons_for_forms_undefined_on_the_data():
+    rng = np.random.default_rng(21)
+    temp = rng.uniform(-9.0, 39.0, 200)
+    cands = build_candidates(small_dataset({"night_temp_c": temp}, y=20 + 0.2 * temp + rng.normal(0, 1, 200)))
+    report = cands.describe().set_index("form")
+    assert "crosses zero" in report.loc["reciprocal", "reason"]  # its domain, not the gate
+    assert "no evidence that night_temp_c bends" in report.loc["square", "reason"]  # defined, but straight

@@ -1,7 +1,8 @@
 """Figures of the report, drawn with matplotlib's object API (no pyplot, no global state).
 
 Every function returns a :class:`matplotlib.figure.Figure` backed by the Agg
-canvas, so it works without a display; :func:`to_png_base64` turns a figure
+canvas, so it works without a display (:func:`check_figures` a list of them,
+each with its question and its check's verdict); :func:`to_png_base64` turns a figure
 into the text of a ``data:image/png`` URI for the self-contained HTML report.
 """
 
@@ -9,19 +10,26 @@ from __future__ import annotations
 
 import base64
 import io
+from dataclasses import dataclass
 
 import numpy as np
+import pandas as pd
 from scipy import stats
 
 __all__ = [
     "criterion_by_size",
     "variable_support",
-    "residuals_vs_fitted",
-    "normal_qq",
-    "scale_location",
+    "CHECK_FIGURES",
+    "CheckFigure",
+    "check_figures",
+    "mean_follows_terms",
+    "term_forms",
+    "term_components",
+    "TermComponent",
+    "error_shape",
+    "spread_by_fitted",
+    "row_influence",
     "residuals_vs_terms",
-    "cooks_distance",
-    "residual_panel",
     "to_png_base64",
 ]
 
@@ -139,7 +147,7 @@ def _scatter(axes, x, y, **style):
                   va="bottom", fontsize=7, color=_MUTED, transform=axes.transAxes)
 
 
-def _lowess_line(axes, x, y):
+def _lowess_line(axes, x, y, *, frac=0.6):
     x = np.asarray(x, dtype=float)
     y = np.asarray(y, dtype=float)
     if len(x) >= 10 and np.ptp(x) > 0:
@@ -147,95 +155,497 @@ def _lowess_line(axes, x, y):
 
         order = np.argsort(x, kind="stable")
         keep = order[_thin(len(x), MAX_SMOOTH_POINTS)]
-        smooth = lowess(y[keep], x[keep], frac=0.6, return_sorted=True)
+        smooth = lowess(y[keep], x[keep], frac=frac, return_sorted=True)
         axes.plot(smooth[:, 0], smooth[:, 1], color=_ACCENT, linewidth=1.2)
 
 
-def _residuals_vs_fitted(axes, diagnosis):
-    _scatter(axes, diagnosis.fitted, diagnosis.residuals)
-    axes.axhline(0.0, color=_MUTED, linewidth=0.8)
-    _lowess_line(axes, diagnosis.fitted, diagnosis.residuals)
+# --------------------------------------------------------------------------- figures of the checks
+#
+# One figure per family of checks, each titled by the question it answers and
+# captioned with that check's verdict (``Diagnosis.checks``).
+
+#: Share of the rows in each local fit of the smoother of the term panels: narrow enough to follow a
+#: curve the fitted form misses (a span of 0.6 flattens a log curve's bend; our own choice).
+FORM_SMOOTHER_SPAN = 0.35
+#: The figures of one model's checks: key -> (title, aspect of the checks whose verdict it carries).
+CHECK_FIGURES = {
+    "mean": ("Does the mean follow the terms?", "linearity"),
+    "forms": ("Is each numeric term in the right form?", "linearity"),
+    "shape": ("Are the errors shaped like a normal sample?", "normality"),
+    "spread": ("Does the spread change with the fitted value?", "constant variance"),
+    "influence": ("Does any row pull the fit?", "influence"),
+}
+#: Verdict levels from the most to the least severe (``"not assessed"`` last).
+_SEVERITY = ("a problem", "worth a look", "fine", "not assessed")
+_LEVEL_INK = {"a problem": _ACCENT, "worth a look": "#b9770e", "fine": "#1e7b4a", "not assessed": _MUTED}
+_CHECK_LABEL = {"reset": "RESET", "shapiro_wilk": "Shapiro-Wilk", "jarque_bera": "Jarque-Bera",
+                "breusch_pagan": "Breusch-Pagan", "cooks_distance": "Cook's distance", "leverage": "Leverage",
+                "durbin_watson": "Durbin-Watson", "vif": "VIF", "condition_number": "Condition number"}
+
+
+@dataclass(frozen=True, eq=False)
+class CheckFigure:
+    """One figure of a model's checks.
+
+    Attributes
+    ----------
+    key : str
+        One of :data:`CHECK_FIGURES` (``mean``, ``forms``, ``shape``, ``spread``, ``influence``).
+    title : str
+        The question the figure answers (also the figure's title).
+    level : str
+        The most severe level among the checks of its aspect: ``"a problem"``,
+        ``"worth a look"``, ``"fine"`` or ``"not assessed"``.
+    caption : str
+        Title, level, each check's verdict sentence and how to read the figure.
+    figure : matplotlib.figure.Figure
+    """
+
+    key: str
+    title: str
+    level: str
+    caption: str
+    figure: object
+
+
+def _legend(axes, fontsize=7, loc="upper left"):
+    """A legend on a light box, readable over dense points."""
+    axes.legend(fontsize=fontsize, loc=loc, frameon=True, facecolor="white", framealpha=0.85, edgecolor="none")
+
+
+def _aspect_verdict(diagnosis, aspect):
+    """(level, text): the most severe level of the checks of ``aspect`` and their verdicts in one line."""
+    checks = [c for c in diagnosis.checks if c.aspect == aspect]
+    if not checks:
+        return "not assessed", "No check of this aspect was run."
+    level = min((c.level for c in checks), key=_SEVERITY.index)
+    text = " ".join(f"{_CHECK_LABEL.get(c.name, c.name)} ({c.level}): {c.verdict}" for c in checks)
+    return level, text
+
+
+def _titled(figure, diagnosis, key):
+    """Put the question and its check's level on top of the figure; returns the level."""
+    title, aspect = CHECK_FIGURES[key]
+    level, _ = _aspect_verdict(diagnosis, aspect)
+    figure.suptitle(f"{title}   check: {level}", fontsize=10, color=_LEVEL_INK.get(level, _INK))
+    return level
+
+
+def _bins(x, count):
+    """Row positions of ``count`` groups of about equal size, by increasing ``x`` (stable order)."""
+    order = np.argsort(x, kind="stable")
+    return [b for b in np.array_split(order, count) if b.size >= 2]
+
+
+def _bin_count(n):
+    return int(min(12, max(3, n // 15)))
+
+
+def mean_follows_terms(diagnosis):
+    """Residuals against fitted values with the mean residual of groups of rows by fitted value.
+
+    The rows are split, by fitted value, into groups of about equal size
+    (between 3 and 12 groups, about 15 rows or more each); each group's mean
+    residual is drawn with ±2 standard errors (s/√m, s the group's standard
+    deviation).  When the mean follows the terms every bar straddles zero; a
+    run of bars on one side, or a bend, is the curvature that RESET (Ramsey
+    1969) tests for.  With row weights the values are on the √w scale.
+    """
+    figure = _figure(6.0, 3.8, layout="constrained")
+    axes = figure.add_subplot()
+    fitted, resid = np.asarray(diagnosis.fitted, float), np.asarray(diagnosis.residuals, float)
+    _scatter(axes, fitted, resid, label="a row")
+    axes.collections[0].set_color(_MUTED)
+    axes.collections[0].set_alpha(0.45)
+    axes.axhline(0.0, color=_INK, linewidth=0.8)
+    centres, means, spans = [], [], []
+    for group in _bins(fitted, _bin_count(len(fitted))):
+        centres.append(float(np.mean(fitted[group])))
+        means.append(float(np.mean(resid[group])))
+        spans.append(2.0 * float(np.std(resid[group], ddof=1)) / np.sqrt(group.size))
+    if centres:
+        axes.errorbar(centres, means, yerr=spans, fmt="s", color=_ACCENT, markersize=5, capsize=3,
+                      linewidth=1.2, label="mean residual of a group, ±2 standard errors")
+        _legend(axes, fontsize=7, loc="upper left")
     axes.set_xlabel("fitted value")
-    axes.set_ylabel("residual")
-    axes.set_title("Residuals against fitted values", fontsize=9)
+    axes.set_ylabel("residual (observed − fitted)")
+    _titled(figure, diagnosis, "mean")
+    return figure
 
 
-def _normal_qq(axes, diagnosis):
-    r = np.sort(diagnosis.studentized[np.isfinite(diagnosis.studentized)])
+def _blom_quantiles(n):
+    """Expected standard normal order statistics by Blom's (1958) positions (i − 3/8)/(n + 1/4)."""
+    return stats.norm.ppf((np.arange(1, n + 1) - 0.375) / (n + 0.25))
+
+
+def error_shape(diagnosis):
+    """Two views of the studentised residuals' shape against the normal one.
+
+    Left: their histogram (density scale) with the standard normal density
+    over it.  Right: each ordered residual's distance from its normal
+    expectation (Blom 1958 positions), with the pointwise 95 % band of that
+    distance for a normal sample of the same size: the i-th smallest of n
+    standard normal values is Φ⁻¹(U₍ᵢ₎) with U₍ᵢ₎ ~ Beta(i, n − i + 1), so
+    the band is Φ⁻¹ of that Beta's 2.5 % and 97.5 % points.  Points leaving
+    the band at the ends are heavy or light tails; a tilt is skewness.
+    """
+    figure = _figure(8.0, 3.6, layout="constrained")
+    left, right = figure.subplots(1, 2)
+    r = np.sort(np.asarray(diagnosis.studentized, float)[np.isfinite(diagnosis.studentized)])
     n = r.shape[0]
-    theoretical = stats.norm.ppf((np.arange(1, n + 1) - 0.375) / (n + 0.25))  # Blom (1958) positions
-    _scatter(axes, theoretical, r)
     if n:
-        lim = [min(theoretical[0], r[0]), max(theoretical[-1], r[-1])]
-        axes.plot(lim, lim, color=_MUTED, linewidth=0.8)
-    axes.set_xlabel("normal quantile")
-    axes.set_ylabel("studentised residual")
-    axes.set_title("Normal Q-Q", fontsize=9)
+        edges = np.histogram_bin_edges(r, bins=int(np.clip(np.sqrt(n), 5, 40)))
+        left.hist(r, bins=edges, density=True, color=_INK, alpha=0.55, edgecolor="white", linewidth=0.5)
+        grid = np.linspace(min(edges[0], -3.5), max(edges[-1], 3.5), 200)
+        left.plot(grid, stats.norm.pdf(grid), color=_ACCENT, linewidth=1.4, label="standard normal density")
+        _legend(left, fontsize=7, loc="upper left")
+        expected = _blom_quantiles(n)
+        keep = _thin(n, MAX_POINTS)
+        position = np.arange(1, n + 1)[keep]
+        low = stats.norm.ppf(stats.beta.ppf(0.025, position, n - position + 1)) - expected[keep]
+        high = stats.norm.ppf(stats.beta.ppf(0.975, position, n - position + 1)) - expected[keep]
+        right.fill_between(expected[keep], low, high, color=_MUTED, alpha=0.25, linewidth=0,
+                           label="95 % band of a normal sample")
+        right.axhline(0.0, color=_MUTED, linewidth=0.8)
+        _scatter(right, expected, r - expected)
+        _legend(right, fontsize=7, loc="upper left")
+    left.set_xlabel("studentised residual")
+    left.set_ylabel("density")
+    left.set_title("Their histogram and the normal curve", fontsize=9)
+    right.set_xlabel("expected value for a normal sample")
+    right.set_ylabel("ordered residual − expected value")
+    right.set_title("Each ordered residual against its normal expectation", fontsize=9)
+    _titled(figure, diagnosis, "shape")
+    return figure
 
 
-def _scale_location(axes, diagnosis):
-    root = np.sqrt(np.abs(diagnosis.studentized))
-    keep = np.isfinite(root)
-    _scatter(axes, diagnosis.fitted[keep], root[keep])
-    _lowess_line(axes, diagnosis.fitted[keep], root[keep])
+def spread_by_fitted(diagnosis):
+    """Size of the studentised residuals along the fitted values, group by group.
+
+    Points are |rᵢ|, the absolute internally studentised residuals.  The rows
+    are split by fitted value into groups as in :func:`mean_follows_terms`;
+    each group shows its root mean square √(Σrᵢ²/m) with the 95 % interval
+    √(Σrᵢ²/χ²₀.₉₇₅,ₘ) to √(Σrᵢ²/χ²₀.₀₂₅,ₘ) (rᵢ treated as normal with a
+    common variance).  Constant variance puts every group near 1 (the dotted
+    line); a trend is what the Breusch-Pagan test (Koenker 1981 form) detects.
+    """
+    figure = _figure(6.0, 3.8, layout="constrained")
+    axes = figure.add_subplot()
+    fitted = np.asarray(diagnosis.fitted, float)
+    r = np.asarray(diagnosis.studentized, float)
+    finite = np.isfinite(r)
+    fitted, r = fitted[finite], r[finite]
+    _scatter(axes, fitted, np.abs(r))
+    axes.collections[0].set_color(_MUTED)
+    axes.collections[0].set_alpha(0.45)
+    axes.axhline(1.0, color=_INK, linewidth=0.8, linestyle=":", label="the same spread everywhere")
+    centres, sizes, lows, highs = [], [], [], []
+    for group in _bins(fitted, _bin_count(len(fitted))):
+        total, m = float(np.sum(r[group] ** 2)), group.size
+        centres.append(float(np.mean(fitted[group])))
+        sizes.append(np.sqrt(total / m))
+        lows.append(np.sqrt(total / stats.chi2.ppf(0.975, m)))
+        highs.append(np.sqrt(total / stats.chi2.ppf(0.025, m)))
+    if centres:
+        sizes, lows, highs = np.array(sizes), np.array(lows), np.array(highs)
+        axes.errorbar(centres, sizes, yerr=[sizes - lows, highs - sizes], fmt="D", color=_ACCENT, markersize=5,
+                      capsize=3, linewidth=1.2, label="root mean square of a group, 95 % interval")
+    _legend(axes, fontsize=7, loc="upper left")
+    axes.set_ylim(bottom=0)
     axes.set_xlabel("fitted value")
-    axes.set_ylabel("√|studentised residual|")
-    axes.set_title("Spread against fitted values", fontsize=9)
-
-
-def _cooks(axes, diagnosis):
-    cooks = np.where(np.isfinite(diagnosis.cooks_distance), diagnosis.cooks_distance, 0.0)
-    rows = np.arange(cooks.shape[0])
-    limit = 4.0 / diagnosis.n
-    axes.vlines(rows, 0, cooks, color=np.where(cooks > limit, _ACCENT, _INK), linewidth=1)
-    axes.axhline(limit, color=_MUTED, linewidth=0.8, linestyle=":")
-    # label the largest ones by the name the verdicts use (identifier or data row counting from 1)
-    flagged = getattr(diagnosis, "flagged_rows", None)
-    names = dict(zip(flagged["row"], flagged["name"])) if flagged is not None and "name" in flagged else {}
-    above = rows[cooks > limit]
-    for row in above[np.argsort(-cooks[above], kind="stable")][:8]:
-        axes.annotate(str(names.get(int(row), int(row) + 1)), (row, cooks[row]), fontsize=7, color=_ACCENT,
-                      xytext=(2, 2), textcoords="offset points")
-    axes.set_xlabel("position among the rows used")
-    axes.set_ylabel("Cook's distance")
-    axes.set_title("Cook's distance (dotted: 4/n)", fontsize=9)
-
-
-def _single(draw, diagnosis):
-    figure = _figure(5.0, 3.6)
-    draw(figure.add_subplot(), diagnosis)
+    axes.set_ylabel("|studentised residual|")
+    _titled(figure, diagnosis, "spread")
     return figure
 
 
-def residuals_vs_fitted(diagnosis):
-    """Residuals against fitted values with a lowess line (a bend suggests a missed curve)."""
-    return _single(_residuals_vs_fitted, diagnosis)
+def _stems(axes, values, limit, names, what):
+    """Stems from zero for every row above ``limit`` and a thinned share of the rest; names the largest."""
+    n = values.shape[0]
+    finite = np.isfinite(values)
+    top = float(np.max(values[finite])) if finite.any() else 1.0
+    shown = np.where(finite, values, top * 1.1 if top > 0 else 1.0)  # hᵢᵢ = 1: Dᵢ infinite, drawn at the top
+    above = np.flatnonzero(~(values <= limit))
+    keep = np.union1d(_thin(n, MAX_POINTS), above).astype(np.int64)
+    colour = np.where(np.isin(keep, above), _ACCENT, _INK)
+    axes.vlines(keep + 1, 0, shown[keep], color=colour, linewidth=0.9)
+    axes.scatter(keep + 1, shown[keep], s=6, color=colour)
+    order = above[np.lexsort((above, -shown[above]))][:8]
+    for row in order:
+        axes.annotate(_plain(names.get(int(row), int(row) + 1)), (row + 1, shown[row]), fontsize=7,
+                      color=_ACCENT, xytext=(2, 2), textcoords="offset points")
+    axes.set_xlabel("row, in the order used (counting from 1)")
+    axes.set_ylabel(what)
+    return max(top, 0.0)
 
 
-def normal_qq(diagnosis):
-    """Normal Q-Q plot of the studentised residuals (Blom plotting positions)."""
-    return _single(_normal_qq, diagnosis)
+def _cut_lines(axes, top, lines):
+    """Draw the horizontal cut-offs below ``1.25·top``; list the others in a note."""
+    ceiling = max(top * 1.25, min(value for value, _, _ in lines) * 1.2)
+    beyond = []
+    for value, style, label in lines:
+        if np.isfinite(value) and value <= ceiling:
+            axes.axhline(value, color=style[0], linestyle=style[1], linewidth=0.9, label=label)
+        elif np.isfinite(value):
+            beyond.append(label if ":" in label else f"{label} = {value:.3g}")
+    axes.set_ylim(0, ceiling)
+    if beyond:
+        axes.set_xlabel("\n".join([axes.get_xlabel(), "not drawn, above every row:"] + beyond), fontsize=7)
+    _legend(axes, fontsize=6.5, loc="upper left")
 
 
-def scale_location(diagnosis):
-    """√|studentised residual| against fitted values (a rising line suggests growing variance)."""
-    return _single(_scale_location, diagnosis)
+def row_influence(diagnosis):
+    """Cook's distance and leverage of each row, with the cut-offs the influence checks use.
 
+    Left: Cook's distance Dᵢ (Cook 1977) by row, with the 4/n screening
+    cut-off (common practice), the 20th percentile of F(k, n − k) (Kutner et
+    al. 2005) and its median (Cook & Weisberg 1982).  Right: leverage hᵢᵢ by
+    row with the 2k/n screening cut-off (Hoaglin & Welsch 1978) and Huber's
+    (1981) 0.2 and 0.5.  Rows above the screening cut-off are red and the
+    largest are named as the verdicts name them (``Diagnosis.flagged_rows``).
+    """
+    from ..diagnostics import (
+        COOKS_LOOK_PERCENTILE,
+        COOKS_PROBLEM_PERCENTILE,
+        LEVERAGE_LOOK,
+        LEVERAGE_PROBLEM,
+    )
 
-def cooks_distance(diagnosis):
-    """Cook's distance per row with the 4/n line (common practice)."""
-    return _single(_cooks, diagnosis)
-
-
-def residual_panel(diagnosis):
-    """The four residual views of one model on one figure."""
-    figure = _figure(8.0, 6.0, layout="constrained")  # constrained: a third faster than tight here
-    grid = figure.subplots(2, 2)
-    _residuals_vs_fitted(grid[0, 0], diagnosis)
-    _normal_qq(grid[0, 1], diagnosis)
-    _scale_location(grid[1, 0], diagnosis)
-    _cooks(grid[1, 1], diagnosis)
+    n, k = diagnosis.n, diagnosis.k
+    flagged = diagnosis.flagged_rows
+    names = (dict(zip(flagged["row"].astype(int), flagged["name"].astype(str)))
+             if flagged is not None and "name" in flagged else {})
+    figure = _figure(8.0, 3.6, layout="constrained")
+    left, right = figure.subplots(1, 2)
+    cooks = np.asarray(diagnosis.cooks_distance, float)
+    top = _stems(left, cooks, 4.0 / n, names, "Cook's distance")
+    lines = [(4.0 / n, (_MUTED, ":"), f"4/n = {4.0 / n:.3g} (screening)")]
+    if n > k:
+        lines += [(float(stats.f.ppf(COOKS_LOOK_PERCENTILE, k, n - k)), ("#b9770e", "--"),
+                   f"F({k}, {n - k}) 20th percentile"),
+                  (float(stats.f.ppf(COOKS_PROBLEM_PERCENTILE, k, n - k)), (_ACCENT, "-"),
+                   f"F({k}, {n - k}) median")]
+    _cut_lines(left, top, lines)
+    left.set_title("How much each row moves the fit", fontsize=9)
+    hat = np.asarray(diagnosis.leverage, float)
+    top = _stems(right, hat, 2.0 * k / n, names, "leverage")
+    _cut_lines(right, min(top, 1.0), [(2.0 * k / n, (_MUTED, ":"), f"2k/n = {2.0 * k / n:.3g} (screening)"),
+                                      (LEVERAGE_LOOK, ("#b9770e", "--"), f"Huber (1981): {LEVERAGE_LOOK:g}"),
+                                      (LEVERAGE_PROBLEM, (_ACCENT, "-"), f"Huber (1981): {LEVERAGE_PROBLEM:g}")])
+    right.set_title("How far each row sits from the others in the terms", fontsize=9)
+    _titled(figure, diagnosis, "influence")
     return figure
+
+
+@dataclass(frozen=True, eq=False)
+class TermComponent:
+    """The component-plus-residual values of one numeric term.
+
+    Attributes
+    ----------
+    term : str
+        The term's name (``log(light)``).
+    source : str
+        Its source variable (``light``).
+    x : ndarray, shape (n,)
+        The source variable on its own scale when the candidates carry their
+        dataset, otherwise the term's own column (``on_source_scale`` False).
+    component : ndarray, shape (n,)
+        bⱼ·fⱼ(xᵢ), the term's fitted contribution.
+    partial : ndarray, shape (n,)
+        eᵢ + bⱼ·fⱼ(xᵢ), the raw residual plus the contribution.
+    coefficient : float
+    on_source_scale : bool
+    """
+
+    term: str
+    source: str
+    x: np.ndarray
+    component: np.ndarray
+    partial: np.ndarray
+    coefficient: float
+    on_source_scale: bool
+
+
+def term_components(diagnosis, candidates):
+    """Component-plus-residual values of every numeric term of the diagnosed model.
+
+    The model is refitted by least squares on the candidate columns (weighted
+    when the candidates carry row weights, with the weights' square roots);
+    eᵢ = yᵢ − ŷᵢ are the raw residuals.  Categorical blocks and interactions
+    are skipped.
+
+    Returns
+    -------
+    components : list of TermComponent
+    skipped : list of str
+        Names of the terms not drawn (blocks and interactions).
+    """
+    from ..rank import _design, _least_squares
+
+    subset = tuple(diagnosis.subset)
+    design, entries = _design(candidates, subset)
+    X = design.to_numpy(dtype=float)
+    y = np.asarray(candidates.y, dtype=float)
+    if candidates.weights is not None:
+        root = np.sqrt(np.asarray(candidates.weights, dtype=float))
+        fit = _least_squares(X * root[:, None], y * root)
+    else:
+        fit = _least_squares(X, y)
+    resid = y - X @ fit.coef
+    position = {term: 1 + i for i, (term, _, _, _) in enumerate(entries)}  # design column 0: intercept
+    dataset = getattr(candidates, "dataset", None)
+    frame = getattr(dataset, "frame", None)
+    components, skipped = [], []
+    for index in subset:
+        term = candidates.terms[index]
+        if term.kind != "numeric" or len(term.columns) != 1:
+            skipped.append(term.name)
+            continue
+        column = position[term.name]
+        b = float(fit.coef[column])
+        f = X[:, column]
+        source = term.source[0] if term.source else term.name
+        x, on_source = f, False
+        if frame is not None and source in frame.columns and len(frame) == len(y):
+            values = frame[source]
+            if pd.api.types.is_numeric_dtype(values):
+                x, on_source = values.to_numpy(dtype=float), True
+        components.append(TermComponent(term=term.name, source=str(source), x=x, component=b * f,
+                                        partial=resid + b * f, coefficient=b, on_source_scale=on_source))
+    return components, skipped
+
+
+def term_forms(diagnosis, candidates, *, columns=3):
+    """Component-plus-residual panels: is each numeric term's form right?
+
+    For each numeric term bⱼ·fⱼ(x) of the model, the panel plots the source
+    variable x on its own scale against the partial residual
+    eᵢ + bⱼ·fⱼ(xᵢ) (Ezekiel 1924; Larsen & McCleary 1972), the raw residual
+    plus the term's fitted contribution, uncentred.  The fitted form
+    bⱼ·fⱼ(x) is drawn as a line over the points and a lowess smoother
+    (Cleveland 1979; span :data:`FORM_SMOOTHER_SPAN`) beside it: where the
+    smoother leaves the line, the data follow another form of x than the one
+    fitted.  Categorical blocks and interactions have no single curve and are
+    not drawn.  Without the candidates' dataset (or for a source that is not
+    a numeric column of it) x is the term's own column.
+
+    References
+    ----------
+    (Volumes and pages quoted from memory.)
+    Ezekiel, M. (1924). A method of handling curvilinear correlation for any
+    number of variables. J. Amer. Statist. Assoc. 19(148), 431-453.
+    Larsen, W. A. & McCleary, S. J. (1972). The use of partial residual plots
+    in regression analysis. Technometrics 14(3), 781-790.
+
+    Returns
+    -------
+    matplotlib.figure.Figure or None
+        None when the model has no numeric term.
+    """
+    components, _ = term_components(diagnosis, candidates)
+    if not components:
+        return None
+    count = len(components)
+    ncols = min(columns, count)
+    nrows = int(np.ceil(count / ncols))
+    figure = _figure(3.3 * ncols, 2.9 * nrows + 0.4, layout="constrained")
+    axes = np.atleast_1d(figure.subplots(nrows, ncols)).reshape(-1)
+    for ax, part in zip(axes, components):
+        _scatter(ax, part.x, part.partial)
+        ax.collections[0].set_alpha(0.45)
+        order = np.argsort(part.x, kind="stable")
+        line = order[_thin(order.size, MAX_POINTS)]
+        ax.plot(part.x[line], part.component[line], color=_INK, linewidth=1.8, label="fitted form")
+        before = len(ax.get_lines())
+        _lowess_line(ax, part.x, part.partial, frac=FORM_SMOOTHER_SPAN)
+        for smooth in ax.get_lines()[before:]:
+            smooth.set_linestyle("--")
+            smooth.set_label("smoother of the points")
+        ax.set_title(_plain(part.term), fontsize=9)
+        ax.set_xlabel(_plain(part.source if part.on_source_scale else f"{part.term} (the term's own scale)"),
+                      fontsize=8)
+        ax.set_ylabel("residual + term's part", fontsize=8)
+    _legend(axes[0])
+    for ax in axes[count:]:
+        ax.set_visible(False)
+    _titled(figure, diagnosis, "forms")
+    return figure
+
+
+_READING = {
+    "mean": "Points are the residuals against the fitted values; the squares are the mean residual of groups "
+            "of rows by fitted value, with ±2 standard errors. When the mean follows the terms the bars "
+            "straddle zero; a run on one side or a bend is curvature the terms miss.",
+    "forms": "Each panel plots, against the source variable on its own scale, the residual plus that term's "
+             "fitted part (component plus residual: Ezekiel 1924; Larsen & McCleary 1972); the axis says when "
+             "it is the term's own scale instead. The solid line is "
+             "the fitted form, the dashed curve a smoother of the points: where the two part, another form "
+             "of that variable may fit better.",
+    "shape": "Left, the studentised residuals' histogram under the normal curve; right, each ordered residual's "
+             "distance from its expected value in a normal sample, inside the band a normal sample of this "
+             "size stays in 95 % of the time at each point. Leaving the band at the ends means heavy or "
+             "light tails; a tilt means skew.",
+    "spread": "Points are the sizes of the studentised residuals; the diamonds are each group's root mean "
+              "square with a 95 % interval. With constant variance they sit near 1; a trend means the spread "
+              "grows or shrinks with the fitted value.",
+    "influence": "Cook's distance and leverage of each row with the cut-offs the checks use; rows above the "
+                 "screening cut-off are red and the largest are named as in the verdicts. Rows are shown for "
+                 "a look, never removed.",
+}
+
+
+def check_figures(diagnosis, candidates=None):
+    """The figures of one model's checks, each answering one question with that check's verdict.
+
+    Parameters
+    ----------
+    diagnosis : selectkit.diagnostics.Diagnosis
+    candidates : CandidateSet, optional
+        Needed for the component-plus-residual panels (:func:`term_forms`);
+        without it they are left out.
+
+    Returns
+    -------
+    list of CheckFigure
+        In the order of :data:`CHECK_FIGURES`: ``mean``, ``forms`` (when the
+        model has a numeric term and ``candidates`` is given), ``shape``,
+        ``spread``, ``influence``.  Each caption holds the figure's question,
+        the level of its checks, their verdict sentences and how to read it.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from selectkit.diagnostics import diagnose
+    >>> from tests.factories import make_candidates
+    >>> rng = np.random.default_rng(0)
+    >>> x = rng.uniform(1, 100, size=(80, 1)); y = 3 + 2 * np.log(x[:, 0]) + rng.normal(0, 0.3, 80)
+    >>> cands = make_candidates(x, y)
+    >>> [(item.key, item.level) for item in check_figures(diagnose(cands, (0,)), cands)][:2]
+    [('mean', 'a problem'), ('forms', 'a problem')]
+    """
+    draw = {"mean": mean_follows_terms, "shape": error_shape, "spread": spread_by_fitted,
+            "influence": row_influence}
+    out = []
+    for key, (title, aspect) in CHECK_FIGURES.items():
+        extra = ""
+        if key == "forms":
+            if candidates is None:
+                continue
+            figure = term_forms(diagnosis, candidates)
+            if figure is None:
+                continue
+            _, skipped = term_components(diagnosis, candidates)
+            if skipped:
+                extra = (" Not drawn (categorical blocks and interactions have no single curve): "
+                         + ", ".join(skipped) + ".")
+        else:
+            figure = draw[key](diagnosis)
+        level, verdicts = _aspect_verdict(diagnosis, aspect)
+        weighted = (" With row weights, residuals and fitted values are on the √w scale."
+                    if candidates is not None and candidates.weights is not None and key != "forms" else "")
+        caption = f"{title} Check: {level}. {verdicts} {_READING[key]}{extra}{weighted}"
+        out.append(CheckFigure(key=key, title=title, level=level, caption=caption, figure=figure))
+    return out
 
 
 def residuals_vs_terms(diagnosis, *, columns=3):
