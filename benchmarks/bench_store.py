@@ -2,7 +2,7 @@
 
 Plain is what a notebook user does: ``prepare_search`` → ``run_methods`` →
 ``finish`` → write the shortlist CSV.  The job does the same through
-:mod:`selectkit.jobs` — data fingerprint, lock, every work unit pickled and
+:mod:`selectkit.jobs` — data fingerprint, lock, every work unit encoded as data and
 committed in its own SQLite transaction, pooled results, shortlist and log in
 the store.  Both skip the HTML report (not part of the store's cost) and both
 run after a warm-up, so numba compilation is not counted.

@@ -16,7 +16,6 @@ from __future__ import annotations
 import html
 import importlib
 import os
-import pickle
 from contextlib import nullcontext
 from dataclasses import dataclass
 from functools import cached_property
@@ -28,6 +27,7 @@ import pandas as pd
 
 from . import __version__
 from ._io import atomic_write_bytes
+from .criteria import RENAMED_CONVENTIONS
 from .errors import OptionError, SelectkitError
 from .parallel import check_n_jobs, dask_session, run_units
 
@@ -46,14 +46,19 @@ __all__ = [
 
 #: Search methods by name.  "auto" runs an exact search when the terms fit
 #: (≤ ``exact_limit``) and the screening pipeline otherwise.
-METHODS = ("auto", "exhaustive", "forward", "backward", "both", "crossval", "screen")
+METHODS = ("auto", "exhaustive", "forward", "backward", "stepwise", "crossval", "screen")
+#: Former names of methods and conventions, refused with the new spelling.
+_RENAMED = {"both": "stepwise", **RENAMED_CONVENTIONS}
 AIMS = ("explain", "predict")
 _EXACT_LIMIT = 40
 _SAVE_FORMAT = "selectkit-result"
-_SAVE_VERSION = 2  # 2: shortlists hold answers (sets of variables) first
+# 2: shortlists hold answers (sets of variables) first; 3: a data-only file (selectkit._datafile), no pickle
+_SAVE_VERSION = 3
 
 
 def _check_choice(value, valid, what):
+    if isinstance(value, str) and value in _RENAMED and _RENAMED[value] in valid:
+        raise OptionError(f"{what} {value!r} was renamed; did you mean {_RENAMED[value]!r}?")
     if value not in valid:
         raise OptionError(f"unknown {what} {value!r}; choose one of {', '.join(map(str, valid))}")
     return value
@@ -189,7 +194,7 @@ def prepare_search(
     exact_limit: int = _EXACT_LIMIT,
     criterion: str | None = None,
     aim: str = "explain",
-    convention: str = "selectkit",
+    convention: str = "sigma-counted",
     shortlist_size: int = 10,
     max_delta: float | None = None,
     folds: int = 5,
@@ -703,8 +708,8 @@ def search(
         Name of the response column.
     methods : str or sequence of str, default ("auto",)
         Searches to run and pool: ``"exhaustive"`` (exact best subsets by
-        branch and bound), ``"forward"``, ``"backward"``, ``"both"``
-        (stepwise), ``"crossval"`` (model size chosen by cross-validation),
+        branch and bound), ``"forward"`` (forward selection), ``"backward"``
+        (backward elimination), ``"stepwise"`` (steps both ways), ``"crossval"`` (model size chosen by cross-validation),
         ``"screen"`` (screen → exact search on the survivors → stepwise
         polish) and ``"auto"`` (exhaustive when the candidate terms are few
         enough, else screen).
@@ -920,10 +925,22 @@ class Result:
         return plots.variable_support(self._ranked)
 
     def plot_residuals(self, i: int = 0):
-        """Figure: residual plots of model ``i`` (vs fitted, Q-Q, scale-location, Cook's distance)."""
+        """Figures of the checks of model ``i``, one per question, each titled with its check's level.
+
+        Returns
+        -------
+        dict of str to matplotlib.figure.Figure
+            Keyed ``mean`` (does the mean follow the terms?), ``forms``
+            (component-plus-residual panels of the numeric terms; absent when
+            the model has none), ``shape`` (are the errors shaped like a normal
+            sample?), ``spread`` (does the spread change with the fitted
+            value?) and ``influence`` (does any row pull the fit?).  The
+            captions with the verdicts are in
+            :func:`selectkit.report.plots.check_figures`.
+        """
         from .report import plots
 
-        return plots.residual_panel(self.checks(i))
+        return {item.key: item.figure for item in plots.check_figures(self.checks(i), self.candidates)}
 
     # -- outputs ------------------------------------------------------------------------------------
     def diagnoses(self, count: int | None = None) -> list:
@@ -1003,11 +1020,23 @@ class Result:
 
     # -- persistence --------------------------------------------------------------------------------
     def save(self, path) -> Path:
-        """Save the result to one file (a pickle; load only files you trust), atomically."""
+        """Save the result to one data-only file, atomically (the suffix ``.skres`` is customary).
+
+        The file holds data only — JSON and numpy arrays, in the format of
+        :mod:`selectkit._datafile` — never a pickle, so loading a file received
+        from someone else builds values and runs none of its contents.  The
+        time budget of the run is not kept (it means nothing once saved).
+
+        Raises
+        ------
+        TypeError
+            When the result holds something the format has no place for (a
+            search's extras of a type it does not know); nothing is written then.
+        """
+        from . import _datafile
+
         path = Path(path)
         payload = {
-            "format": _SAVE_FORMAT,
-            "version": _SAVE_VERSION,
             "selectkit_version": __version__,
             "setup": self._setup,
             "founds": self.founds,
@@ -1015,28 +1044,43 @@ class Result:
             "stability": self.stability,
             "honest": self.honest,
         }
-        atomic_write_bytes(path, pickle.dumps(payload, protocol=pickle.HIGHEST_PROTOCOL))
+        atomic_write_bytes(path, _datafile.dumps(payload, kind=_SAVE_FORMAT, version=_SAVE_VERSION))
         return path
 
 
 def load(path) -> Result:
     """Load a :class:`Result` saved with :meth:`Result.save`.
 
-    The file is a pickle: load only files you trust.
+    The file is read as data only: it is checked to be a selectkit result file
+    of this format version and nothing in it is executed (a pickle, or any file
+    that is not a result, is refused).
+
+    Raises
+    ------
+    DataFileError
+        When there is no file at ``path``.
+    InputError
+        When the file is not a selectkit result file of this version.
     """
+    from . import _datafile
+    from .errors import DataFileError, InputError
+
     path = Path(path)
     if not path.is_file():
-        from .errors import DataFileError
-
         raise DataFileError(f"no saved result at {path}; save one with result.save(path)")
-    with open(path, "rb") as handle:
-        payload = pickle.load(handle)
-    if not isinstance(payload, dict) or payload.get("format") != _SAVE_FORMAT:
-        raise SelectkitError(f"{path} is not a saved selectkit result")
-    if payload.get("version") != _SAVE_VERSION:
-        raise SelectkitError(f"{path} was saved in format version {payload.get('version')}; "
-                             f"this selectkit reads version {_SAVE_VERSION}")
+    blob = path.read_bytes()
+    try:
+        payload = _datafile.loads(blob, kind=_SAVE_FORMAT, version=_SAVE_VERSION)
+    except _datafile.RefusedData as err:
+        raise InputError(f"{path} is not a selectkit result file of this version ({err.reason}); results are "
+                         f"saved with Result.save, and a result saved by an older selectkit must be made again "
+                         f"with selectkit.search") from err
+    names = ("setup", "founds", "ranked", "stability", "honest")
+    if not isinstance(payload, dict) or any(name not in payload for name in names) \
+            or type(payload["setup"]).__name__ != "SearchSetup" or type(payload["ranked"]).__name__ != "Shortlist":
+        raise InputError(f"{path} is not a selectkit result file (its contents are not a saved result); results "
+                         f"are saved with Result.save")
     result = Result(setup=payload["setup"], founds=payload["founds"], ranked=payload["ranked"],
                     stability=payload["stability"])
-    result.honest = payload.get("honest")
+    result.honest = payload["honest"]
     return result

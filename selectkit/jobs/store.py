@@ -1,7 +1,7 @@
 """The run store: one SQLite file in a job's output folder that survives a kill.
 
 The store records the job's settings, a fingerprint of its data file, every
-finished work unit (key, pickled result, time), the pooled search results, the
+finished work unit (key, result, time), the pooled search results, the
 shortlist and a log.  Each finished unit is committed in its own transaction
 (WAL journal), so a job killed at any moment loses at most the unit it was
 computing.  A lock file beside the store (``fcntl.flock``; released by the
@@ -9,27 +9,28 @@ operating system when the process dies) keeps a second process from running
 the same store at once.
 
 Each unit's stored bytes carry a SHA-256 checksum (of the unit's key and its
-pickled result), checked whenever units are read back: a unit whose bytes no
+stored bytes), checked whenever units are read back: a unit whose bytes no
 longer match is marked ``damaged`` and run again by the next resume instead of
 being trusted.  SQLite's own errors (a damaged page) are reported as one line
 that says what can be recovered and how (:func:`damaged_store_error`).
 
-Results are stored with :mod:`pickle`: resume only stores you made yourself.
+Results are stored as data only (JSON and numpy arrays, :mod:`selectkit._datafile`),
+never as pickles, so opening a store received from someone else runs none of
+its contents: a unit whose bytes are not such data is treated like a damaged
+one (run again), and a store made by an older selectkit, which pickled its
+units, is refused with the way to start afresh.
 """
 
 from __future__ import annotations
 
-import copyreg
 import hashlib
-import io
 import json
 import os
-import pickle
 import sqlite3
 import time
 from pathlib import Path
-from types import MappingProxyType
 
+from .. import _datafile
 from ..errors import StoreBusyError, StoreError
 
 __all__ = ["RunStore", "StoreLock", "STORE_NAME", "data_fingerprint", "find_store", "is_running",
@@ -37,7 +38,11 @@ __all__ = ["RunStore", "StoreLock", "STORE_NAME", "data_fingerprint", "find_stor
 
 STORE_NAME = "run-store.sqlite"
 _LOCK_SUFFIX = ".lock"
-SCHEMA_VERSION = 1
+#: 1: units and pooled results pickled (refused now); 2: stored as data only (selectkit._datafile)
+SCHEMA_VERSION = 2
+_PICKLED_SCHEMA = 1
+_UNIT_FORMAT = ("selectkit-unit", 1)
+_FOUND_FORMAT = ("selectkit-found", 1)
 _TABLES = ("about", "units", "pooled", "shortlist", "log")
 
 _SCHEMA = """
@@ -72,26 +77,27 @@ CREATE TABLE IF NOT EXISTS log (
 
 
 # --------------------------------------------------------------------------- helpers
-def _read_only_mapping(items: dict) -> MappingProxyType:
-    return MappingProxyType(items)
+def dumps(value, what=_UNIT_FORMAT) -> bytes:
+    """The stored bytes of a unit's result (or, with ``what=_FOUND_FORMAT``, of a pooled ``Found``): data only."""
+    kind, version = what
+    return _datafile.dumps(value, kind=kind, version=version)
 
 
-def _reduce_mappingproxy(proxy):
-    return _read_only_mapping, (dict(proxy),)
+def loads(blob: bytes, what=_UNIT_FORMAT):
+    """A unit's result back from its stored bytes; :class:`selectkit._datafile.RefusedData` when they are not
+    such data (never unpickled)."""
+    kind, version = what
+    return _datafile.loads(blob, kind=kind, version=version)
 
 
-def dumps(value) -> bytes:
-    """Pickle ``value``; read-only mappings (``MappingProxyType``) are pickled as copies.
-
-    Frozen values of selectkit keep their extras in ``MappingProxyType``, which
-    the standard pickler refuses; this pickler stores the mapping and rebuilds
-    the proxy when loading.
-    """
-    buffer = io.BytesIO()
-    pickler = pickle.Pickler(buffer, protocol=pickle.HIGHEST_PROTOCOL)
-    pickler.dispatch_table = {**copyreg.dispatch_table, MappingProxyType: _reduce_mappingproxy}
-    pickler.dump(value)
-    return buffer.getvalue()
+def _pickled_store_error(path) -> StoreError:
+    """The one line for a store made by an older selectkit, whose units are pickles (never opened)."""
+    return StoreError(
+        f"the run store {str(path)!r} was made by an older selectkit, which stored its units as pickles; this "
+        f"selectkit never opens those (loading a pickle can run code), so it is not a usable run store: start "
+        f"afresh with 'selectkit job run JOB.toml --fresh' (the old store is moved aside, not deleted)",
+        path=str(path),
+    )
 
 
 def unit_checksum(key: str, blob: bytes) -> str:
@@ -300,6 +306,9 @@ class RunStore:
             raise damaged_store_error(path, err) from err
         if version is None:
             store.set_many({"schema_version": SCHEMA_VERSION, "created_at": time.time()})
+        elif int(version) == _PICKLED_SCHEMA:
+            db.close()
+            raise _pickled_store_error(path)
         elif int(version) != SCHEMA_VERSION:
             raise StoreError(f"{str(path)!r} was written by another version of selectkit (store version {version}, "
                              f"this one reads {SCHEMA_VERSION}); start it afresh in a new folder")
@@ -321,7 +330,16 @@ class RunStore:
             db.close()
             raise StoreError(f"{str(path)!r} is not a complete run store (no table {', '.join(sorted(missing))}); "
                              f"if a job is starting, try again in a moment")
-        return cls(path, db, read_only=True)
+        store = cls(path, db, read_only=True)
+        try:
+            version = store.get("schema_version")
+        except sqlite3.DatabaseError as err:
+            db.close()
+            raise damaged_store_error(path, err) from err
+        if version is not None and int(version) == _PICKLED_SCHEMA:
+            db.close()
+            raise _pickled_store_error(path)
+        return store
 
     def close(self) -> None:
         """Close the connection (a read-write store stays locked until its :class:`StoreLock` is released)."""
@@ -367,7 +385,8 @@ class RunStore:
 
     def read_units(self) -> tuple[dict, list[str]]:
         """``({key: result}, damaged keys)``: the finished units whose bytes pass their checksum, in the order
-        they finished, and the keys of those that do not (or cannot be unpickled).
+        they finished, and the keys of those that do not (or whose bytes are not a stored unit: they are
+        never unpickled, whatever they hold).
 
         A read-write store marks the damaged units ``damaged``: they no longer
         count as finished, so a resume runs them again.
@@ -379,8 +398,8 @@ class RunStore:
                 damaged.append(key)
                 continue
             try:
-                good[key] = pickle.loads(blob)
-            except Exception:  # bytes of an old unchecked store that no longer unpickle
+                good[key] = loads(blob)
+            except _datafile.RefusedData:  # not data this selectkit wrote (a pickle, damaged bytes): run again
                 damaged.append(key)
         if damaged and not self.read_only:
             with self._transaction():
@@ -437,12 +456,20 @@ class RunStore:
                     "INSERT INTO pooled VALUES (?, ?, ?, ?, ?, ?, ?)",
                     (i, str(getattr(found, "method", "?")), len(found), int(getattr(found, "evaluated", 0)),
                      int(bool(getattr(found, "exact", False))), str(getattr(found, "stopped_by", "")),
-                     dumps(found)),
+                     dumps(found, _FOUND_FORMAT)),
                 )
 
     def pooled(self) -> list:
         """The pooled search results (``Found`` values) of the last run that ended."""
-        return [pickle.loads(b) for (b,) in self._db.execute("SELECT found FROM pooled ORDER BY position")]
+        out = []
+        for (blob,) in self._db.execute("SELECT found FROM pooled ORDER BY position").fetchall():
+            try:
+                out.append(loads(blob, _FOUND_FORMAT))
+            except _datafile.RefusedData as err:
+                raise StoreError(f"the pooled results in the run store {str(self.path)!r} are not data this "
+                                 f"selectkit wrote ({err.reason}); run the job again to pool them afresh",
+                                 path=str(self.path)) from err
+        return out
 
     def pooled_summary(self) -> list[dict]:
         """Per search: method, models kept, models evaluated, exact or not, why it stopped."""

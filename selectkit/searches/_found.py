@@ -18,7 +18,8 @@ def _read_only(items: dict) -> MappingProxyType:
 
 # Frozen values keep their extras in read-only mappings, which the standard
 # pickle cannot handle; register a reducer (pickled as a copy, rebuilt
-# read-only) so Found values travel to worker processes and into saved results.
+# read-only) so Found values travel to worker processes. Files never hold
+# pickles: saved results and the run store use selectkit._datafile.
 copyreg.pickle(MappingProxyType, lambda proxy: (_read_only, (dict(proxy),)))
 
 
