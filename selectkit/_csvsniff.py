@@ -63,7 +63,7 @@ import pandas as pd
 
 from .errors import DataFileError, OptionError
 
-__all__ = ["CsvReading", "read_csv_file", "DECIMAL_MARKS", "COMPRESSED", "describe_marks"]
+__all__ = ["CsvReading", "read_csv_file", "refuse_binary", "DECIMAL_MARKS", "COMPRESSED", "describe_marks"]
 
 #: Values of ``decimal_mark=``.
 DECIMAL_MARKS = (".", ",")
@@ -394,6 +394,40 @@ def _encoding_from_bom(head: bytes) -> str | None:
     return None
 
 
+#: Leading bytes of common binary files (each format's published signature), and what to call them.
+_SIGNATURES = (
+    (b"\x89PNG\r\n\x1a\n", "a PNG image"), (b"\xff\xd8\xff", "a JPEG image"), (b"GIF8", "a GIF image"),
+    (b"%PDF", "a PDF document"), (b"\x1f\x8b", "a gzip-compressed file (name it .csv.gz)"),
+    (b"BZh", "a bzip2-compressed file (name it .csv.bz2)"), (b"\xfd7zXZ\x00", "an xz-compressed file (name it .csv.xz)"),
+    (b"7z\xbc\xaf\x27\x1c", "a 7-Zip archive"), (b"SQLite format 3\x00", "an SQLite database"),
+)
+#: Bytes no text table holds: C0 controls other than tab, line feed, vertical tab, form feed, carriage return.
+_CONTROL_BYTES = bytes(set(range(32)) - {9, 10, 11, 12, 13})
+
+
+def refuse_binary(path: Path, head: bytes, encoding: str | None = None) -> None:
+    """Raise a one-line :class:`DataFileError` when ``head`` (the file's first bytes) is not text.
+
+    A known binary signature names the format; otherwise a NUL byte, or more
+    than 1 % of C0 control characters (other than tab and line ends), marks
+    binary data.  UTF-16/32 text (a byte-order mark, or such an ``encoding``)
+    holds NUL bytes legitimately and is left to the decoder.
+    """
+    wide = (encoding or _encoding_from_bom(head) or "").lower().replace("_", "-")
+    if wide.startswith(("utf-16", "utf-32")):
+        return
+    for signature, kind in _SIGNATURES:
+        if head.startswith(signature):
+            raise DataFileError(f"'{path.name}' looks like {kind}, not a text table; give the CSV or Parquet file "
+                                f"of the table", path=str(path))
+    sample = head[:65536]
+    controls = len(sample) - len(sample.translate(None, _CONTROL_BYTES))
+    if b"\x00" in sample or controls > 0.01 * len(sample):
+        raise DataFileError(f"'{path.name}' looks like binary data, not a text table ({controls} control bytes in "
+                            f"its first {len(sample)}); give the CSV or Parquet file of the table",
+                            path=str(path))
+
+
 def _plural(count: int, word: str) -> str:
     return f"{count} {word}" if count == 1 else f"{count} {word}s"
 
@@ -438,6 +472,7 @@ def read_csv_file(path: Path, encoding: str | None, compression: str | None, dec
     if head.startswith(b"PAR1"):
         raise DataFileError(f"'{path.name}' looks like a Parquet file; give it the suffix .parquet or .pq",
                             path=str(path))
+    refuse_binary(path, head, encoding)
     notes: list[tuple[str, str]] = []
     if encoding is not None:
         try:

@@ -424,6 +424,9 @@ def check_run_options(*, n_jobs: int = 1, backend: str = "loky", scheduler: str 
 
     check_n_jobs(n_jobs)
     _check_choice(backend, BACKENDS, "parallel backend")
+    if isinstance(timeout, bool) or not isinstance(timeout, (int, float)) or not 0 < timeout < float("inf"):
+        raise OptionError(f"the scheduler timeout must be a positive number of seconds (got {timeout!r}); "
+                          f"10 is the default")
     if scheduler is not None and backend != "dask":
         raise OptionError(f"a scheduler address needs backend 'dask' (got backend {backend!r})")
     if backend == "dask":
@@ -695,6 +698,7 @@ def search(
     n_jobs: int = 1,
     backend: str = "loky",
     scheduler: str | None = None,
+    scheduler_timeout: float = 10.0,
     seed: int = 0,
     **options,
 ) -> "Result":
@@ -719,6 +723,9 @@ def search(
         joblib backend: loky, threading, multiprocessing, sequential or dask.
     scheduler : str, optional
         Dask scheduler address with ``backend="dask"``.
+    scheduler_timeout : float, default 10
+        Seconds to wait for that scheduler to answer before any work; a
+        scheduler out of reach is refused in one line.
     seed : int, default 0
         Seed of every random draw (folds, bootstrap).
     **options
@@ -757,7 +764,7 @@ def search(
     >>> result.terms(0)  # doctest: +SKIP
     ('log(light_mol_m2_day)', 'sqrt(co2_above_ambient_ppm)', ...)
     """
-    check_run_options(n_jobs=n_jobs, backend=backend, scheduler=scheduler)
+    check_run_options(n_jobs=n_jobs, backend=backend, scheduler=scheduler, timeout=scheduler_timeout)
     setup = prepare_search(data, response=response, methods=methods, seed=seed, **options)
     founds = run_methods(setup, n_jobs=n_jobs, backend=backend, scheduler=scheduler)
     return finish(setup, founds, n_jobs=n_jobs, backend=backend, scheduler=scheduler)

@@ -97,6 +97,31 @@ def _number_at_least(least: float, meaning: str, *, strictly: bool = False):
     return convert
 
 
+class _Renamed(argparse.Action):
+    """A former option: refused with the spelling that replaced it (held in ``metavar``)."""
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        parser.error(f"{option_string} was renamed; did you mean {self.metavar}?")
+
+
+def _convention_name(text: str) -> str:
+    """An argparse type: a parameter-count convention, a former name refused with the new one."""
+    from .criteria import RENAMED_CONVENTIONS
+
+    if text in RENAMED_CONVENTIONS:
+        raise argparse.ArgumentTypeError(f"{text!r} was renamed; did you mean {RENAMED_CONVENTIONS[text]!r}?")
+    return text
+
+
+def _method_name(text: str) -> str:
+    """An argparse type: a search method, a former name refused with the new one."""
+    from .searches._adapters import RENAMED_METHODS
+
+    if text in RENAMED_METHODS:
+        raise argparse.ArgumentTypeError(f"method {text!r} was renamed; did you mean {RENAMED_METHODS[text]!r}?")
+    return text
+
+
 _TOP = _whole_number(1, "at least 1 model")
 _FOLDS = _whole_number(2, "at least 2 folds")
 _RESAMPLES = _whole_number(0, "0 (skip) or a positive number of resamples")
@@ -151,17 +176,22 @@ def _add_table_roles(p: argparse.ArgumentParser) -> None:
 
 def _add_search_options(p: argparse.ArgumentParser) -> None:
     from .api import AIMS, METHODS
+    from .criteria import CONVENTIONS
 
     p.add_argument("-m", "--method", action="append", dest="methods", choices=METHODS, default=None,
+                   type=_method_name,
                    help="search to run (repeatable; findings are pooled). Default: auto = exact best subset "
                         "when the terms are few enough, else screen -> exact -> stepwise polish")
     p.add_argument("--aim", choices=AIMS, default="explain",
                    help="explain: rank by BIC (find the terms that matter); predict: rank by AICc")
     p.add_argument("--rank-by", default=None, metavar="CRITERION",
                    help="rank by this criterion instead: aic, aicc, bic, cp, adj_r2, press, cv_mse")
-    p.add_argument("--statsmodels-convention", action="store_true",
-                   help="count k coefficients (not k+1 parameters) in AIC/BIC, as statsmodels does; "
-                        "rankings are unchanged")
+    p.add_argument("--count-parameters", dest="convention", choices=CONVENTIONS, default="sigma-counted",
+                   type=_convention_name,
+                   help="what AIC/BIC count: sigma-counted = k coefficients + the error variance (default), "
+                        "coefficients-only = k; rankings are unchanged")
+    p.add_argument("--statsmodels-convention", nargs=0, action=_Renamed, help=argparse.SUPPRESS,
+                   default=argparse.SUPPRESS, metavar="--count-parameters coefficients-only")
     p.add_argument("--top", type=_TOP, default=10, metavar="N", help="models in the shortlist (default 10)")
     p.add_argument("--within-delta", type=_DELTA, default=None, metavar="D",
                    help="keep only models within D of the best by the ranking criterion")
@@ -176,6 +206,9 @@ def _add_search_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--workers", type=_WORKERS, default=1, metavar="N", help="worker processes (-1: all cores)")
     p.add_argument("--backend", default="loky", help="joblib backend: loky, threading, multiprocessing, dask")
     p.add_argument("--scheduler", default=None, metavar="ADDRESS", help="Dask scheduler address for --backend dask")
+    p.add_argument("--scheduler-timeout", type=_number_at_least(0, "a positive number of seconds", strictly=True),
+                   default=10.0, metavar="SECONDS",
+                   help="how long to wait for the Dask scheduler to answer before any work (default 10)")
     p.add_argument("--seed", type=_SEED, default=0, help="seed of every random draw (default 0)")
     p.add_argument("--time-budget", type=_SECONDS, default=None, metavar="SECONDS",
                    help="stop searching after this long and report the best found (marked not proven exact)")
@@ -244,6 +277,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="worker processes for the rest of the job (-1: all cores)")
     j.add_argument("--backend", default=None, help="joblib backend for the rest of the job (e.g. dask)")
     j.add_argument("--scheduler", default=None, metavar="ADDRESS", help="Dask scheduler address")
+    j.add_argument("--scheduler-timeout", type=_number_at_least(0, "a positive number of seconds", strictly=True),
+                   default=None, metavar="SECONDS", help="how long to wait for the Dask scheduler to answer")
     j.add_argument("--time-budget", default=None, metavar="DURATION",
                    help="new time budget from now: seconds or text such as 8h, 90m")
     j.add_argument("--quiet", action="store_true", help="no progress bar or progress lines")
@@ -310,7 +345,7 @@ def _search_options(args) -> dict:
         methods=tuple(args.methods or ("auto",)),
         aim=args.aim,
         criterion=args.rank_by,
-        convention="statsmodels" if args.statsmodels_convention else "selectkit",
+        convention=args.convention,
         shortlist_size=args.top,
         max_delta=args.within_delta,
         folds=args.folds,
@@ -355,7 +390,8 @@ def _run_search(args) -> int:
 
     started = time.perf_counter()
     api.check_output_folder(args.out)  # settings that can be checked before any work, checked first
-    api.check_run_options(n_jobs=args.workers, backend=args.backend, scheduler=args.scheduler)
+    api.check_run_options(n_jobs=args.workers, backend=args.backend, scheduler=args.scheduler,
+                          timeout=args.scheduler_timeout)
     setup = api.prepare_search(args.table, **_table_options(args), **_search_options(args))
     for note in setup.dataset.report.notes:
         if note.kind in ("warning", "dropped"):
@@ -416,13 +452,13 @@ def _run_demo(args) -> int:
     import pandas as pd
 
     from . import api
-    from .demo import RESPONSE, TRUE_TERMS, demo_csv_path, make_greenhouse, recovery
+    from .demo import RESPONSE, TRUE_EQUATION, demo_csv_path, make_greenhouse, recovery
 
     path = demo_csv_path()
     data = pd.read_csv(path) if path is not None else make_greenhouse()
     where = str(path) if path is not None else "generated in memory (fixed seed)"
     print(f"demo: invented greenhouse data, {len(data)} bay-seasons, {data.shape[1] - 1} measurements ({where})")
-    print(f"demo: the data were generated from: {RESPONSE} ~ {' + '.join(TRUE_TERMS)}")
+    print(f"demo: the data were generated from: {TRUE_EQUATION}")
     started = time.perf_counter()
     setup = api.prepare_search(data, response=RESPONSE, seed=args.seed, honest_folds=5)
     print(f"demo: {len(setup.candidates.terms)} candidate terms; running {', '.join(r.name for r in setup.runs)}")
@@ -457,13 +493,14 @@ def _run_job(args) -> int:
             raise SelectkitError(f"{out} exists; choose another name with -o or pass --force to overwrite")
         from ._io import atomic_write_text
 
-        atomic_write_text(out, jobs.starter_job(args.table, response=args.response))
+        atomic_write_text(out, jobs.starter_job(args.table, response=args.response, job_file=out))
         _show(f"wrote {out}; fill in what it asks, then: selectkit job run {out}")
         return 0
     if args.job_command == "run":
         outcome = jobs.run_job(args.job_file, resume=not args.fresh, progress=False if args.quiet else None)
     elif args.job_command == "resume":
-        given = {key: getattr(args, key) for key in ("workers", "backend", "scheduler", "time_budget")
+        given = {key: getattr(args, key) for key in ("workers", "backend", "scheduler", "scheduler_timeout",
+                                                     "time_budget")
                  if getattr(args, key) is not None}
         outcome = jobs.resume_job(args.folder, progress=False if args.quiet else None, **given)
     elif args.job_command == "status":

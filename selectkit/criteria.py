@@ -11,14 +11,14 @@ variance (σ̂² = rss/n)::
 
     ℓ = −n/2 · (log(2π · rss/n) + 1)
 
-``convention="selectkit"`` (the default) counts σ² as an estimated parameter,
+``convention="sigma-counted"`` (the default) counts σ² as an estimated parameter,
 so a model with ``k`` coefficients has ``k + 1`` parameters::
 
     AIC  = −2ℓ + 2(k+1)                                  (Akaike 1974)
     BIC  = −2ℓ + log(n)(k+1)                             (Schwarz 1978)
     AICc = AIC + 2(k+1)(k+2)/(n−k−2)                     (Hurvich & Tsai 1989)
 
-``convention="statsmodels"`` counts the ``k`` coefficients only, as
+``convention="coefficients-only"`` counts the ``k`` coefficients only, as
 ``statsmodels.regression.linear_model.RegressionResults.aic``/``.bic`` do::
 
     AIC  = −2ℓ + 2k,   BIC = −2ℓ + log(n)·k,   AICc = AIC + 2k(k+1)/(n−k−1)
@@ -50,6 +50,8 @@ from .errors import OptionError
 
 __all__ = [
     "CONVENTIONS",
+    "RENAMED_CONVENTIONS",
+    "check_convention",
     "CRITERIA",
     "LOWER_IS_BETTER",
     "log_likelihood",
@@ -64,7 +66,10 @@ __all__ = [
     "check_criterion",
 ]
 
-CONVENTIONS = ("selectkit", "statsmodels")
+#: How many parameters a model of ``k`` coefficients counts: ``k + 1`` (σ² counted, the default) or ``k``.
+CONVENTIONS = ("sigma-counted", "coefficients-only")
+#: Former names of the conventions, refused with the new spelling.
+RENAMED_CONVENTIONS = {"selectkit": "sigma-counted", "statsmodels": "coefficients-only"}
 
 #: Criteria that can rank models; the value says whether lower is better.
 LOWER_IS_BETTER = {
@@ -96,17 +101,29 @@ def check_criterion(name: str) -> str:
     return key
 
 
-def _check_convention(convention: str) -> None:
+def check_convention(convention: str) -> str:
+    """Return ``convention`` if it is one of :data:`CONVENTIONS`, else raise.
+
+    Raises
+    ------
+    OptionError
+        Naming the new spelling of a former name ("selectkit", "statsmodels"),
+        else listing the valid names.
+    """
+    if convention in RENAMED_CONVENTIONS:
+        raise OptionError(f"criterion convention {convention!r} was renamed; "
+                          f"did you mean {RENAMED_CONVENTIONS[convention]!r}?")
     if convention not in CONVENTIONS:
         raise OptionError(
             f"unknown criterion convention {convention!r}; choose one of {', '.join(CONVENTIONS)}"
         )
+    return convention
 
 
 def _n_parameters(k, convention: str):
-    _check_convention(convention)
+    check_convention(convention)
     k = np.asarray(k, dtype=float)
-    return k + 1.0 if convention == "selectkit" else k
+    return k + 1.0 if convention == "sigma-counted" else k
 
 
 def log_likelihood(rss, n, log_jacobian=0.0):
@@ -134,11 +151,11 @@ def log_likelihood(rss, n, log_jacobian=0.0):
     return value[()] if value.ndim == 0 else value
 
 
-def aic(rss, n, k, *, convention="selectkit", log_jacobian=0.0):
+def aic(rss, n, k, *, convention="sigma-counted", log_jacobian=0.0):
     """Akaike information criterion, AIC = −2ℓ + 2p.
 
     ``p = k + 1`` (coefficients including the intercept, plus σ²) under the
-    default convention, ``p = k`` under ``convention="statsmodels"``.
+    default convention, ``p = k`` under ``convention="coefficients-only"``.
 
     Examples
     --------
@@ -150,7 +167,7 @@ def aic(rss, n, k, *, convention="selectkit", log_jacobian=0.0):
     return value[()] if np.ndim(value) == 0 else value
 
 
-def bic(rss, n, k, *, convention="selectkit", log_jacobian=0.0):
+def bic(rss, n, k, *, convention="sigma-counted", log_jacobian=0.0):
     """Bayesian (Schwarz) information criterion, BIC = −2ℓ + log(n)·p.
 
     ``p`` counts parameters as in :func:`aic`.
@@ -160,7 +177,7 @@ def bic(rss, n, k, *, convention="selectkit", log_jacobian=0.0):
     return value[()] if np.ndim(value) == 0 else value
 
 
-def aicc(rss, n, k, *, convention="selectkit", log_jacobian=0.0):
+def aicc(rss, n, k, *, convention="sigma-counted", log_jacobian=0.0):
     """Small-sample corrected AIC (Hurvich & Tsai 1989).
 
     AICc = AIC + 2p(p+1)/(n − p − 1), with ``p`` as in :func:`aic`; infinite
@@ -206,7 +223,7 @@ def adjusted_r_squared(rss, n, k, tss):
     return value[()] if value.ndim == 0 else value
 
 
-def compute(rss, n, k, *, tss, sigma2_full=None, convention="selectkit", log_jacobian=0.0):
+def compute(rss, n, k, *, tss, sigma2_full=None, convention="sigma-counted", log_jacobian=0.0):
     """All rss-based criteria at once, as a dict of arrays.
 
     Parameters

@@ -809,6 +809,51 @@ def _rows_to_keep(missing_masks, n_read: int, missing: str, notes: list[Note]):
     return keep, dropped_rows
 
 
+def _nested_kind(series: pd.Series) -> str | None:
+    """'lists' or 'records' when the column holds a list or a record (a Parquet list/struct) per row, else None."""
+    if series.dtype != object:
+        return None
+    for value in series:
+        if isinstance(value, (list, tuple, set, np.ndarray)):
+            return "lists"
+        if isinstance(value, dict):
+            return "records"
+    return None
+
+
+def _set_aside_nested(table, pool, *, response, weights, named, forced, keep_identifiers, notes):
+    """Set aside (with a note) the predictors holding a list or a record per row; refuse them when named.
+
+    A model term needs one number or category per row.  A column of the
+    response or weights role, or one the caller named (``predictors=``,
+    ``forced=``, ``keep_identifiers=``), is refused; one only swept in with
+    every other column is set aside and noted.  Returns the names set aside.
+    """
+    fix = ("a model needs one number or category per row: unpack it into ordinary columns (one per item "
+           "or field) or leave it out")
+    for name, role in ((response, "response"), (weights, "weights")):
+        kind = name is not None and _nested_kind(table[name])
+        if kind:
+            raise InputError(f"{role} column '{name}' holds {kind} (several values per row), not one number per "
+                             f"row; {fix}", column=name)
+    aside = []
+    for name in list(pool):
+        kind = _nested_kind(table[name])
+        if not kind:
+            continue
+        if named or name in forced or name in keep_identifiers:
+            raise InputError(f"column '{name}' holds {kind} (several values per row); {fix}", column=name)
+        pool.remove(name)
+        aside.append(name)
+        notes.append(Note(name, "dropped", f"column '{name}' was set aside: it holds {kind} (several values per "
+                                           f"row), and {fix.split(': ', 1)[0]}; unpack it into ordinary columns "
+                                           f"to use it"))
+    if not pool:
+        raise InputError(f"no predictor columns are left: {_quoted_list(aside)} hold lists or records; {fix}",
+                         set_aside=tuple(aside))
+    return aside
+
+
 def _assign_roles(columns, *, response, weights, given, forced, exclude, keep_identifiers, delimiter):
     """Check that every named column exists and has one role; return the predictor pool in order."""
     _require_column(response, columns, "response")
@@ -1008,6 +1053,8 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
                          exclude=exclude, keep_identifiers=keep_identifiers, delimiter=read_report.delimiter)
 
     n_read = len(table)
+    nested_aside = _set_aside_nested(table, pool, response=response, weights=weights, named=given is not None,
+                                     forced=forced, keep_identifiers=keep_identifiers, notes=notes)
     y_all = _numeric_role(table[response], response, "response")
     w_all = None if weights is None else _numeric_role(table[weights], weights, "weights")
     kinds: dict[str, str] = {}
@@ -1015,7 +1062,7 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
     for name in pool:
         kinds[name], values[name] = _classify(table[name], name, notes, decimal=read_report.decimal)
 
-    set_aside: list[str] = []
+    set_aside: list[str] = list(nested_aside)
 
     def set_aside_column(name):
         set_aside.append(name)

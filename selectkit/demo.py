@@ -28,7 +28,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-__all__ = ["RESPONSE", "TRUE_TERMS", "SEED", "make_greenhouse", "demo_csv_path", "Recovery", "recovery"]
+__all__ = ["RESPONSE", "TRUE_TERMS", "TRUE_INTERCEPT", "TRUE_COEFFICIENTS", "TRUE_EQUATION", "SEED", "make_greenhouse", "demo_csv_path", "Recovery", "recovery"]
 
 RESPONSE = "yield_kg_m2"
 #: Readable names of the terms of the generating model.
@@ -38,6 +38,26 @@ TRUE_TERMS = (
     "night_temp_c",
     "1/plant_density_m2",
     "cultivar",
+)
+#: Coefficients of the generating model, by term (a categorical by level; its first level is the baseline).
+TRUE_INTERCEPT = 6.0
+TRUE_COEFFICIENTS = {
+    "log(light_mol_m2_day)": 5.5,
+    "sqrt(co2_above_ambient_ppm)": 0.15,
+    "night_temp_c": 0.45,
+    "1/plant_density_m2": -10.0,
+    "cultivar": {"Ruby": 0.0, "Amber": 1.6, "Garnet": -1.1},
+}
+NOISE_SD = 0.9
+#: The generating model written as an equation, for a person to read.
+TRUE_EQUATION = (
+    f"{RESPONSE} = {TRUE_INTERCEPT:g}"
+    + "".join(f" {'-' if value < 0 else '+'} "
+              + (f"{abs(value):g}/{term[2:]}" if term.startswith("1/") else f"{abs(value):g}*{term}")
+              for term, value in TRUE_COEFFICIENTS.items() if not isinstance(value, dict))
+    + " + cultivar effect ("
+    + ", ".join(f"{level} {value:+g}" if value else f"{level} 0" for level, value in TRUE_COEFFICIENTS["cultivar"].items())
+    + f") + noise of sd {NOISE_SD:g}"
 )
 SEED = 20261202
 N_ROWS = 300
@@ -71,15 +91,17 @@ def make_greenhouse(n_rows: int = N_ROWS, seed: int = SEED) -> pd.DataFrame:
     night_temp = rng.uniform(12.0, 22.0, n)
     density = rng.uniform(1.5, 4.5, n)
     cultivar = rng.choice(np.array(["Ruby", "Amber", "Garnet"]), size=n, p=[0.45, 0.35, 0.20])
-    cultivar_effect = np.select([cultivar == "Amber", cultivar == "Garnet"], [1.6, -1.1], 0.0)
+    levels = TRUE_COEFFICIENTS["cultivar"]
+    cultivar_effect = np.select([cultivar == level for level in levels], list(levels.values()), 0.0)
 
-    noise = rng.normal(0.0, 0.9, n)
+    noise = rng.normal(0.0, NOISE_SD, n)
+    c = TRUE_COEFFICIENTS
     y = (
-        6.0
-        + 5.5 * np.log(light)
-        + 0.15 * np.sqrt(co2_above)
-        + 0.45 * night_temp
-        - 10.0 / density
+        TRUE_INTERCEPT
+        + c["log(light_mol_m2_day)"] * np.log(light)
+        + c["sqrt(co2_above_ambient_ppm)"] * np.sqrt(co2_above)
+        + c["night_temp_c"] * night_temp
+        + c["1/plant_density_m2"] / density
         + cultivar_effect
         + noise
     )

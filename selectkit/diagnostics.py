@@ -278,6 +278,19 @@ class Diagnosis:
                 return c
         raise OptionError(f"no check named {name!r}; the checks are {', '.join(c.name for c in self.checks)}")
 
+    def __repr__(self) -> str:
+        """A few lines: the model, the checks by level, the rows flagged; :meth:`table` holds the detail."""
+        model = " + ".join(self.terms) or "intercept only"
+        by_level = []
+        for level in (PROBLEM, WORTH_A_LOOK, NOT_ASSESSED, FINE):
+            names = [c.name for c in self.checks if c.level == level]
+            if names:
+                by_level.append(f"{level}: {', '.join(names)}" if level != FINE else f"fine: {len(names)}")
+        return (f"<Diagnosis of {model}: {self.n} rows, {self.k} coefficients>\n"
+                f"  checks — {'; '.join(by_level) or 'none'}\n"
+                f"  {len(self.flagged_rows)} row(s) above a screening cut-off (.flagged_rows); "
+                f"every check with its verdict: .table()")
+
     def table(self) -> pd.DataFrame:
         """The checks as a DataFrame (one row per check)."""
         return pd.DataFrame([

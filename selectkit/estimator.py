@@ -51,6 +51,10 @@ class SubsetRegressor(RegressorMixin, TransformerMixin, BaseEstimator):
     coef_ : ndarray
         One coefficient per column of :meth:`transform`'s output.
     feature_names_in_ : ndarray of str
+        Column names of a DataFrame ``X`` (set only for a DataFrame, as in
+        scikit-learn). An array ``X`` has its columns named ``x0, x1, ...``,
+        and the term names use those.
+    n_features_in_ : int
 
     Notes
     -----
@@ -65,7 +69,7 @@ class SubsetRegressor(RegressorMixin, TransformerMixin, BaseEstimator):
     >>> from selectkit.estimator import SubsetRegressor
     >>> frame = make_greenhouse()
     >>> y = frame.pop("yield_kg_m2")
-    >>> model = SubsetRegressor(methods=("both",)).fit(frame, y)  # doctest: +SKIP
+    >>> model = SubsetRegressor(methods=("stepwise",)).fit(frame, y)  # doctest: +SKIP
     >>> model.predict(frame.head(3))  # doctest: +SKIP
     """
 
@@ -81,11 +85,12 @@ class SubsetRegressor(RegressorMixin, TransformerMixin, BaseEstimator):
         self.search_options = search_options
 
     def fit(self, X, y):
-        """Run the search on ``X`` (a DataFrame) and ``y``; keep model ``model_rank``."""
+        """Run the search on ``X`` (a DataFrame, or an array whose columns are named ``x0, x1, ...``) and ``y``;
+        keep model ``model_rank``."""
         from .api import search
 
-        if not isinstance(X, pd.DataFrame):
-            raise InputError("SubsetRegressor needs X as a pandas DataFrame: column names name the terms")
+        named = isinstance(X, pd.DataFrame)
+        X = _as_frame(X, None)
         y = np.asarray(y, dtype=float).reshape(-1)
         if y.shape[0] != X.shape[0]:
             raise InputError(f"X has {X.shape[0]} rows but y has {y.shape[0]}; pass one response value per row")
@@ -101,7 +106,11 @@ class SubsetRegressor(RegressorMixin, TransformerMixin, BaseEstimator):
         params = np.asarray(result.model(self.model_rank).params, dtype=float)
         self.intercept_ = float(params[0])
         self.coef_ = params[1:]
-        self.feature_names_in_ = np.asarray(X.columns, dtype=object)
+        if named:
+            self.feature_names_in_ = np.asarray(X.columns, dtype=object)
+        elif hasattr(self, "feature_names_in_"):
+            del self.feature_names_in_  # a refit on an array: the old names no longer apply
+        self._input_names = [str(c) for c in X.columns]
         self.n_features_in_ = X.shape[1]
         subset = result.ranking.subsets[self.model_rank]
         self._columns = [c for j in subset for c in result.candidates.terms[j].columns]
@@ -110,8 +119,7 @@ class SubsetRegressor(RegressorMixin, TransformerMixin, BaseEstimator):
     def transform(self, X):
         """The chosen model's term columns for the rows of ``X``."""
         check_is_fitted(self, "coef_")
-        if not isinstance(X, pd.DataFrame):
-            raise InputError("SubsetRegressor.transform needs a pandas DataFrame with the training columns")
+        X = _as_frame(X, self._input_names)
         matrix = self.result_.candidates.transform(X.reset_index(drop=True))
         return matrix[:, self._columns]
 
@@ -124,3 +132,25 @@ class SubsetRegressor(RegressorMixin, TransformerMixin, BaseEstimator):
         check_is_fitted(self, "coef_")
         names = self.result_.candidates.column_names
         return np.asarray([names[c] for c in self._columns], dtype=object)
+
+
+def _as_frame(X, names):
+    """``X`` as a DataFrame: a DataFrame as it is, an array with columns named ``names`` (fit: ``x0, x1, ...``).
+
+    At transform time (``names`` given) a DataFrame lacking a training column is
+    read by position, like an array, when it has as many columns.
+    """
+    if isinstance(X, pd.DataFrame):
+        if names is None or all(name in X.columns for name in names):
+            return X
+        X = X.to_numpy()
+    array = np.asarray(X)
+    if array.ndim != 2:
+        raise InputError(f"X must be a table of rows by columns (2-D); got an array of shape {array.shape}; "
+                         f"reshape a single column with X.reshape(-1, 1)")
+    if names is None:
+        names = [f"x{j}" for j in range(array.shape[1])]  # scikit-learn's names for unnamed columns
+    elif array.shape[1] != len(names):
+        raise InputError(f"X has {array.shape[1]} columns but the model was fitted on {len(names)} "
+                         f"({', '.join(names[:8])}{', ...' if len(names) > 8 else ''}); pass the same columns")
+    return pd.DataFrame(array, columns=names)

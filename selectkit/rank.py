@@ -588,7 +588,7 @@ def rank(
     *,
     criterion=None,
     aim="explain",
-    convention="selectkit",
+    convention="sigma-counted",
     size=10,
     max_delta=None,
     scores=None,
@@ -612,7 +612,7 @@ def rank(
         default it follows ``aim`` (see :func:`choose_criterion`): BIC to
         explain, AICc (or AIC when n/K ≥ 40) to predict.
     aim : {"explain", "predict"}, default "explain"
-    convention : {"selectkit", "statsmodels"}, default "selectkit"
+    convention : {"sigma-counted", "coefficients-only"}, default "sigma-counted"
         Parameter count of AIC/AICc/BIC (see :mod:`selectkit.criteria`); the
         ranking by AIC or BIC does not depend on it.
     size : int, default 10
@@ -639,7 +639,7 @@ def rank(
     ℓ = −n/2 (log(2π·rss/n) + 1) plus the response transform's log-Jacobian
     (Box & Cox 1964); AIC = −2ℓ + 2p, BIC = −2ℓ + log(n)·p, AICc = AIC +
     2p(p+1)/(n−p−1), with p = k + 1 (σ² counted) under the default convention
-    and p = k under ``"statsmodels"``.  Cp = rss/σ̂² − n + 2k (Mallows 1973),
+    and p = k under ``"coefficients-only"``.  Cp = rss/σ̂² − n + 2k (Mallows 1973),
     σ̂² from the pooled model with the most coefficients (``cp_variance_source``
     names it).  Δᵢ = criterionᵢ − best and the weights
     wᵢ = exp(−Δᵢ/2)/Σⱼ exp(−Δⱼ/2) (Burnham & Anderson 2002, §2.9); for BIC these
@@ -1170,7 +1170,7 @@ def stability(
     n_jobs=1,
     backend="loky",
     criterion="bic",
-    convention="selectkit",
+    convention="sigma-counted",
     deadline=None,
 ) -> Stability:
     """Bootstrap stability of the selection: how often each variable and form is chosen.
@@ -1202,7 +1202,7 @@ def stability(
         Picks each replicate's best model: ``aic``, ``aicc``, ``bic``, ``cp`` or
         ``adj_r2``.  The cross-validated criteria (``press``, ``cv_mse``,
         ``holdout_mse``) are replaced by AICc, with a note.
-    convention : str, default "selectkit"
+    convention : str, default "sigma-counted"
     deadline : selectkit._budget.Deadline, optional
         The run's time budget.  No replicate starts once it has run out, and a
         replicate it cuts (``runner`` raises ``BudgetSpent``) is left out; the

@@ -80,6 +80,25 @@ class ResponseBoxCox:
                     "professional standards.")
     reference: str = "Box, G. E. P. and Cox, D. R. (1964), J. R. Statist. Soc. B 26(2), 211-252"
 
+    def __repr__(self) -> str:
+        """A few lines: λ̂, its interval, the suggestion; :meth:`table` holds the profile."""
+        low, high = (f"{v:.3g}" for v in self.interval)
+        opened = ("(" if self.interval_open[0] else "[") + f"{low}, {high}" + (")" if self.interval_open[1] else "]")
+        suggested = "none" if self.suggested is None else (
+            f"{format_number(self.suggested)} ({_READING.get(float(self.suggested), '')})")
+        return (f"<ResponseBoxCox: {self.n} rows, λ̂ = {self.lambda_hat:.3g}, 95 % interval {opened}, "
+                f"suggested λ = {suggested}>\n"
+                f"  {self.verdict}\n"
+                f"  the profile log-likelihood over {len(self.grid)} values of λ: .table()")
+
+    def table(self):
+        """The profile as a DataFrame: ``lambda``, ``log_likelihood`` (on the scale of y) and ``in_interval``."""
+        import pandas as pd
+
+        grid = np.asarray(self.grid, dtype=float)
+        return pd.DataFrame({"lambda": grid, "log_likelihood": np.asarray(self.profile, dtype=float),
+                             "in_interval": (grid >= self.interval[0]) & (grid <= self.interval[1])})
+
 
 def _check_inputs(y, X, weights):
     y = np.asarray(y, dtype=np.float64)

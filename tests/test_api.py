@@ -86,8 +86,8 @@ def test_repr_html_escapes_user_strings():
 
 def test_same_shortlist_for_one_and_two_workers():
     frame = _small_frame()
-    one = selectkit.search(frame, response="yield_kg_m2", methods=("exhaustive", "both"), n_jobs=1, seed=4)
-    two = selectkit.search(frame, response="yield_kg_m2", methods=("exhaustive", "both"), n_jobs=2, seed=4)
+    one = selectkit.search(frame, response="yield_kg_m2", methods=("exhaustive", "stepwise"), n_jobs=1, seed=4)
+    two = selectkit.search(frame, response="yield_kg_m2", methods=("exhaustive", "stepwise"), n_jobs=2, seed=4)
     pd.testing.assert_frame_equal(one.shortlist, two.shortlist)
 
 
@@ -100,6 +100,21 @@ def test_unknown_method_setting_suggests_nearest():
     with pytest.raises(OptionError, match="did you mean"):
         selectkit.search(_small_frame(), response="yield_kg_m2", methods=("exhaustive",),
                          method_options={"exhaustive": {"max_sise": 3}})
+
+
+@pytest.mark.parametrize("options, words", [
+    ({"methods": ("both",)}, "did you mean 'stepwise'"),
+    ({"convention": "statsmodels"}, "did you mean 'coefficients-only'"),
+    ({"convention": "selectkit"}, "did you mean 'sigma-counted'"),
+    ({"methods": ("stepwise",), "method_options": {"stepwise": {"direction": "forward"}}},
+     "did you mean methods=('forward',)"),
+    ({"methods": ("forward",), "method_options": {"both": {}}}, "did you mean 'stepwise'"),
+    ({"methods": ("forward",), "method_options": {"forward": {"direction": "both"}}},
+     "did you mean methods=('stepwise',)"),
+])
+def test_former_names_are_refused_with_the_new_spelling(options, words):
+    with pytest.raises(OptionError, match=words.replace("(", r"\(").replace(")", r"\)")):
+        selectkit.search(_small_frame(), response="yield_kg_m2", **options)
 
 
 def test_missing_response_is_an_input_error():

@@ -110,7 +110,7 @@ def test_searches_planned_one_by_one_each_get_what_is_left():
     """Two slow searches under one budget: the second starts with what the first left, not a new budget."""
     frame = _bays()
     setup = _slow_setup(frame, budget=0.5, delay=0.1, chunks=6)
-    second = MethodRun(name="both", module_name="tests.test_jobs", options=FakeOptions(chunks=6, delay=0.1))
+    second = MethodRun(name="stepwise", module_name="tests.test_jobs", options=FakeOptions(chunks=6, delay=0.1))
     setup = replace(setup, runs=setup.runs + (second,))
     started = time.monotonic()
     founds = api.run_methods(setup)
@@ -118,7 +118,7 @@ def test_searches_planned_one_by_one_each_get_what_is_left():
     assert not founds[0].exact and "ran out during search 'exhaustive'" in founds[0].stopped_by
     assert "were left when it started" in founds[0].stopped_by
     # the second search still ran one unit (so it reports something) and says the budget was spent
-    assert len(founds[1]) > 0 and "ran out during search 'both'" in founds[1].stopped_by
+    assert len(founds[1]) > 0 and "ran out during search 'stepwise'" in founds[1].stopped_by
     assert "1 of 6 work units finished" in founds[1].stopped_by
 
 

@@ -75,8 +75,24 @@ def test_an_abbreviated_option_is_refused_not_guessed(argv, typo, capsys):
 
 def test_whole_names_still_work():
     args = build_parser().parse_args(["search", "t.csv", "--response", "y", "--folds", "3", "--workers", "-1",
-                                      "--seed", "0", "--resamples", "0", "--honest-error", "0", "-m", "both"])
+                                      "--seed", "0", "--resamples", "0", "--honest-error", "0", "-m", "stepwise"])
     assert (args.folds, args.workers, args.seed, args.resamples, args.honest_error) == (3, -1, 0, 0, 0)
+
+
+@pytest.mark.parametrize("argv, words", [
+    (["search", "t.csv", "-r", "y", "-m", "both"], "did you mean 'stepwise'"),
+    (["search", "t.csv", "-r", "y", "--statsmodels-convention"], "did you mean --count-parameters coefficients-only"),
+    (["search", "t.csv", "-r", "y", "--count-parameters", "statsmodels"], "did you mean 'coefficients-only'"),
+])
+def test_former_names_are_refused_naming_the_new_one(argv, words, capsys):
+    assert words in _refused(argv, capsys)
+
+
+def test_the_parameter_count_is_passed_on():
+    args = build_parser().parse_args(["search", "t.csv", "-r", "y", "--count-parameters", "coefficients-only"])
+    assert cli._search_options(args)["convention"] == "coefficients-only"
+    assert cli._search_options(build_parser().parse_args(["search", "t.csv", "-r", "y"]))["convention"] == \
+        "sigma-counted"
 
 
 # --------------------------------------------------------------------------- counts and sizes
@@ -112,6 +128,38 @@ def test_the_refusal_holds_through_a_real_process(tmp_path):
     assert proc.stderr.strip().splitlines() == [
         "selectkit search: error: argument --resamples: -1 is too small; give 0 (skip) or a positive number of "
         "resamples (see selectkit search --help)"]
+
+
+# --------------------------------------------------------------------------- files that are not tables
+
+
+def _nested_table(path):
+    import pandas as pd
+
+    rng = np.random.default_rng(2)
+    frame = pd.DataFrame({"y": rng.normal(size=20), "x": rng.normal(size=20)})
+    frame["readings"] = [rng.normal(size=2) for _ in range(20)]  # a Parquet list column
+    frame.to_parquet(path)
+
+
+@pytest.mark.parametrize("name, make, argv, words", [
+    ("bays.csv", lambda p: p.write_bytes(bytes(range(256)) * 4), ["-r", "y"], "'bays.csv' looks like binary data"),
+    ("bays.csv", lambda p: p.write_bytes(b"%PDF-1.4\n" + bytes(64)), ["-r", "y"], "looks like a PDF document"),
+    ("bays.parquet", _nested_table, ["-r", "readings"], "response column 'readings' holds lists"),
+    ("bays.parquet", _nested_table, ["-r", "y", "--only", "x,readings"], "column 'readings' holds lists"),
+])
+def test_a_file_that_is_not_a_table_gets_one_line_and_exit_2(tmp_path, capsys, monkeypatch, name, make, argv,
+                                                             words):
+    if name.endswith(".parquet"):
+        pytest.importorskip("pyarrow")
+    make(tmp_path / name)
+    monkeypatch.chdir(tmp_path)
+    capsys.readouterr()
+    code = main(["search", name, *argv, "-o", "out"])
+    err = capsys.readouterr().err
+    lines = err.strip().splitlines()
+    assert code == 2 and len(lines) == 1 and words in lines[0], err
+    assert "Traceback" not in err and "internal error" not in err
 
 
 # --------------------------------------------------------------------------- a closed pipe

@@ -41,11 +41,11 @@ def test_log_likelihood_equals_statsmodels():
 
 def test_aic_bic_statsmodels_convention_equal_statsmodels():
     for res, n, k, _ in FITS:
-        assert criteria.aic(res.ssr, n, k, convention="statsmodels") == pytest.approx(res.aic, rel=1e-12)
-        assert criteria.bic(res.ssr, n, k, convention="statsmodels") == pytest.approx(res.bic, rel=1e-12)
+        assert criteria.aic(res.ssr, n, k, convention="coefficients-only") == pytest.approx(res.aic, rel=1e-12)
+        assert criteria.bic(res.ssr, n, k, convention="coefficients-only") == pytest.approx(res.bic, rel=1e-12)
         # AICc against statsmodels' eval_measures.aicc with k parameters
         want = eval_measures.aicc(res.llf, n, k)
-        assert criteria.aicc(res.ssr, n, k, convention="statsmodels") == pytest.approx(want, rel=1e-12)
+        assert criteria.aicc(res.ssr, n, k, convention="coefficients-only") == pytest.approx(want, rel=1e-12)
 
 
 def test_default_convention_counts_the_variance():
@@ -61,7 +61,7 @@ def test_rankings_do_not_depend_on_the_convention():
     k = np.array([f[2] for f in longley_fits])
     for fn in (criteria.aic, criteria.bic):
         a = np.argsort(fn(rss, n, k), kind="stable")
-        b = np.argsort(fn(rss, n, k, convention="statsmodels"), kind="stable")
+        b = np.argsort(fn(rss, n, k, convention="coefficients-only"), kind="stable")
         np.testing.assert_array_equal(a, b)
 
 
@@ -110,3 +110,10 @@ def test_unknown_names_raise_listing_choices():
     with pytest.raises(OptionError, match="aicc"):
         criteria.check_criterion("AIK")
     assert criteria.check_criterion("BIC") == "bic"
+
+
+@pytest.mark.parametrize("old, new", [("selectkit", "sigma-counted"), ("statsmodels", "coefficients-only")])
+def test_former_convention_names_are_refused_naming_the_new_one(old, new):
+    with pytest.raises(OptionError, match=f"did you mean '{new}'"):
+        criteria.aic(1.0, 10, 2, convention=old)
+    assert criteria.check_convention(new) == new

@@ -145,7 +145,7 @@ def test_cv_select_stepwise_uses_training_moments_only(problem):
     for fold, models in zip(fold_list, found.details["fold_models"]):
         train = np.setdiff1d(np.arange(len(y)), fold.test_rows)
         direct = stepwise_search(make_candidates(X[train], y[train], blocks={"cultivar": [5, 6]}),
-                                 direction="forward", criterion="f_test", alpha_enter=0.9999, alpha_remove=0.9999,
+                                 method="forward", criterion="f_test", alpha_enter=0.9999, alpha_remove=0.9999,
                                  swaps=False)
         path = {int(k): s for s, k in zip(direct.subsets, direct.k)}
         assert models == path

@@ -189,6 +189,30 @@ def test_spreadsheet_passed_as_csv(tmp_path):
         read_table(path)
 
 
+@pytest.mark.parametrize("content, words", [
+    (bytes(range(256)) * 8, "looks like binary data, not a text table"),
+    (b"a,b\n1,2\n" + bytes(40) + b"\n3,4\n", "looks like binary data"),  # NUL bytes
+    (b"\x89PNG\r\n\x1a\n" + bytes(100), "looks like a PNG image"),  # PNG signature (PNG specification, 5.2)
+    (b"%PDF-1.7\n" + bytes(100), "looks like a PDF document"),
+    (b"SQLite format 3\x00" + bytes(100), "looks like an SQLite database"),
+])
+def test_binary_file_named_csv_gets_one_line_naming_it(tmp_path, content, words):
+    path = tmp_path / "bays.csv"
+    path.write_bytes(content)
+    with pytest.raises(DataFileError) as caught:
+        read_table(path)
+    message = str(caught.value)
+    assert words in message and "'bays.csv'" in message and "\n" not in message
+    assert "codec" not in message and "fields" not in message  # no parser-internal wording
+
+
+def test_utf16_text_with_nul_bytes_is_still_read(tmp_path):
+    path = tmp_path / "bays.csv"
+    path.write_bytes("yield,light\n1.5,2\n2.5,3\n".encode("utf-16"))  # BOM + NUL-rich text
+    frame, report = read_table(path)
+    assert report.encoding == "utf-16" and frame["light"].tolist() == [2, 3]
+
+
 def test_compressed_csv(tmp_path):
     frame = greenhouse(10)
     path = tmp_path / "bays.csv.gz"
@@ -271,6 +295,36 @@ def test_parquet_without_pyarrow(tmp_path, monkeypatch):
     monkeypatch.setitem(sys.modules, "pyarrow.parquet", None)
     with pytest.raises(DataFileError, match=r"pip install 'selectkit\[parquet\]'"):
         read_table(path)
+
+
+def _nested_bays(n=30):
+    rng = np.random.default_rng(3)
+    frame = pd.DataFrame({"yield_kg_m2": rng.normal(10, 1, n), "light": rng.uniform(8, 30, n),
+                          "co2_ppm": rng.uniform(400, 900, n)})
+    frame["readings"] = [rng.normal(size=3) for _ in range(n)]          # a Parquet list column
+    frame["sensor"] = [{"id": i, "kind": "probe"} for i in range(n)]    # a Parquet struct column
+    return frame
+
+
+def test_parquet_list_and_struct_columns_are_set_aside_with_a_note(tmp_path):
+    pytest.importorskip("pyarrow")
+    path = tmp_path / "bays.parquet"
+    _nested_bays().to_parquet(path)
+    data = prepare(path, response="yield_kg_m2")
+    assert data.numeric == ("light", "co2_ppm") and data.categorical == ()
+    dropped = {note.column: note.message for note in data.report.notes if note.kind == "dropped"}
+    assert "holds lists" in dropped["readings"] and "holds records" in dropped["sensor"]
+
+
+@pytest.mark.parametrize("options, words", [
+    ({"response": "readings"}, "response column 'readings' holds lists"),
+    ({"response": "yield_kg_m2", "predictors": ["light", "sensor"]}, "column 'sensor' holds records"),
+    ({"response": "yield_kg_m2", "forced": ["readings"]}, "column 'readings' holds lists"),
+    ({"response": "yield_kg_m2", "exclude": ["light", "co2_ppm"]}, "no predictor columns are left"),
+])
+def test_a_named_nested_column_is_refused_with_its_reason(options, words):
+    with pytest.raises(InputError, match=words):
+        prepare(_nested_bays(), **options)
 
 
 def test_frame_is_copied_and_never_modified():

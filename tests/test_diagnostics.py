@@ -405,3 +405,15 @@ def test_reports_show_the_level_words(stackloss):
     assert len({len(m) for m in marks}) == 1  # padded so the verdicts line up
     page = html._checks_table(diag)
     assert '<span class="look">worth a look</span>' in page and "passed" not in page and "failed" not in page
+
+
+def test_diagnosis_repr_is_a_few_lines_and_table_holds_the_detail(stackloss):
+    _, _, diag = stackloss
+    text = repr(diag)
+    assert len(text.splitlines()) <= 4 and "array(" not in text and len(text) < 600
+    assert "ACIDCONC" in text and "21 rows" in text and ".table()" in text
+    table = diag.table()
+    assert isinstance(table, pd.DataFrame) and list(table["check"]) == [c.name for c in diag.checks]
+    for check in diag.checks:  # every check is named in the summary by its level, or counted as fine
+        assert check.name in text or check.level == "fine"
+    assert f"fine: {sum(c.level == 'fine' for c in diag.checks)}" in text

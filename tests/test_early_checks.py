@@ -118,6 +118,29 @@ def test_unreachable_scheduler_is_refused_before_the_data_are_read(monkeypatch, 
         api.check_run_options(n_jobs=0)
 
 
+def _recording_scheduler_check(monkeypatch):
+    """Replace the scheduler check by one that records the timeout it was given and refuses, as out of reach."""
+    seen = []
+
+    def check(scheduler, timeout=10.0):
+        seen.append(timeout)
+        raise OptionError(f"cannot reach the Dask scheduler at {scheduler!r} within {timeout:g} s (stand-in)")
+
+    monkeypatch.setattr(api, "check_scheduler", check)
+    return seen
+
+
+def test_the_scheduler_timeout_is_settable_and_checked(monkeypatch, no_search_work):
+    seen = _recording_scheduler_check(monkeypatch)
+    with pytest.raises(OptionError, match="within 2.5 s"):
+        api.search(_bays(), response="yield_kg_m2", backend="dask", scheduler="tcp://127.0.0.1:1",
+                   scheduler_timeout=2.5)
+    assert seen == [2.5]
+    for bad in (0, -1, float("nan"), "10", True):
+        with pytest.raises(OptionError, match="scheduler timeout must be a positive number of seconds"):
+            api.check_run_options(backend="dask", scheduler="tcp://127.0.0.1:1", timeout=bad)
+
+
 # --------------------------------------------------------------------------- the command line
 def _cli(args, capsys):
     from selectkit.cli import main
@@ -171,6 +194,17 @@ def test_cli_unreachable_scheduler_exits_2_before_reading(tmp_path, capsys, monk
     assert code == 2 and "cannot reach the Dask scheduler" in err and len(err.strip().splitlines()) == 1
 
 
+def test_cli_scheduler_timeout_is_passed_on_and_a_bad_one_refused(tmp_path, capsys, monkeypatch, no_search_work):
+    _bays().to_csv(tmp_path / "bays.csv", index=False)
+    monkeypatch.chdir(tmp_path)
+    seen = _recording_scheduler_check(monkeypatch)
+    address = ["--backend", "dask", "--scheduler", "tcp://127.0.0.1:1"]
+    code, out, err = _cli(["search", "bays.csv", "-r", "yield_kg_m2", *address, "--scheduler-timeout", "3"], capsys)
+    assert code == 2 and seen == [3.0] and "within 3 s" in err and len(err.strip().splitlines()) == 1
+    code, out, err = _cli(["search", "bays.csv", "-r", "yield_kg_m2", *address, "--scheduler-timeout", "0"], capsys)
+    assert code == 2 and "--scheduler-timeout" in err and len(err.strip().splitlines()) == 1
+
+
 # --------------------------------------------------------------------------- jobs
 def test_job_with_too_many_folds_fails_before_any_unit_and_can_be_fixed(tmp_path):
     write_positive_table(tmp_path / "bays.csv")
@@ -212,7 +246,7 @@ def test_which_settings_change_the_units(tmp_path):
     assert not _changes_units("ranking.folds", base, replace(base, folds=9))
     assert not _changes_units("ranking.criterion", base, replace(base, criterion="aic"))  # exhaustive only
     assert not _changes_units("ranking.shortlist_size", base, replace(base, shortlist_size=2))
-    stepwise = replace(base, methods=("both",))
+    stepwise = replace(base, methods=("stepwise",))
     # stepwise steers by the criterion (BIC to explain by default): AIC would change its path
     assert _changes_units("ranking.criterion", stepwise, replace(stepwise, criterion="aic"))
     assert not _changes_units("ranking.criterion", stepwise, replace(stepwise, criterion="bic"))
@@ -252,3 +286,17 @@ def test_job_finish_failure_is_recorded_as_failed_not_interrupted(tmp_path):
     assert status.state == "failed" and "ranking refused" in status.stopped_by and status.units_done == 3
     again = run_fake(spec)  # the cause gone, a resume finishes from the stored units
     assert again.complete and again.units_resumed == 3
+
+
+def test_job_scheduler_timeout_is_read_checked_and_used(tmp_path, monkeypatch):
+    write_table(tmp_path / "bays.csv")
+    spec = load_job(write_job(tmp_path, extra_run='backend = "dask"\nscheduler = "tcp://127.0.0.1:1"\n'
+                                                  'scheduler_timeout = 4\n'))
+    assert spec.scheduler_timeout == 4.0
+    assert replace(spec, scheduler_timeout=30.0).fingerprint() == spec.fingerprint()  # where, not what
+    seen = _recording_scheduler_check(monkeypatch)
+    with pytest.raises(OptionError, match="within 4 s"):
+        run_fake(spec)
+    assert seen == [4.0]
+    with pytest.raises(JobFileError, match=r"\[run\] scheduler_timeout must be a positive number"):
+        load_job(write_job(tmp_path, extra_run="scheduler_timeout = -3\n"))

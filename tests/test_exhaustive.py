@@ -302,3 +302,64 @@ def test_time_budget_across_worker_processes():
     found = exhaustive_search(make_candidates(X, y), time_budget=0.3, n_jobs=2, backend="loky")
     assert not found.exact and "time budget" in found.stopped_by
     assert found.subsets[0] == ()
+
+
+def numpy_enumeration(X, y, n_best, max_size):
+    """Every subset of at most ``max_size`` columns fitted by numpy least squares (lstsq, with an
+    intercept); rank-deficient designs (numpy's matrix_rank) are left out.  The n best rss per size."""
+    n, p = X.shape
+    per_size = {}
+    for size in range(max_size + 1):
+        for cols in itertools.combinations(range(p), size):
+            design = np.column_stack([np.ones(n), X[:, list(cols)]])
+            if np.linalg.matrix_rank(design) < design.shape[1]:
+                continue
+            beta, *_ = np.linalg.lstsq(design, y, rcond=None)
+            rss = float(((y - design @ beta) ** 2).sum())
+            per_size.setdefault(size, []).append((rss, tuple(f"x{j}" for j in cols), cols))
+    return {s: sorted(v)[:n_best] for s, v in per_size.items()}
+
+
+@pytest.mark.parametrize("seed, shape, max_size", [
+    (0, "clean", 3), (1, "duplicate", 4), (2, "sum of two", 5), (3, "near pair 1e-3", 4),
+    (4, "near pair 1e-4", 3), (5, "near sum 1e-2", 5), (6, "noise", 4), (7, "noise", 11),
+])
+def test_max_size_search_equals_numpy_enumeration(seed, shape, max_size):
+    # The branch and bound downdates each node's inverse from its parent's while the
+    # variance inflation factors are small and refactors otherwise; near-collinear columns
+    # (VIF 1e4 to 1e8) exercise both paths, exact dependencies the singular-pivot rule.
+    rng = np.random.default_rng(seed)
+    n, p = 60, 12
+    X = ar1_design(n, p, seed=seed)
+    if shape == "duplicate":
+        X[:, 5] = X[:, 2]
+    elif shape == "sum of two":
+        X[:, 7] = X[:, 1] - 2.0 * X[:, 4]
+    elif shape == "near pair 1e-3":
+        X[:, 3] = X[:, 0] + 1e-3 * rng.normal(size=n)
+    elif shape == "near pair 1e-4":
+        X[:, 9] = X[:, 8] + 1e-4 * rng.normal(size=n)
+    elif shape == "near sum 1e-2":
+        X[:, 6] = X[:, 0] + X[:, 10] + 1e-2 * rng.normal(size=n)
+    if shape == "noise":
+        y = rng.normal(size=n)  # nothing to find: the bounds prune least here
+    else:
+        y = X[:, [0, 4, 8]] @ [1.0, -0.6, 0.4] + rng.normal(size=n)
+    cands = make_candidates(X, y)
+    found = exhaustive_search(cands, n_best_per_size=3, max_size=max_size)
+    assert found.exact
+    assert_matches(found, numpy_enumeration(X, y, 3, max_size))
+
+
+def test_time_budget_slices_resume_the_same_search():
+    # with a time budget the compiled loop runs in slices of nodes and keeps its stack and
+    # per-depth downdate state between them; a budget that never expires gives the same answer
+    X = ar1_design(200, 22, seed=8)
+    y = np.random.default_rng(9).normal(size=200)
+    cands = make_candidates(X, y)
+    one = exhaustive_search(cands, n_best_per_size=5, max_size=8)
+    sliced = exhaustive_search(cands, n_best_per_size=5, max_size=8, time_budget=3600.0)
+    assert one.exact and sliced.exact
+    assert sliced.details["nodes"] > 2 * exhaustive._NODES_PER_SLICE  # really ran in several slices
+    assert one.subsets == sliced.subsets
+    np.testing.assert_allclose(one.rss, sliced.rss, rtol=1e-12)

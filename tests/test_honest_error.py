@@ -51,7 +51,7 @@ def test_honest_error_equals_outer_folds_refitted_by_hand():
 def test_honest_error_reaches_summary_report_and_json(tmp_path):
     import json
 
-    result = selectkit.search(_frame(), response="yield_kg_m2", methods=("both",), forms=("identity",),
+    result = selectkit.search(_frame(), response="yield_kg_m2", methods=("stepwise",), forms=("identity",),
                               honest_folds=3)
     assert "Honest error of the whole procedure" in result.summary()
     paths = result.write(tmp_path)

@@ -214,7 +214,7 @@ interactions = ["x0*x1"]
 response_form = "boxcox:0.5"
 
 [search]
-methods = ["exhaustive", "both"]
+methods = ["exhaustive", "stepwise"]
 exact_limit = 30
 [search.exhaustive]
 max_size = 3
@@ -222,7 +222,7 @@ max_size = 3
 [ranking]
 aim = "predict"
 criterion = "aicc"
-convention = "statsmodels"
+convention = "coefficients-only"
 shortlist_size = 5
 keep_within = 4
 folds = 4
@@ -296,15 +296,20 @@ def test_run_settings_do_not_change_the_fingerprint(job_folder):
     (("[ranking]", "[rankng]"), ["unknown section [rankng]", "did you mean 'ranking'"]),
     (("max_size = 3", "time_budget = 60"), ["[search.exhaustive] time_budget", "[run] time_budget"]),
     (('[search.exhaustive]', '[search.exhaustve]'), ["[search.exhaustve]", "did you mean 'exhaustive'"]),
-    (('methods = ["exhaustive", "both"]\nexact_limit = 30\n[search.exhaustive]',
+    (('methods = ["exhaustive", "stepwise"]\nexact_limit = 30\n[search.exhaustive]',
       'methods = ["auto"]\nexact_limit = 30\n[search.auto]'), ["[search.auto] cannot hold settings"]),
     (('workers = 2', 'workers = "two"'), ["[run] workers", "whole number"]),
     (('workers = 2', 'workers = 0'), ["[run] workers", "at least 1"]),
     (('time_budget = "1h30m"', 'time_budget = -60'), ["time_budget", "positive"]),
     (('time_budget = "1h30m"', 'time_budget = "-2h"'), ["time_budget", "not a duration"]),
     (('table = "bays.csv"', 'table = "missing.csv"'), ["missing.csv", "does not exist"]),
-    (('methods = ["exhaustive", "both"]', 'methods = ["exhaustiv"]'), ["'exhaustiv'", "did you mean 'exhaustive'"]),
+    (('methods = ["exhaustive", "stepwise"]', 'methods = ["exhaustiv"]'), ["'exhaustiv'", "did you mean 'exhaustive'"]),
     (('response = "yield_kg_m2"\n', ''), ["[data] response is missing"]),
+    # former names are refused with the new spelling
+    (('methods = ["exhaustive", "stepwise"]', 'methods = ["exhaustive", "both"]'), ["'both'", "did you mean 'stepwise'"]),
+    (('[search.exhaustive]', '[search.both]'), ["[search.both]", "did you mean 'stepwise'"]),
+    (('convention = "coefficients-only"', 'convention = "statsmodels"'), ["did you mean 'coefficients-only'"]),
+    (('convention = "coefficients-only"', 'convention = "selectkit"'), ["did you mean 'sigma-counted'"]),
     (('aim = "predict"', 'aim = "guess"'), ["aim", "explain, predict"]),
     (('backend = "dask"', 'backend = "loky"'), ["scheduler is set", "dask"]),
     (('[search.exhaustive]', '[search.forward]'), ["[search.forward]", "not in [search] methods"]),
@@ -333,7 +338,7 @@ def test_missing_job_file(tmp_path):
 
 
 def test_settings_for_what_auto_may_run_are_accepted(job_folder):
-    text = FULL_JOB.replace('methods = ["exhaustive", "both"]', 'methods = ["auto"]')
+    text = FULL_JOB.replace('methods = ["exhaustive", "stepwise"]', 'methods = ["auto"]')
     spec = parse_job(text, base=job_folder)
     assert spec.methods == ("auto",) and dict(spec.method_settings["exhaustive"]) == {"max_size": 3}
 
@@ -618,6 +623,36 @@ def test_cli_job_new_writes_a_valid_starter(job_folder, capsys, monkeypatch):
     assert load_job(job_folder / "starter.toml").response == "yield_kg_m2"
 
 
+def test_cli_job_new_into_another_folder_points_back_at_the_table(job_folder, capsys, monkeypatch):
+    (job_folder / "other" / "folder").mkdir(parents=True)
+    code, out, err = _main("new", "bays.csv", "-o", "other/folder/job.toml", cwd=job_folder,
+                           capsys=capsys, monkeypatch=monkeypatch)
+    assert code == 0, err
+    text = (job_folder / "other" / "folder" / "job.toml").read_text()
+    assert 'table = "../../bays.csv"' in text
+    spec = load_job(job_folder / "other" / "folder" / "job.toml")  # resolved from the job file's folder
+    assert spec.table == (job_folder / "bays.csv").resolve()
+
+
+def test_cli_job_new_on_parquet_without_pyarrow_names_the_extra(job_folder, capsys, monkeypatch):
+    import builtins
+
+    (job_folder / "bays.parquet").write_bytes(b"PAR1")  # never opened: the import fails first
+    real_import = builtins.__import__
+
+    def no_pyarrow(name, *args, **kwargs):
+        if name == "pyarrow" or name.startswith("pyarrow."):
+            raise ModuleNotFoundError("No module named 'pyarrow'", name="pyarrow")
+        return real_import(name, *args, **kwargs)
+
+    monkeypatch.setattr(builtins, "__import__", no_pyarrow)
+    code, out, err = _main("new", "bays.parquet", cwd=job_folder, capsys=capsys, monkeypatch=monkeypatch)
+    lines = err.strip().splitlines()
+    assert code == 2 and len(lines) == 1, err
+    assert "pip install 'selectkit[parquet]'" in lines[0] and "bays.parquet" in lines[0]
+    assert "No module named" not in lines[0]
+
+
 def test_cli_status_of_a_store(job_folder, capsys, monkeypatch):
     run_fake(load_job(write_job(job_folder)))
     code, out, err = _main("status", "results", cwd=job_folder, capsys=capsys, monkeypatch=monkeypatch)
@@ -761,7 +796,7 @@ def test_a_method_setting_the_search_refuses_is_a_job_file_error(tmp_path):
     from tests.test_jobs_resume import REAL_JOB, write_positive_table
 
     write_positive_table(tmp_path / "bays.csv")
-    (tmp_path / "job.toml").write_text(REAL_JOB.replace('methods = ["exhaustive", "both"]',
+    (tmp_path / "job.toml").write_text(REAL_JOB.replace('methods = ["exhaustive", "stepwise"]',
                                                         'methods = ["exhaustive"]\n[search.exhaustive]\nmax_terms = 3'))
     with pytest.raises(JobFileError, match="job.toml.*'max_terms'.*max_size") as caught:
         _run(load_job(tmp_path / "job.toml"), resume=True, progress=False, engine=_API)

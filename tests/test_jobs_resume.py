@@ -170,7 +170,7 @@ response = "yield_kg_m2"
 offer = ["identity", "log", "sqrt"]
 
 [search]
-methods = ["exhaustive", "both"]
+methods = ["exhaustive", "stepwise"]
 
 [ranking]
 shortlist_size = 3
@@ -283,7 +283,7 @@ def test_real_search_stopped_by_a_signal_then_resumed(tmp_path_factory):
     import os
     from dataclasses import replace
 
-    job = REAL_JOB.replace('methods = ["exhaustive", "both"]', 'methods = ["crossval"]')
+    job = REAL_JOB.replace('methods = ["exhaustive", "stepwise"]', 'methods = ["crossval"]')
     straight_folder = tmp_path_factory.mktemp("cv-straight")
     write_positive_table(straight_folder / "bays.csv")
     (straight_folder / "job.toml").write_text(job)

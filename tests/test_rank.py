@@ -88,8 +88,8 @@ def test_weights_sum_to_one_and_best_delta_is_zero(simple):
 def test_ranking_by_aic_is_the_same_under_both_conventions(simple):
     cands, moments = simple
     found = brute_force(cands)
-    a = rank([found], cands, moments, criterion="aic", convention="selectkit", scores=False)
-    b = rank([found], cands, moments, criterion="aic", convention="statsmodels", scores=False)
+    a = rank([found], cands, moments, criterion="aic", convention="sigma-counted", scores=False)
+    b = rank([found], cands, moments, criterion="aic", convention="coefficients-only", scores=False)
     assert a.all_subsets == b.all_subsets
     np.testing.assert_allclose(a.scored["model_weight"], b.scored["model_weight"])
     # The two conventions differ by exactly 2 per model (σ² counted or not).
@@ -109,7 +109,7 @@ def test_criteria_equal_statsmodels_on_longley():
     subsets = [(), (0,), (1, 3), (0, 2, 4), (0, 1, 2, 3, 4, 5)]
     found = Found(method="listed", subsets=subsets,
                   rss=[_rss(X, y, s) for s in subsets], k=[1 + len(s) for s in subsets], n=len(y))
-    short = rank([found], cands, moments, criterion="aic", convention="statsmodels",
+    short = rank([found], cands, moments, criterion="aic", convention="coefficients-only",
                  size=len(subsets), scores=False)
     table = short.scored.set_index("term_indices")
     for s in subsets:
@@ -159,7 +159,7 @@ def test_log_jacobian_puts_log_response_on_the_original_scale():
 
     cands = dataclasses.replace(base, response_transform=transform)
     moments = compute_moments(cands.matrix, cands.y)
-    short = rank([brute_force(cands)], cands, moments, criterion="aic", convention="statsmodels", scores=False)
+    short = rank([brute_force(cands)], cands, moments, criterion="aic", convention="coefficients-only", scores=False)
     row = short.scored.set_index("term_indices").loc["0"]
     ref = sm.OLS(z, sm.add_constant(X[:, [0]])).fit()
     assert row["aic"] == pytest.approx(ref.aic + 2 * np.log(y).sum(), rel=1e-10)
@@ -473,7 +473,7 @@ def test_box_tidwell_power_counts_as_a_parameter_in_the_criteria():
     moments = compute_moments(cands.matrix, cands.y)
     fits = [sm.OLS(y, sm.add_constant(col)).fit() for col in (x, x ** -0.9)]
     found = Found(method="test", subsets=((0,), (1,)), rss=[f.ssr for f in fits], k=[2, 2], n=80)
-    table = rank_module.rank(found, cands, moments, criterion="aic", convention="statsmodels", scores=False).scored
+    table = rank_module.rank(found, cands, moments, criterion="aic", convention="coefficients-only", scores=False).scored
     by_terms = table.set_index("terms")
     # reference: statsmodels' AIC (k coefficients), plus 2 for the estimated power
     assert np.isclose(by_terms.loc["x", "aic"], fits[0].aic)

@@ -206,3 +206,44 @@ def test_dollar_signs_in_names_do_not_break_the_figures():
         assert plots.to_png_base64(figure, dpi=30)
     labels = [t.get_text() for t in plots.variable_support(short).axes[0].get_yticklabels()]
     assert r"a\$^\$b" in labels
+
+
+def test_what_was_asked_reads_as_a_person_would_write_it():
+    settings = {"selectkit_version": "9.9", "data": "<DataFrame>", "response": "yield_kg_m2", "predictors": None,
+                "forced": [], "exclude": ["bay_id"], "forms": ["identity", "log"], "shifts": {"co2": "auto"},
+                "interactions": [["light", "co2"]], "method_options": {"exhaustive": {"max_size": 3}},
+                "criterion": "bic", "convention": "coefficients-only", "stability": 0, "curvature_test": True,
+                "time_budget": None, "weights": None, "missing": "drop"}
+    page = report_html._settings_section(settings)
+    cells = re.findall(r"<td[^>]*>(.*?)</td>", page)
+    shown = dict(zip(cells[::2], cells[1::2]))
+    assert shown == {
+        "selectkit version": "9.9", "table": "a DataFrame passed in memory", "response": "yield_kg_m2",
+        "left out": "bay_id", "forms offered": "identity, log", "shift before log or square root": "co2 = auto",
+        "products of two predictors": "light*co2", "settings of each search": "exhaustive: max_size = 3",
+        "ranked by": "BIC", "parameters counted in AIC and BIC": "the coefficients only (coefficients-only)",
+        "bootstrap resamples for stability": "none (skipped)", "curved forms only where the fit bends": "yes",
+        "rows with a missing value": "dropped",
+    }
+    assert "null" not in page and "&lt;DataFrame&gt;" not in page and "[]" not in page
+
+
+def test_collinearity_table_says_what_the_scaled_gvif_is():
+    # three correlated columns and a 3-level block, so the collinearity table (more than one term) is drawn
+    rng = np.random.default_rng(5)
+    n = 60
+    a = rng.normal(size=n)
+    b = a + rng.normal(scale=0.5, size=n)
+    level = rng.integers(0, 3, n)
+    X = np.column_stack([a, b, level == 1, level == 2]).astype(float)
+    y = 2 * a - 1.5 * b + 1.5 * X[:, 2] + 2 * X[:, 3] + rng.normal(scale=0.5, size=n)
+    cands = make_candidates(X, y, names=["a", "b", "kind[2]", "kind[3]"], families=["a", "b", "kind", "kind"],
+                            blocks={"kind": [2, 3]})
+    moments = compute_moments(cands.matrix, cands.y)
+    found = brute_force(cands, method="exhaustive")
+    short = rank([found], cands, moments, size=1, scores=False)
+    assert len(short.subsets[0]) == 3  # every term in: a, b and the block
+    page = report_html.render_html(settings={}, candidates=cands, founds=[found], shortlist=short,
+                                   diagnoses=[diagnose(cands, s) for s in short.subsets])
+    assert "scaled GVIF (comparable with a VIF)" in page and "GVIF^(1/columns)" not in page
+    assert "Fox &amp; Monette 1992" in page

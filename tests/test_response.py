@@ -148,3 +148,17 @@ def test_shipped_dataset_profile_maximum_matches_a_statsmodels_search():
     result = boxcox_response(y, X)
     assert result.lambda_hat == pytest.approx(reference.x, abs=1e-5)
     assert result.log_likelihood == pytest.approx(-reference.fun, rel=1e-9)
+
+
+def test_repr_is_short_and_table_holds_the_profile():
+    rng, X, mu = _design(1)
+    y = np.exp(1.0 + mu + rng.normal(0.0, 0.1, mu.size))
+    result = boxcox_response(y, X)
+    text = repr(result)
+    assert len(text.splitlines()) <= 4 and "array(" not in text and len(text) < 600
+    assert "suggested λ = 0 (log)" in text and "150 rows" in text
+    table = result.table()
+    assert list(table.columns) == ["lambda", "log_likelihood", "in_interval"] and len(table) == len(result.grid)
+    np.testing.assert_array_equal(table["log_likelihood"], result.profile)
+    inside = table.loc[table["in_interval"], "lambda"]
+    assert inside.min() >= result.interval[0] and inside.max() <= result.interval[1]

@@ -56,13 +56,13 @@ def test_rank_deficient_moves_are_flagged_and_skipped():
     apply_move(S, inside, np.array([0, 1]), PIVOT_TOLERANCE)
     _, bad = evaluate_moves(S, inside, np.array([[3], [2]]), PIVOT_TOLERANCE)
     assert bad.tolist() == [True, False]
-    found = stepwise_search(make_candidates(X, y), direction="forward", start=("x0", "x1"))
+    found = stepwise_search(make_candidates(X, y), method="forward", start=("x0", "x1"))
     assert found.singular >= 1
     assert all(3 not in s for s in found.subsets)
 
 
 # --------------------------------------------------- brute-force reference loop
-def reference_stepwise(X, y, cand, direction, criterion, alpha_enter=0.15, alpha_remove=0.15, start=(), swaps=True,
+def reference_stepwise(X, y, cand, method, criterion, alpha_enter=0.15, alpha_remove=0.15, start=(), swaps=True,
                        max_steps=50):
     """A plain reimplementation with statsmodels refits for every candidate model."""
     terms = cand.terms
@@ -83,9 +83,9 @@ def reference_stepwise(X, y, cand, direction, criterion, alpha_enter=0.15, alpha
     for _ in range(max_steps):
         fams = {terms[i].family: i for i in model}
         moves = []
-        if direction in ("backward", "both"):
+        if method in ("backward", "stepwise"):
             moves += [("drop", tuple(j for j in model if j != i)) for i in model]
-        if direction in ("forward", "both"):
+        if method in ("forward", "stepwise"):
             moves += [("add", tuple(sorted(model + (i,)))) for i in range(len(terms))
                       if i not in model and terms[i].family not in fams]
         if swaps:
@@ -147,18 +147,18 @@ def problems(draw):
         blocks = {"group": [m, m + 1]}
     beta = rng.normal(size=X.shape[1]) * rng.integers(0, 2, size=X.shape[1])
     y = X @ beta + rng.normal(size=n)
-    direction = draw(st.sampled_from(["forward", "backward", "both"]))
+    method = draw(st.sampled_from(["forward", "backward", "stepwise"]))
     criterion = draw(st.sampled_from(["aic", "bic", "aicc", "f_test"]))
-    return X, y, families, blocks, direction, criterion
+    return X, y, families, blocks, method, criterion
 
 
 @settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(problems())
 def test_path_equals_statsmodels_refit_loop(problem):
-    X, y, families, blocks, direction, criterion = problem
+    X, y, families, blocks, method, criterion = problem
     cand = make_candidates(X, y, families=families, blocks=blocks)
-    start = "empty" if direction == "forward" else "full"
-    found = stepwise_search(cand, direction=direction, criterion=criterion, start=start,
+    start = "empty" if method == "forward" else "full"
+    found = stepwise_search(cand, method=method, criterion=criterion, start=start,
                             alpha_enter=0.1, alpha_remove=0.2)
     start_model = found.subsets[0]
     if start == "full":  # first form of each family
@@ -166,7 +166,7 @@ def test_path_equals_statsmodels_refit_loop(problem):
         for i, t in enumerate(cand.terms):
             firsts.setdefault(t.family, i)
         assert start_model == tuple(sorted(firsts.values()))
-    ref = reference_stepwise(X, y, cand, direction, criterion, 0.1, 0.2, start=start_model)
+    ref = reference_stepwise(X, y, cand, method, criterion, 0.1, 0.2, start=start_model)
     names = [t.name for t in cand.terms]
     path = [tuple(sorted(names.index(nm) for nm in s["terms_after"])) for s in found.details["path"]]
     assert path == ref
@@ -197,7 +197,7 @@ def _blocky():
 def test_blocks_enter_whole_with_block_df_and_hierarchy_is_respected():
     X, y, cand = _blocky()
     names = [t.name for t in cand.terms]
-    found = stepwise_search(cand, direction="forward", criterion="f_test", alpha_enter=0.05, alpha_remove=0.05)
+    found = stepwise_search(cand, method="forward", criterion="f_test", alpha_enter=0.05, alpha_remove=0.05)
     for subset, k in zip(found.subsets, found.k):
         assert k == 1 + sum(cand.terms[i].width for i in subset)
         chosen = {names[i] for i in subset}
@@ -220,21 +220,21 @@ def test_blocks_enter_whole_with_block_df_and_hierarchy_is_respected():
 def test_family_swap_replaces_form():
     X, y, cand = _blocky()
     names = [t.name for t in cand.terms]
-    found = stepwise_search(cand, direction="both", start=("x", "cultivar", "z"))
+    found = stepwise_search(cand, method="stepwise", start=("x", "cultivar", "z"))
     moves = [(s["move"], s["term"], s["replaced"]) for s in found.details["path"]]
     assert ("swap", "log(x)", "x") in moves
     assert names.index("log(x)") in found.details["final"][0]
-    no_swap = stepwise_search(cand, direction="both", start=("x", "cultivar", "z"), swaps=False)
+    no_swap = stepwise_search(cand, method="stepwise", start=("x", "cultivar", "z"), swaps=False)
     assert all(s["move"] != "swap" for s in no_swap.details["path"])
 
 
 def test_forced_term_never_removed_and_forbidden_never_enters():
     X, y, cand = _blocky()
     names = [t.name for t in cand.terms]
-    found = stepwise_search(cand, direction="both", start="full", forced=("noise",), forbidden=("x*z",))
+    found = stepwise_search(cand, method="stepwise", start="full", forced=("noise",), forbidden=("x*z",))
     assert all(names.index("noise") in s for s in found.subsets)
     assert all(names.index("x*z") not in s for s in found.subsets)
-    back = stepwise_search(cand, direction="backward", start="full", hierarchy=True)
+    back = stepwise_search(cand, method="backward", start="full", hierarchy=True)
     # z can only leave after x*z has left
     for s in back.subsets:
         if names.index("x*z") in s:
@@ -249,16 +249,16 @@ def test_several_starts_pool_and_are_deterministic_across_workers():
     np.testing.assert_array_equal(one.rss, two.rss)
     assert len(one.details["runs"]) == 3
     assert len(set(one.subsets)) == len(one.subsets)
-    assert one.method == "both" and not one.exact
+    assert one.method == "stepwise" and not one.exact
 
 
 def test_plan_run_merge_contract_matches_convenience():
     X, y, cand = _blocky()
     moments = compute_moments(cand.matrix, cand.y)
-    opts = StepwiseOptions(direction="forward", criterion="bic")
+    opts = StepwiseOptions(method="forward", criterion="bic")
     units = plan(cand, moments, opts)
     found = merge(cand, moments, opts, [run_unit(u) for u in units])
-    direct = stepwise_search(cand, moments, direction="forward", criterion="bic")
+    direct = stepwise_search(cand, moments, method="forward", criterion="bic")
     assert found.subsets == direct.subsets
     assert units[0].key == "stepwise/start-000"
 
@@ -285,8 +285,15 @@ def test_max_steps_and_bad_options():
     assert found.stopped_by == "max steps (1) reached" and len(found.subsets) == 2
     with pytest.raises(OptionError, match="alpha_enter"):
         stepwise_search(cand, criterion="f_test", alpha_enter=0.2, alpha_remove=0.1)
-    with pytest.raises(OptionError, match="forward, backward, both"):
-        stepwise_search(cand, direction="sideways")
+    with pytest.raises(OptionError, match="forward, backward, stepwise"):
+        stepwise_search(cand, method="sideways")
+    # former spellings: the value "both" and the setting "direction" are refused naming the new one
+    with pytest.raises(OptionError, match="did you mean 'stepwise'"):
+        stepwise_search(cand, method="both")
+    with pytest.raises(OptionError, match="did you mean method='stepwise'"):
+        stepwise_search(cand, direction="both")
+    with pytest.raises(OptionError, match="did you mean method='forward'"):
+        stepwise_search(cand, direction="forward")
     with pytest.raises(OptionError, match="aic, aicc, bic, f_test"):
         stepwise_search(cand, criterion="r2")
     with pytest.raises(OptionError, match="no candidate term is named"):
@@ -307,7 +314,7 @@ def test_rank_deficient_start():
     with pytest.raises(SearchError, match="rank-deficient"):
         stepwise_search(make_candidates(X, y), start=("x0", "x2"))
     # from "full" the duplicated column is left out, and the start says so
-    found = stepwise_search(make_candidates(X, y), start="full", direction="backward")
+    found = stepwise_search(make_candidates(X, y), start="full", method="backward")
     assert found.subsets[0] == (0, 1)
     assert "left out as rank-deficient: x2" in found.details["path"][0]["term"]
 
@@ -318,7 +325,7 @@ def test_weighted_path_matches_statsmodels_wls():
     X = rng.normal(size=(60, 4))
     w = rng.uniform(0.2, 3.0, size=60)
     y = X[:, 0] - 0.5 * X[:, 2] + rng.normal(size=60) / np.sqrt(w)
-    found = stepwise_search(make_candidates(X, y, weights=w), direction="both", criterion="bic")
+    found = stepwise_search(make_candidates(X, y, weights=w), method="stepwise", criterion="bic")
     for subset, rss, k in zip(found.subsets, found.rss, found.k):
         A = sm.add_constant(X[:, list(subset)]) if subset else np.ones((60, 1))
         assert rss == pytest.approx(sm.WLS(y, A, weights=w).fit().ssr, rel=1e-9)

@@ -11,10 +11,12 @@ from ..errors import JobFileError
 __all__ = ["parse_duration"]
 
 BACKEND_NAMES = ("loky", "threading", "multiprocessing", "sequential", "dask")
-CONVENTION_NAMES = ("selectkit", "statsmodels")
+CONVENTION_NAMES = ("sigma-counted", "coefficients-only")
 AIM_NAMES = ("explain", "predict")
 #: Search methods a job may name (those of :data:`selectkit.api.METHODS`).
-METHOD_NAMES = ("auto", "exhaustive", "forward", "backward", "both", "crossval", "screen")
+METHOD_NAMES = ("auto", "exhaustive", "forward", "backward", "stepwise", "crossval", "screen")
+#: Former names of values, refused with the new spelling.
+RENAMED = {"both": "stepwise", "selectkit": "sigma-counted", "statsmodels": "coefficients-only"}
 FORM_NAMES = ("identity", "log", "sqrt", "reciprocal", "square", "boxcox", "boxtidwell", "yeojohnson")
 
 
@@ -215,5 +217,7 @@ def _is_forms(value, where):
 
 
 def _suggest(word: str, choices) -> str:
+    if RENAMED.get(word) in choices:
+        return f" (renamed: did you mean {RENAMED[word]!r}?)"
     close = difflib.get_close_matches(word, list(choices), n=1, cutoff=0.5)
     return f" (did you mean {close[0]!r}?)" if close else ""

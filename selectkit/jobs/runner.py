@@ -191,7 +191,7 @@ def run_job(spec_or_path, *, resume: bool = True, progress=None) -> JobOutcome:
 
 
 #: Settings a resumed job may change (they do not change what is found).
-RUN_SETTINGS = ("workers", "backend", "scheduler", "time_budget")
+RUN_SETTINGS = ("workers", "backend", "scheduler", "scheduler_timeout", "time_budget")
 
 #: [ranking] settings used only after the units (ranking, bootstrap, honest error): a job may change them
 #: on resume, since the stored units do not depend on them.
@@ -211,8 +211,9 @@ def resume_job(folder_or_store, *, progress=None, **run_settings) -> JobOutcome:
         The job's output folder, or its ``run-store.sqlite``.
     progress : see :func:`run_job`
     **run_settings
-        New values for ``workers``, ``backend``, ``scheduler`` or
-        ``time_budget`` (seconds or text such as ``"8h"``), e.g. to continue
+        New values for ``workers``, ``backend``, ``scheduler``,
+        ``scheduler_timeout`` (seconds) or ``time_budget`` (seconds or text
+        such as ``"8h"``), e.g. to continue
         on a Dask cluster a job started on a laptop.
 
     Examples
@@ -272,7 +273,7 @@ def _run(spec: JobSpec, *, resume: bool, progress, engine) -> JobOutcome:
                            f"put it back or fix [data] table in the job file")
     _check_output(folder)
     if spec.backend == "dask":
-        _check_dask(spec.scheduler)
+        _check_dask(spec.scheduler, timeout=spec.scheduler_timeout)
     lock = StoreLock(store_path).acquire()
     try:
         store = _open_store(folder, fresh=not resume)
@@ -553,7 +554,7 @@ def _changes_units(dotted: str, then: JobSpec, now: JobSpec) -> bool:
     if dotted in ("ranking.criterion", "ranking.aim"):
         from ..searches._adapters import stepwise_criterion
 
-        steered = methods & {"forward", "backward", "both", "screen", "auto"}
+        steered = methods & {"forward", "backward", "stepwise", "screen", "auto"}
         return bool(steered) and (stepwise_criterion(then.criterion, then.aim)
                                   != stepwise_criterion(now.criterion, now.aim))
     return True

@@ -24,7 +24,7 @@ and range, and the data file must exist.  The layout::
     response_form = "log"           # or "sqrt", "boxcox:0.5"; leave out for none
 
     [search]
-    methods = ["exhaustive", "both"]
+    methods = ["exhaustive", "stepwise"]
     exact_limit = 40
     [search.exhaustive]             # settings of one method, handed on as given
     max_size = 6                    # largest model: columns besides the intercept
@@ -32,7 +32,7 @@ and range, and the data file must exist.  The layout::
     [ranking]
     aim = "explain"                 # "explain" ranks by BIC, "predict" by AICc
     criterion = "bic"               # or name one: aic, aicc, bic, cp, adj_r2, press, cv_mse
-    convention = "selectkit"
+    convention = "sigma-counted"
     shortlist_size = 10
     keep_within = 4.0               # keep models within this distance of the best
     folds = 5
@@ -126,7 +126,7 @@ _SCHEMA: dict[str, dict[str, tuple[Callable, Any]]] = {
     "ranking": {
         "criterion": (_is_name, None),
         "aim": (_one_of(AIM_NAMES), "explain"),
-        "convention": (_one_of(CONVENTION_NAMES), "selectkit"),
+        "convention": (_one_of(CONVENTION_NAMES), "sigma-counted"),
         "shortlist_size": (_whole(low=1), 10),
         "keep_within": (_positive_number, None),
         "folds": (_whole(low=2), 5),
@@ -138,6 +138,7 @@ _SCHEMA: dict[str, dict[str, tuple[Callable, Any]]] = {
         "workers": (_whole(low=1, allow_minus_one=True), 1),
         "backend": (_one_of(BACKEND_NAMES), "loky"),
         "scheduler": (_is_address, None),
+        "scheduler_timeout": (_positive_number, 10.0),
         "time_budget": (parse_duration, None),
         "output": (_is_name, None),
     },
@@ -234,6 +235,8 @@ class JobSpec:
         [run] joblib backend name.
     scheduler : str or None
         [run] Dask scheduler address (backend ``"dask"``).
+    scheduler_timeout : float
+        [run] Seconds to wait for that scheduler to answer before any work (default 10).
     time_budget : float or None
         [run] Seconds of wall-clock time for one run, counted from when the units begin
         (a resume gets the budget again).
@@ -266,7 +269,7 @@ class JobSpec:
     method_settings: Mapping[str, Mapping[str, Any]] = field(default_factory=lambda: MappingProxyType({}))
     criterion: str | None = None
     aim: str = "explain"
-    convention: str = "selectkit"
+    convention: str = "sigma-counted"
     shortlist_size: int = 10
     keep_within: float | None = None
     folds: int = 5
@@ -276,6 +279,7 @@ class JobSpec:
     workers: int = 1
     backend: str = "loky"
     scheduler: str | None = None
+    scheduler_timeout: float = 10.0
     time_budget: float | None = None
     output: Path = Path("selectkit-results")
 

@@ -2,15 +2,16 @@
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
-from ..errors import JobFileError
+from ..errors import DataFileError, JobFileError
 from ._checks import _suggest
 
 __all__ = ["starter_job"]
 
 
-def starter_job(table_path, *, response=None) -> str:
+def starter_job(table_path, *, response=None, job_file=None) -> str:
     """A commented starter job file for a table.
 
     The columns are read from the table's header (CSV, or Parquet when pyarrow
@@ -22,12 +23,16 @@ def starter_job(table_path, *, response=None) -> str:
     ----------
     table_path : str or Path
     response : str, optional
+    job_file : str or Path, optional
+        Where the text will be written. The table path inside is written
+        relative to this file's folder (a job file resolves it from there), or
+        absolute when no relative path leads there (another drive). Default:
+        a job file in the table's own folder.
 
     Returns
     -------
     str
-        TOML text; write it next to the table (the table path inside is
-        relative to the job file's folder when it is written there).
+        TOML text.
 
     Raises
     ------
@@ -36,6 +41,10 @@ def starter_job(table_path, *, response=None) -> str:
     """
     table_path = Path(table_path).expanduser()
     columns = _read_columns(table_path)
+    table_entry = _path_from(table_path, job_file)
+    job_name = f"{table_path.stem}.toml" if job_file is None else Path(job_file).as_posix()
+    results = (Path(job_file).parent / f"{table_path.stem}-results" if job_file is not None
+               else Path(f"{table_path.stem}-results")).as_posix()
     if response is not None and response not in columns:
         hint = _suggest(response, columns)
         raise JobFileError(f"response {response!r} is not a column of {str(table_path)!r}{hint}; "
@@ -49,14 +58,14 @@ def starter_job(table_path, *, response=None) -> str:
     columns_text = "\n".join(f"#   {_one_line(c)}" for c in columns)
     return f"""\
 # selectkit job file for {_one_line(table_path.name)} (TOML; see docs/overnight-jobs.md).
-# Run it with:     selectkit job run {_one_line(table_path.stem)}.toml
-# Watch it with:   selectkit job status {_one_line(table_path.stem)}-results
-# Resume it with:  selectkit job resume {_one_line(table_path.stem)}-results
+# Run it with:     selectkit job run {_one_line(job_name)}
+# Watch it with:   selectkit job status {_one_line(results)}
+# Resume it with:  selectkit job resume {_one_line(results)}
 # Columns found in the table:
 {columns_text}
 
 [data]
-table = {_toml_text(table_path.name)}
+table = {_toml_text(table_entry)}
 {response_line}
 predictors = []            # empty: every column except the response and leave_out
 always_include = []        # predictors every model must hold
@@ -71,13 +80,13 @@ fractional_polynomials = false
 interactions = []          # pairs such as {_toml_text(_example_pair(predictors))}
 
 [search]
-methods = ["auto"]         # auto, exhaustive, forward, backward, both, crossval, screen
+methods = ["auto"]         # auto, exhaustive, forward, backward, stepwise, crossval, screen
 # [search.exhaustive]      # settings of one method, handed to it as given
 
 [ranking]
 aim = "explain"            # "explain" ranks by BIC, "predict" by AICc
 # criterion = "bic"        # or name one: aic, aicc, bic, cp, adj_r2, press, cv_mse
-convention = "selectkit"   # "selectkit" counts the error variance as a parameter; "statsmodels" does not
+convention = "sigma-counted"   # k+1 parameters (the error variance counted); "coefficients-only": k
 shortlist_size = 10
 # keep_within = 4.0        # keep only models within this criterion distance of the best
 folds = 5
@@ -91,6 +100,18 @@ backend = "loky"           # "dask" to use a cluster; then set scheduler = "tcp:
 # time_budget = "8h"       # seconds, or text such as "8h", "90m", "1h30m"
 output = {_toml_text(table_path.stem + "-results")}
 """
+
+
+def _path_from(table_path: Path, job_file) -> str:
+    """The table's path as a job file at ``job_file`` reads it: relative to its folder, else absolute."""
+    if job_file is None:
+        return table_path.name
+    table = table_path.resolve()
+    folder = Path(job_file).expanduser().resolve().parent
+    try:
+        return Path(os.path.relpath(table, folder)).as_posix()
+    except ValueError:  # no relative path between them (Windows drives)
+        return table.as_posix()
 
 
 #: TOML's short escapes (TOML 1.0, "Basic strings"); every other control character is written \uXXXX.
@@ -141,12 +162,29 @@ def _read_columns(path: Path) -> list[str]:
         raise JobFileError(f"table {str(path)!r} does not exist; give the path of a CSV or Parquet file")
     try:
         if path.suffix.lower() in (".parquet", ".pq"):
-            import pyarrow.parquet as pq
+            try:
+                import pyarrow.parquet as pq
+            except ImportError:
+                raise JobFileError(
+                    f"reading the Parquet file {path.name!r} needs the pyarrow package, which is not installed; "
+                    f"install it with: pip install 'selectkit[parquet]' (or save the table as CSV)"
+                ) from None
 
             return list(pq.read_schema(path).names)
         import pandas as pd
 
-        return [str(c) for c in pd.read_csv(path, nrows=0, sep=None, engine="python").columns]
+        from .._csvsniff import COMPRESSED, refuse_binary
+
+        if path.suffix.lower() not in COMPRESSED:
+            with open(path, "rb") as handle:
+                refuse_binary(path, handle.read(65536))
+
+        try:
+            return [str(c) for c in pd.read_csv(path, nrows=0, sep=None, engine="python").columns]
+        except UnicodeDecodeError:  # not UTF-8: Latin-1 reads any bytes, as the data reader falls back to
+            return [str(c) for c in pd.read_csv(path, nrows=0, sep=None, engine="python", encoding="latin-1").columns]
+    except (JobFileError, DataFileError):
+        raise
     except Exception as err:  # noqa: BLE001 - any reader failure becomes one readable line
         raise JobFileError(f"cannot read the column names of {str(path)!r}: {err}") from err
 

@@ -9,7 +9,6 @@ through :func:`html.escape`.
 from __future__ import annotations
 
 import html
-import json
 import math
 from pathlib import Path
 
@@ -100,13 +99,75 @@ def _section(anchor: str, title: str, body: str) -> str:
 # --------------------------------------------------------------------------- sections
 
 
+#: How "What was asked" words each recorded setting; one not listed shows its key with spaces.
+_SETTING_LABELS = {
+    "data": "table", "response": "response", "predictors": "predictors considered",
+    "forced": "always in every model", "exclude": "left out", "weights": "row weights from column",
+    "missing": "rows with a missing value", "forms": "forms offered",
+    "fractional_polynomials": "fractional-polynomial powers", "shifts": "shift before log or square root",
+    "interactions": "products of two predictors", "response_transform": "response transform",
+    "prefer": "forms preferred on a tie", "twin_limit": "near-duplicate limit (correlation)",
+    "vif_limit": "collinearity limit (VIF)", "curvature_test": "curved forms only where the fit bends",
+    "methods": "searches asked for", "methods_run": "searches run", "method_options": "settings of each search",
+    "criterion": "ranked by", "aim": "aim", "convention": "parameters counted in AIC and BIC",
+    "shortlist_size": "models in the shortlist", "max_delta": "keep models within this distance of the best",
+    "folds": "cross-validation folds", "time_ordered": "rows are in time order",
+    "stability": "bootstrap resamples for stability", "honest_folds": "outer folds for the honest error",
+    "seed": "seed", "time_budget": "time budget", "n_rows": "rows used", "n_terms": "candidate terms",
+    "selectkit_version": "selectkit version",
+}
+#: Words for the values of a few settings.
+_SETTING_VALUES = {
+    "convention": {"sigma-counted": "the coefficients and the error variance (sigma-counted)",
+                   "coefficients-only": "the coefficients only (coefficients-only)"},
+    "missing": {"refuse": "refused: the search stops and lists them", "drop": "dropped"},
+}
+#: Settings whose value 0 means the step was skipped.
+_ZERO_SKIPS = ("stability", "honest_folds")
+
+
+def _setting_words(key: str, value) -> str | None:
+    """One setting as a person would write it; None when it was not set (nothing to show)."""
+    if value is None or (isinstance(value, (str, list, tuple, dict)) and len(value) == 0):
+        return None
+    if key == "data" and value == "<DataFrame>":
+        return "a DataFrame passed in memory"
+    if key in _ZERO_SKIPS and value == 0:
+        return "none (skipped)"
+    if key == "criterion":
+        return str(value).upper() if str(value) in ("aic", "aicc", "bic", "cp", "press") else str(value)
+    if key == "time_budget" and isinstance(value, (int, float)):
+        return f"{value:g} seconds"
+    if key == "interactions" and value is True:
+        return "every pair of numeric predictors"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if key in _SETTING_VALUES and value in _SETTING_VALUES[key]:
+        return _SETTING_VALUES[key][value]
+    if isinstance(value, dict):  # shifts by column; settings of each search
+        parts = []
+        for name, inner in value.items():
+            if isinstance(inner, dict):
+                inside = "; ".join(f"{k} = {_setting_words(str(k), v) or 'none'}" for k, v in inner.items())
+                parts.append(f"{name}: {inside or 'its defaults'}")
+            else:
+                parts.append(f"{name} = {_setting_words(str(name), inner) or 'none'}")
+        return "; ".join(parts)
+    if isinstance(value, (list, tuple)):
+        return ", ".join("*".join(map(str, v)) if isinstance(v, (list, tuple)) else str(v) for v in value)
+    return str(value)
+
+
 def _settings_section(settings) -> str:
     if not settings:
         return "<p class=\"note\">No settings were recorded.</p>"
     rows = []
     for key, value in settings.items():
-        shown = value if isinstance(value, str) else json.dumps(value, default=str, ensure_ascii=False)
-        rows.append({"setting": str(key), "value": shown})
+        shown = _setting_words(str(key), value)
+        if shown is not None:
+            rows.append({"what": _SETTING_LABELS.get(str(key), str(key).replace("_", " ")), "as asked": shown})
+    if not rows:
+        return "<p class=\"note\">No settings were recorded.</p>"
     return _table(pd.DataFrame(rows))
 
 
@@ -228,7 +289,7 @@ def _checks_table(diagnosis) -> str:
             f"<th>source</th></tr></thead><tbody>{''.join(rows)}</tbody></table></div>")
 
 
-def _model_section(position, fit, diagnosis, row) -> str:
+def _model_section(position, fit, diagnosis, row, candidates=None) -> str:
     parts = [f'<p class="equation">{_e(fit.equation)}</p>',
              f"<p>n = {fit.n} rows, k = {fit.k} coefficients, residual standard error {_e(_fmt(fit.sigma))}; "
              f"Δ = {_e(_fmt(row['delta_from_best']))}, model weight {_e(_fmt(row['model_weight']))}, "
@@ -262,16 +323,22 @@ def _model_section(position, fit, diagnosis, row) -> str:
                          + (f"Rows are named {_e(named)}; " if named else "")
                          + "row is the position among the rows used, counting from 0. "
                          "Rows are listed for a check, not removed.</p>")
-        parts.append("<h3>Residual plots</h3>")
-        parts.append(_figure(plots.residual_panel(diagnosis),
-                             "Residuals against fitted values, normal Q-Q, spread against fitted values, "
-                             "Cook's distance."))
-        parts.append(_figure(plots.residuals_vs_terms(diagnosis),
-                             "Residuals against each term: a bend suggests another form of that term."))
+        parts.append("<h3>What the checks look like</h3>")
+        shown = plots.check_figures(diagnosis, candidates)
+        for item in shown:
+            parts.append(_figure(item.figure, item.caption))
+        if candidates is None or not any(item.key == "forms" for item in shown):
+            parts.append(_figure(plots.residuals_vs_terms(diagnosis),
+                                 "Residuals against each numeric column of the model: a bend suggests another "
+                                 "form of that term."))
         if not diagnosis.vif.empty and len(diagnosis.term_vif) > 1:
             parts.append("<h3>Collinearity</h3>"
-                         + _table(diagnosis.term_vif, headers={"gvif": "GVIF", "gvif_per_column": "GVIF^(1/columns)",
-                                                               "columns": "coefficients"}))
+                         + _table(diagnosis.term_vif, headers={"gvif": "GVIF",
+                                                               "gvif_per_column": "scaled GVIF (comparable with a VIF)",
+                                                               "columns": "coefficients"})
+                         + '<p class="note">GVIF: generalised variance inflation of a term\'s coefficients '
+                           "together; scaled GVIF, its root of order the number of coefficients, is the VIF itself "
+                           "for a one-column term and reads on the same scale (Fox &amp; Monette 1992).</p>")
     else:
         parts.append('<p class="note">The assumption checks of this model were not run.</p>')
     return _section(f"model-{position}", f"Answer {position}: {' + '.join(fit.terms) or 'intercept only'}",
@@ -349,7 +416,8 @@ def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnos
     body = [_section(a, t, b) for a, t, b in sections]
     for i, fit in enumerate(shortlist.fits):
         row = shortlist.table.iloc[i]
-        body.append(_model_section(i + 1, fit, diagnoses[i] if i < len(diagnoses) else None, row))
+        body.append(_model_section(i + 1, fit, diagnoses[i] if i < len(diagnoses) else None, row,
+                                   candidates))
     if stability is not None:
         body.append(_section("stability", "Does the choice survive resampling?", _stability_section(stability)))
     if honest is not None:

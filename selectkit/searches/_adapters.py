@@ -13,16 +13,18 @@ import difflib
 
 from ..errors import OptionError
 
-__all__ = ["MODULES", "make_options", "stepwise_criterion"]
+__all__ = ["MODULES", "RENAMED_METHODS", "make_options", "stepwise_criterion"]
 
 MODULES = {
     "exhaustive": "selectkit.searches.exhaustive",
     "forward": "selectkit.searches.stepwise",
     "backward": "selectkit.searches.stepwise",
-    "both": "selectkit.searches.stepwise",
+    "stepwise": "selectkit.searches.stepwise",
     "crossval": "selectkit.searches.crossval",
     "screen": "selectkit.searches.screen",
 }
+#: Former method names, refused with the new spelling.
+RENAMED_METHODS = {"both": "stepwise"}
 
 
 def stepwise_criterion(criterion, aim):
@@ -68,14 +70,21 @@ def make_options(name, user: dict, *, seed, time_budget, exact_limit, folds, cri
     """
     import importlib
 
+    if name in RENAMED_METHODS:
+        raise OptionError(f"search method {name!r} was renamed; did you mean {RENAMED_METHODS[name]!r}?")
     if name not in MODULES:
         raise OptionError(f"unknown search method {name!r}; choose one of {', '.join(MODULES)}")
     module = importlib.import_module(MODULES[name])
     shared = {"seed": seed, "time_budget": time_budget, "folds": folds}
     if name == "exhaustive":
         options = _build(module.ExhaustiveOptions, name, shared, user)
-    elif name in ("forward", "backward", "both"):
-        values = dict(shared, direction=name, criterion=stepwise_criterion(criterion, aim))
+    elif name in ("forward", "backward", "stepwise"):
+        for key in ("direction", "method"):
+            if key in user:
+                wanted = RENAMED_METHODS.get(user[key], user[key])
+                raise OptionError(f"search {name!r} has no setting {key!r}: the method's name says which steps "
+                                  f"are tried; did you mean methods=({wanted!r},)? (forward, backward or stepwise)")
+        values = dict(shared, method=name, criterion=stepwise_criterion(criterion, aim))
         if name == "backward":
             values["starts"] = ("full",)
         options = _build(module.StepwiseOptions, name, values, user)

@@ -458,7 +458,7 @@ def _inner_search(candidates, moments, options: CrossvalOptions) -> Found:
         return exhaustive.merge(candidates, moments, inner, [exhaustive.run_unit(u) for u in units])
     from .stepwise import stepwise_search
 
-    return stepwise_search(candidates, moments, direction="forward", criterion="f_test",
+    return stepwise_search(candidates, moments, method="forward", criterion="f_test",
                            alpha_enter=_PATH_ALPHA, alpha_remove=_PATH_ALPHA, swaps=False,
                            forced=options.forced, forbidden=options.forbidden, hierarchy=options.hierarchy,
                            max_steps=options.max_size)
@@ -772,7 +772,7 @@ def _procedure_unit(payload):
             "test_mse": float(mse)}
 
 
-def procedure_cv_error(candidates, runner, *, criterion="bic", convention="selectkit", folds=5, seed=0,
+def procedure_cv_error(candidates, runner, *, criterion="bic", convention="sigma-counted", folds=5, seed=0,
                        moments=None, naive_error=float("nan"), procedure="the searches and ranking",
                        n_jobs=1, backend="loky", scheduler=None, deadline=None) -> NestedResult | None:
     """Honest prediction error of a whole search-and-rank procedure by outer cross-validation.

@@ -211,7 +211,7 @@ def _forward_entry(candidates, moments, free, forced, forbidden, hierarchy, limi
 
     terms = candidates.terms
     found = stepwise_search(
-        candidates, moments, direction="forward", criterion="f_test", alpha_enter=0.9999, alpha_remove=0.9999,
+        candidates, moments, method="forward", criterion="f_test", alpha_enter=0.9999, alpha_remove=0.9999,
         swaps=False, forced=tuple(terms[i].name for i in forced), forbidden=tuple(terms[i].name for i in forbidden),
         hierarchy=hierarchy, max_steps=limit, time_budget=None if deadline is None else deadline.search_budget(),
     )
@@ -522,7 +522,7 @@ def merge(candidates, moments, options: ScreenOptions, results) -> list[Found]:
         names = [t.name for t in candidates.terms]
         start = _winner(exact_found, names, options.criterion)
         polished = stepwise_search(
-            candidates, moments, direction="both", criterion=options.criterion,
+            candidates, moments, method="stepwise", criterion=options.criterion,
             start=tuple(names[i] for i in start), forced=options.forced, forbidden=options.forbidden,
             hierarchy=options.hierarchy,
             time_budget=None if options.deadline is None else options.deadline.search_budget(),

@@ -18,8 +18,9 @@ Moves
     the family stays in the model.  Swaps are offered in every direction when
     ``swaps=True``.  A forced term is neither dropped nor swapped out.
 
-``direction="forward"`` offers adds (and swaps), ``"backward"`` drops (and
-swaps), ``"both"`` all three.
+``method="forward"`` (forward selection) offers adds (and swaps),
+``"backward"`` (backward elimination) drops (and swaps), ``"stepwise"`` all
+three: steps both ways.
 
 Rules for choosing a move
 -------------------------
@@ -78,9 +79,12 @@ from ..moments import moments_of
 from ..parallel import WorkUnit, run_units
 from ._found import Found
 
-__all__ = ["StepwiseOptions", "DIRECTIONS", "STEP_CRITERIA", "plan", "run_unit", "merge", "stepwise_search"]
+__all__ = ["StepwiseOptions", "STEP_METHODS", "RENAMED_STEP_METHODS", "STEP_CRITERIA", "plan", "run_unit", "merge", "stepwise_search"]
 
-DIRECTIONS = ("forward", "backward", "both")
+#: Which steps a search tries: adds only, drops only, or both ways ("stepwise").
+STEP_METHODS = ("forward", "backward", "stepwise")
+#: Former spellings, refused with the new one.
+RENAMED_STEP_METHODS = {"both": "stepwise"}
 STEP_CRITERIA = ("aic", "aicc", "bic", "f_test")
 START_NAMES = ("empty", "full")
 _CRITERION_FUNCTIONS = {"aic": criteria.aic, "aicc": criteria.aicc, "bic": criteria.bic}
@@ -95,7 +99,9 @@ class StepwiseOptions:
 
     Attributes
     ----------
-    direction : {"forward", "backward", "both"}
+    method : {"forward", "backward", "stepwise"}
+        Adds only (forward selection), drops only (backward elimination), or
+        both ways (stepwise); swaps are offered by all three.
     criterion : {"aic", "aicc", "bic", "f_test"}
     alpha_enter, alpha_remove : float
         Significance levels of the partial F-test (``criterion="f_test"`` only);
@@ -115,14 +121,14 @@ class StepwiseOptions:
         Respect ``Term.requires``.
     max_steps : int or None
         Upper limit on moves per start; ``None`` means ``4 × terms + 10``.
-    convention : {"selectkit", "statsmodels"}
+    convention : {"sigma-counted", "coefficients-only"}
         Parameter count of the criterion (see :mod:`selectkit.criteria`).
     time_budget : float or None
         Seconds per start; when reached the path stops where it is (and says
         so).  A path cut by the clock may differ between runs.
     """
 
-    direction: str = "both"
+    method: str = "stepwise"
     criterion: str = "aic"
     alpha_enter: float = 0.15
     alpha_remove: float = 0.15
@@ -132,12 +138,15 @@ class StepwiseOptions:
     forbidden: tuple[str, ...] = ()
     hierarchy: bool = True
     max_steps: int | None = None
-    convention: str = "selectkit"
+    convention: str = "sigma-counted"
     time_budget: float | None = None
 
     def __post_init__(self):
-        if self.direction not in DIRECTIONS:
-            raise OptionError(f"unknown stepwise direction {self.direction!r}; choose one of {', '.join(DIRECTIONS)}")
+        if self.method in RENAMED_STEP_METHODS:
+            raise OptionError(f"stepwise method {self.method!r} was renamed; "
+                              f"did you mean {RENAMED_STEP_METHODS[self.method]!r}?")
+        if self.method not in STEP_METHODS:
+            raise OptionError(f"unknown stepwise method {self.method!r}; choose one of {', '.join(STEP_METHODS)}")
         crit = str(self.criterion).lower()
         if crit not in STEP_CRITERIA:
             raise OptionError(f"unknown stepwise criterion {self.criterion!r}; choose one of {', '.join(STEP_CRITERIA)}")
@@ -158,10 +167,7 @@ class StepwiseOptions:
             and self.time_budget > 0
         ):
             raise OptionError(f"time_budget must be None or a positive number of seconds (got {self.time_budget!r})")
-        if self.convention not in criteria.CONVENTIONS:
-            raise OptionError(
-                f"unknown criterion convention {self.convention!r}; choose one of {', '.join(criteria.CONVENTIONS)}"
-            )
+        criteria.check_convention(self.convention)
         starts = self.starts
         if isinstance(starts, str):
             starts = (starts,)
@@ -317,8 +323,8 @@ def _admissible_moves(problem, model):
     in_model = set(model)
     fams_in = {problem.families[i]: i for i in model}
     moves = []
-    allow_add = opts.direction in ("forward", "both")
-    allow_drop = opts.direction in ("backward", "both")
+    allow_add = opts.method in ("forward", "stepwise")
+    allow_drop = opts.method in ("backward", "stepwise")
 
     def requires_ok(term, families):
         return not opts.hierarchy or all(r in families for r in problem.requires[term])
@@ -573,16 +579,16 @@ def merge(candidates, moments, options: StepwiseOptions, results: Sequence[dict]
 
     ``details`` holds ``path`` (the first start's path), ``runs`` (per start:
     ``start``, ``path``, ``final``, ``final_terms``, ``stopped_by``),
-    ``final`` (the final subset of each start), ``criterion`` and ``direction``.
+    ``final`` (the final subset of each start), ``criterion`` and ``method``.
     """
     n = int(moments.n) if moments is not None else int(np.asarray(candidates.y).shape[0])
     missing = sum(r is None for r in results)
     results = [r for r in results if r is not None]  # units that did not finish (a stopped job)
     if not results:
-        return Found(method=options.direction, subsets=(), rss=np.zeros(0), k=np.zeros(0, dtype=np.int64), n=n,
+        return Found(method=options.method, subsets=(), rss=np.zeros(0), k=np.zeros(0, dtype=np.int64), n=n,
                      exact=False, stopped_by="stopped before any start finished",
                      details=MappingProxyType({"path": (), "runs": (), "final": (), "criterion": options.criterion,
-                                               "direction": options.direction}))
+                                               "method": options.method}))
     subsets, rss, ks, index = [], [], [], {}
     for res in results:
         for model, r, k in res["visited"]:
@@ -601,11 +607,11 @@ def merge(candidates, moments, options: StepwiseOptions, results: Sequence[dict]
     reasons = [f"{r['start']}: {r['stopped_by']}" for r in results]
     details = MappingProxyType({
         "path": runs[0]["path"], "runs": runs, "final": tuple(r["final"] for r in runs),
-        "criterion": options.criterion, "direction": options.direction,
+        "criterion": options.criterion, "method": options.method,
         "alpha_enter": options.alpha_enter, "alpha_remove": options.alpha_remove,
     })
     return Found(
-        method=options.direction, subsets=tuple(subsets), rss=np.array(rss, dtype=float),
+        method=options.method, subsets=tuple(subsets), rss=np.array(rss, dtype=float),
         k=np.array(ks, dtype=np.int64), n=n,
         evaluated=sum(r["evaluated"] for r in results), singular=sum(r["singular"] for r in results),
         exact=False,
@@ -615,11 +621,22 @@ def merge(candidates, moments, options: StepwiseOptions, results: Sequence[dict]
     )
 
 
+def _refuse_retired(retired: dict, where: str) -> None:
+    """Refuse keywords that are no longer settings, naming what replaced them."""
+    if "direction" in retired:
+        old = retired["direction"]
+        new = RENAMED_STEP_METHODS.get(old, old if old in STEP_METHODS else "stepwise")
+        raise OptionError(f"{where} has no setting 'direction' any more; did you mean method={new!r}? "
+                          f"(methods: {', '.join(STEP_METHODS)})")
+    if retired:
+        raise TypeError(f"{where}() got unexpected keyword argument(s) {', '.join(map(repr, retired))}")
+
+
 def stepwise_search(
     candidates,
     moments=None,
     *,
-    direction: str = "both",
+    method: str = "stepwise",
     criterion: str = "aic",
     alpha_enter: float = 0.15,
     alpha_remove: float = 0.15,
@@ -630,11 +647,12 @@ def stepwise_search(
     forbidden: Sequence[str] = (),
     hierarchy: bool = True,
     max_steps: int | None = None,
-    convention: str = "selectkit",
+    convention: str = "sigma-counted",
     time_budget: float | None = None,
     n_jobs: int = 1,
     backend: str = "loky",
     scheduler: str | None = None,
+    **retired,
 ) -> Found:
     """Stepwise selection on the moments with one-column (or one-block) sweeps.
 
@@ -643,7 +661,9 @@ def stepwise_search(
     candidates : CandidateSet
     moments : Moments, optional
         Computed from ``candidates`` when omitted (one pass over the data).
-    direction : {"forward", "backward", "both"}
+    method : {"forward", "backward", "stepwise"}, default "stepwise"
+        Forward selection (adds), backward elimination (drops) or stepwise
+        (steps both ways).
     criterion : {"aic", "aicc", "bic", "f_test"}
         AIC/AICc/BIC as defined in :mod:`selectkit.criteria` (``k`` counts the
         intercept; σ² is counted too under the default convention), or the
@@ -664,7 +684,7 @@ def stepwise_search(
         Respect ``Term.requires``.
     max_steps : int, optional
         Default ``4 × number of terms + 10`` per start.
-    convention : {"selectkit", "statsmodels"}
+    convention : {"sigma-counted", "coefficients-only"}
     time_budget : float, optional
         Seconds per start.
     n_jobs, backend, scheduler
@@ -673,7 +693,7 @@ def stepwise_search(
     Returns
     -------
     Found
-        ``method`` is the direction; every model on the path(s) with its rss
+        ``method`` is the one asked for; every model on the path(s) with its rss
         and k; ``details["path"]`` lists each step (move, term, criterion
         before/after, F and p for the F-test) and ``stopped_by`` says why it
         ended.
@@ -684,12 +704,13 @@ def stepwise_search(
     >>> from tests.factories import make_candidates
     >>> rng = np.random.default_rng(0)
     >>> X = rng.normal(size=(80, 4)); y = 2 * X[:, 1] + rng.normal(size=80)
-    >>> found = stepwise_search(make_candidates(X, y), direction="forward")
+    >>> found = stepwise_search(make_candidates(X, y), method="forward")
     >>> found.details["path"][1]["term"]
     'x1'
     """
+    _refuse_retired(retired, "stepwise_search")
     options = StepwiseOptions(
-        direction=direction, criterion=criterion, alpha_enter=alpha_enter, alpha_remove=alpha_remove,
+        method=method, criterion=criterion, alpha_enter=alpha_enter, alpha_remove=alpha_remove,
         starts=tuple(starts) if starts is not None else (start if isinstance(start, str) else tuple(start),),
         swaps=swaps, forced=tuple(forced), forbidden=tuple(forbidden), hierarchy=hierarchy,
         max_steps=max_steps, convention=convention, time_budget=time_budget,

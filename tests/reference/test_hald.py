@@ -47,7 +47,7 @@ def _r2(found, subset, y):
 
 def test_forward_by_partial_f_enters_x4_first(hald):
     X, y, cand = hald
-    found = stepwise_search(cand, direction="forward", criterion="f_test", alpha_enter=0.10, alpha_remove=0.10)
+    found = stepwise_search(cand, method="forward", criterion="f_test", alpha_enter=0.10, alpha_remove=0.10)
     path = found.details["path"]
     assert path[1]["move"] == "add" and path[1]["term"] == "x4"
     # R² of x4 alone: 0.675 (Draper & Smith, from memory)
@@ -60,7 +60,7 @@ def test_forward_by_partial_f_enters_x4_first(hald):
 
 def test_stepwise_alpha_010_ends_with_x1_x2(hald):
     X, y, cand = hald
-    found = stepwise_search(cand, direction="both", criterion="f_test", alpha_enter=0.10, alpha_remove=0.10)
+    found = stepwise_search(cand, method="stepwise", criterion="f_test", alpha_enter=0.10, alpha_remove=0.10)
     path = found.details["path"]
     # Published sequence (Draper & Smith, Ch. 15): x4 in, x1 in, x2 in, x4 out.
     moves = [(s["move"], s["term"]) for s in path[1:]]
@@ -85,7 +85,7 @@ def test_best_two_and_best_one_by_enumeration(hald):
     assert best[1][0] == (3,) and best[1][1] == pytest.approx(0.675, abs=1e-3)  # published 0.675
     assert best[2][0] == (0, 1) and best[2][1] == pytest.approx(0.979, abs=1e-3)  # published 0.979
     # The sweep-based path visits both models with the same rss as statsmodels.
-    found = stepwise_search(cand, direction="both", criterion="f_test", alpha_enter=0.10, alpha_remove=0.10)
+    found = stepwise_search(cand, method="stepwise", criterion="f_test", alpha_enter=0.10, alpha_remove=0.10)
     tss = compute_moments(X, y).tss
     for subset, r2 in ((best[1][0], best[1][1]), (best[2][0], best[2][1])):
         assert 1 - found.rss[found.subsets.index(subset)] / tss == pytest.approx(r2, rel=1e-10)
@@ -93,7 +93,7 @@ def test_best_two_and_best_one_by_enumeration(hald):
 
 def test_backward_aic_from_full_matches_statsmodels_aic(hald):
     X, y, cand = hald
-    found = stepwise_search(cand, direction="backward", start="full", criterion="aic", convention="statsmodels")
+    found = stepwise_search(cand, method="backward", start="full", criterion="aic", convention="coefficients-only")
     for step in found.details["path"]:
         cols = [NAMES.index(t) for t in step["terms_after"]]
         ref = sm.OLS(y, sm.add_constant(X[:, cols]) if cols else np.ones((13, 1))).fit()

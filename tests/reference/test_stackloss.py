@@ -33,13 +33,13 @@ def test_full_model_coefficients_published(data):
     # Brownlee (1965): -39.92, 0.7156, 1.2953, -0.1521
     np.testing.assert_allclose(fit.params, [-39.92, 0.7156, 1.2953, -0.1521], atol=6e-3)
     # the swept moments give the same rss for the full model
-    found = stepwise_search(cand, direction="backward", start="full")
+    found = stepwise_search(cand, method="backward", start="full")
     assert found.rss[0] == pytest.approx(fit.ssr, rel=1e-10)
 
 
 def test_backward_aic_drops_acidconc_first(data):
     X, y, cand = data
-    found = stepwise_search(cand, direction="backward", start="full", criterion="aic")
+    found = stepwise_search(cand, method="backward", start="full", criterion="aic")
     path = found.details["path"]
     assert path[1]["move"] == "drop" and path[1]["term"] == "ACIDCONC"
     # Independent check: statsmodels refits of each one-term-dropped model.
@@ -59,7 +59,7 @@ def test_backward_aic_drops_acidconc_first(data):
 
 def test_bic_and_aicc_values_come_from_criteria_module(data):
     X, y, cand = data
-    found = stepwise_search(cand, direction="backward", start="full", criterion="bic")
+    found = stepwise_search(cand, method="backward", start="full", criterion="bic")
     n = len(y)
     for step in found.details["path"]:
         assert step["criterion_after"] == pytest.approx(float(criteria.bic(step["rss_after"], n, step["k_after"])))
