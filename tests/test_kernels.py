@@ -155,3 +155,44 @@ def test_all_subsets_rss_refuses_a_singular_set():
     X = np.column_stack([X, X[:, 0] + X[:, 1]])
     A, _ = scaled_cross(compute_moments(X, y).cross)
     assert (all_subsets_rss(A, np.arange(8, dtype=np.int64), PIVOT_TOLERANCE) == -1.0).all()
+
+
+def test_border_each_scores_every_one_column_extension_like_numpy():
+    # the branch and bound's last level: F + t for every free single-column term t
+    from selectkit.kernels.subsets import _border_each
+
+    X, y, _ = _problem(p=7, seed=3)
+    X[:, 6] = X[:, 0] - 2.0 * X[:, 2]  # a combination of F: singular, never scored
+    A, _ = scaled_cross(compute_moments(X, y).cross)
+    cols = np.arange(7, dtype=np.int64)
+    L, _ = factor_columns(A, cols[:3], PIVOT_TOLERANCE)
+    n_best, sizes = 10, 5
+    best_rss = np.full((sizes, n_best), np.inf)
+    best_mask = np.zeros((sizes, n_best), dtype=np.uint64)
+    best_count = np.zeros(sizes, dtype=np.int64)
+    thr = np.full(sizes, np.inf)
+    counts = np.zeros(3, dtype=np.int64)
+    ones = np.ones(7, dtype=np.int64)
+    _border_each(A, L, cols, np.arange(8, dtype=np.int64), cols, 3, 7, 3, ones, cols,
+                 np.zeros(7, dtype=np.uint64), np.uint64(1) << cols.astype(np.uint64), PIVOT_TOLERANCE,
+                 thr, thr.copy(), best_rss, best_mask, best_count, n_best, counts, np.zeros(8))
+    assert counts[0] == 3 and counts[1] == 1
+    want = sorted(reference_rss(X, y, [0, 1, 2, t]) for t in (3, 4, 5))
+    np.testing.assert_allclose(best_rss[4, :3], want, rtol=1e-10)
+    assert best_count[4] == 3
+
+
+def test_inverse_increase_is_the_extra_sum_of_squares():
+    # β_Bᵀ (M_BB)⁻¹ β_B with M = G⁻¹ equals rss(S without B) − rss(S), by numpy lstsq
+    from selectkit.kernels.subsets import _inverse_increase
+
+    X, y, A = _problem(p=6, seed=4)
+    G = A[:6, :6]
+    M = np.linalg.inv(G)
+    beta = M @ A[:6, 6]
+    full = reference_rss(X, y, list(range(6)))
+    for block in ([2], [0, 3], [1, 4, 5]):
+        slots = np.asarray(block, dtype=np.int64)
+        rise = _inverse_increase(M, beta, slots, len(block), np.zeros((6, 6)), np.zeros(6))
+        rest = [j for j in range(6) if j not in block]
+        assert rise == pytest.approx(reference_rss(X, y, rest) - full, rel=1e-9)

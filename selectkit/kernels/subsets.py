@@ -41,6 +41,10 @@ Golub, G. H. and Van Loan, C. F. (2013). Matrix Computations, 4th ed., §4.2
 Gatu, C. and Kontoghiorghes, E. J. (2006). Branch-and-bound algorithms for
     computing the best-subset regression models. J. Comput. Graph. Statist.
     15(1), 139-156.
+Goodnight, J. H. (1979). A tutorial on the SWEEP operator. The American
+    Statistician 33(3), 149-158.
+Higham, N. J. (2002). Accuracy and Stability of Numerical Algorithms, 2nd ed.,
+    ch. 10 (Cholesky factorisation of positive definite matrices).  SIAM.
 """
 
 from __future__ import annotations
@@ -57,12 +61,21 @@ __all__ = [
     "branch_and_bound",
     "all_subsets_rss",
     "PRUNE_SLACK",
+    "DOWNDATE_LIMIT",
 ]
 
 #: Relative slack of the pruning test: a subtree is cut only when its bound
 #: exceeds the threshold by more than this fraction, so that rounding in the
 #: bound (computed in another column order) can never cut a qualifying model.
 PRUNE_SLACK = 1e-9
+
+#: The branch and bound downdates a node's inverse from its parent's while
+#: (columns removed since the last fresh factorisation + 1) × (largest diagonal
+#: entry of that factorisation's inverse, a variance inflation factor) stays at
+#: most this; beyond it the node is refactored.  Rounding in the Schur steps
+#: grows about like that product times the unit roundoff, so the rss used as a
+#: bound stays within about 1e-12 relative, far inside ``PRUNE_SLACK``.
+DOWNDATE_LIMIT = 4096.0
 
 
 def scaled_cross(cross):
@@ -409,6 +422,68 @@ def _drop_increase(W, L, c, fw, q, idx, nidx, G, bvec):
 
 
 @njit(cache=True)
+def _inverse_increase(M, beta, slots, nidx, G, bvec):
+    """Rise in rss when the columns at ``slots[:nidx]`` are removed: β_Bᵀ (M_BB)⁻¹ β_B."""
+    if nidx == 1:
+        a = slots[0]
+        return beta[a] * beta[a] / M[a, a]
+    for u in range(nidx):
+        bvec[u] = beta[slots[u]]
+        for v in range(nidx):
+            G[u, v] = M[slots[u], slots[v]]
+    return _small_quadratic(G, bvec, nidx)
+
+
+@njit(cache=True)
+def _border_each(A, L, cols, col_start, terms, k, n_s, fw, t_width, t_fam, t_req, t_bit,
+                 tol, thr, init_thr, best_rss, best_mask, best_count, n_best, counts, row):
+    """Score F + t for every single-column free term t, F = the ``fw`` fixed columns.
+
+    ``L`` holds the factor of F with the response in row ``fw``; each model costs
+    one forward substitution (O(fw²)): rss(F + t) = rss(F) − z_t², with z_t the
+    response's coordinate along t orthogonalised against F.  A pivot at or
+    below the tolerance counts the model as singular, as in the factor of F + t.
+    """
+    yi = A.shape[0] - 1
+    fam_f = np.uint64(0)
+    req_f = np.uint64(0)
+    mask_f = np.uint64(0)
+    for i in range(k):
+        t = terms[i]
+        fam_f |= np.uint64(1) << np.uint64(t_fam[t])
+        req_f |= t_req[t]
+        mask_f |= t_bit[t]
+    rss_f = L[fw, fw]
+    size = fw + 1
+    for i in range(k, n_s):
+        t = terms[i]
+        if t_width[t] != 1:
+            continue
+        fams = fam_f | (np.uint64(1) << np.uint64(t_fam[t]))
+        if ((req_f | t_req[t]) & ~fams) != np.uint64(0):
+            continue
+        j = cols[col_start[i]]
+        d = A[j, j]
+        zj = A[j, yi]
+        for l in range(fw):
+            s = A[cols[l], j]
+            for m in range(l):
+                s -= L[l, m] * row[m]
+            row[l] = s / L[l, l]
+            d -= row[l] * row[l]
+            zj -= row[l] * L[fw, l]
+        if A[j, j] <= 0.0 or d <= tol * A[j, j]:
+            counts[1] += 1
+            continue
+        counts[0] += 1
+        r = rss_f - zj * zj / d
+        if r < 0.0:
+            r = 0.0
+        if r <= thr[size] * (1.0 + PRUNE_SLACK) or best_count[size] < n_best:
+            _insert(best_rss, best_mask, best_count, thr, init_thr, size, r, mask_f | t_bit[t], n_best)
+
+
+@njit(cache=True)
 def _order_before(a, b, tier, fam_inc, inc):
     if tier[a] != tier[b]:
         return tier[a] < tier[b]
@@ -421,7 +496,8 @@ def _order_before(a, b, tier, fam_inc, inc):
 def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, tol,
                      init_thr, thr, best_rss, best_mask, best_count,
                      st_terms, st_len, st_k, st_bound, st_root, top_arr,
-                     counts, pruned_count, node_budget, family_tiers):
+                     counts, pruned_count, node_budget, family_tiers,
+                     st_level, lvl_M, lvl_beta, lvl_rss, lvl_ok, lvl_vif, lvl_r, lvl_in):
     """Run up to ``node_budget`` nodes of the depth-first best-subset search.
 
     The tree is the dropping-columns tree of Gatu & Kontoghiorghes (2006) over
@@ -436,8 +512,33 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
     free terms are ordered by decreasing increase (most important first) so
     that the large subtrees get the high bounds.
 
+    A node's rss and the increases of its free terms come from its parent's
+    by downdating: every level of the depth-first path keeps the inverse of
+    the conditional Gram matrix of its free columns, ``M = (G⁻¹)_ff``, the
+    coefficients ``β`` and the rss of its full list, and a child removes its
+    dropped columns from them by Schur-complement steps (the reverse sweep;
+    Goodnight 1979): for a removed column ``e``, ``M ← M − M[:, e] M[e, :] / M[e, e]``,
+    ``β ← β − M[:, e] β_e / M[e, e]`` and ``rss ← rss + β_e² / M[e, e]``, O(q²)
+    instead of the O(c³) of a fresh factorisation.  Only the leading columns
+    that are recorded (at most ``max_size``) are factored by Cholesky.  A
+    level is refactored from scratch (and becomes the base of the levels
+    below it) when the downdates could lose accuracy: when
+    (removed columns since the base + 1) × max diag(M) of the base exceeds
+    ``DOWNDATE_LIMIT`` (the largest variance inflation factor bounds the
+    growth of rounding errors in the Schur steps, Higham 2002 §10.1), and
+    whenever the node's columns are numerically singular (pivot tolerance).
+    A node with room for one more column only (its subtree is the models
+    F + t of its fixed columns F and one free single-column term t) scores
+    those models directly, one forward substitution against F's factor each
+    (:func:`_border_each`), instead of walking them one node per model; they
+    count as evaluated.  Children are pushed so that the one fixing the most
+    important terms is searched first, which lowers the thresholds early.
+
     State lives in the arrays passed in, so a search can stop after
-    ``node_budget`` nodes (a time budget) and be resumed by calling again.
+    ``node_budget`` nodes (a time budget) and be resumed by calling again:
+    the stack (``st_*``, with each node's depth in ``st_level``) and the
+    per-depth downdate state (``lvl_*``; ``lvl_in[d, t]`` marks the terms of
+    the node last evaluated at depth ``d``).
     Compiled without the GIL, so units run in parallel on the threading backend.
 
     Returns
@@ -452,6 +553,7 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
     L = np.zeros((total_cols + 1, total_cols + 1))
     skipped = np.zeros(total_cols + 1, dtype=np.bool_)
     cols = np.zeros(total_cols, dtype=np.int64)
+    row = np.zeros(total_cols + 1)
     col_start = np.zeros(n_terms + 1, dtype=np.int64)  # first column of each position
     suffix = np.zeros(total_cols + 1)
     inc = np.zeros(n_terms)
@@ -465,6 +567,13 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
     idx = np.zeros(total_cols + 1, dtype=np.int64)
     fam_inc = np.zeros(n_terms)
     tier = np.zeros(n_terms, dtype=np.int64)
+    t_off = np.zeros(n_terms + 1, dtype=np.int64)  # first slot of each term in the level state
+    for t in range(n_terms):
+        t_off[t + 1] = t_off[t] + t_width[t]
+    pos_slot = np.zeros(total_cols + 1, dtype=np.int64)  # slot of each column of the node's layout
+    slots = np.zeros(total_cols + 1, dtype=np.int64)
+    node_in = np.zeros(n_terms, dtype=np.bool_)
+    fam_members = np.zeros(n_terms + 64, dtype=np.int64)
     nodes = 0
     while top_arr[0] >= 0 and nodes < node_budget:
         nodes += 1
@@ -483,6 +592,7 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
             t = terms[i]
             for q in range(t_width[t]):
                 cols[c] = t_cols[t, q]
+                pos_slot[c] = t_off[t] + q
                 c += 1
         col_start[n_s] = c
         fw = col_start[k]
@@ -496,10 +606,116 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
         if not is_root and _prunable(bound, thr, lo, hi):
             pruned_count[0] += _family_count(terms, k, n_s, t_fam, scratch)
             continue
-        _factor_into(A, cols, c, L, skipped, 0, tol)
+        level = st_level[top]
+        if not is_root and hi == fw + 1:
+            # room for one more column only: the subtree is the models F + t for
+            # the single-column free terms t; score each by bordering F's factor
+            _factor_into(A, cols, fw, L, skipped, 0, tol)
+            fixed_singular = False
+            for j in range(fw):
+                if skipped[j]:
+                    fixed_singular = True
+            if fixed_singular:
+                pruned_count[1] += _family_count(terms, k, n_s, t_fam, scratch)
+                continue
+            _border_each(A, L, cols, col_start, terms, k, n_s, fw, t_width, t_fam, t_req, t_bit,
+                         tol, thr, init_thr, best_rss, best_mask, best_count, n_best, counts, row)
+            continue
+        # downdate from the parent's level when it holds a usable inverse
+        use_down = False
+        if not is_root and lvl_ok[level - 1]:
+            pl = level - 1
+            for t in range(n_terms):
+                node_in[t] = False
+            for i in range(n_s):
+                node_in[terms[i]] = True
+            n_p = 0
+            for i in range(k, n_s):
+                t = terms[i]
+                for q in range(t_width[t]):
+                    slots[n_p] = t_off[t] + q
+                    n_p += 1
+            n_keep = n_p
+            for t in range(n_terms):
+                if lvl_in[pl, t] and not node_in[t]:
+                    for q in range(t_width[t]):
+                        slots[n_p] = t_off[t] + q
+                        n_p += 1
+            n_removed = n_p - n_keep
+            if (lvl_r[pl] + n_removed + 1) * lvl_vif[pl] <= DOWNDATE_LIMIT:
+                Mp = lvl_M[pl]
+                Mc = lvl_M[level]
+                bp = lvl_beta[pl]
+                bc = lvl_beta[level]
+                # the first removal reads the parent's level and writes this one
+                e = slots[n_keep]
+                d = Mp[e, e]
+                use_down = d > 0.0
+                if use_down:
+                    be = bp[e]
+                    rss_down = lvl_rss[pl] + be * be / d
+                    for ua in range(n_p):
+                        if ua == n_keep:
+                            continue
+                        sa = slots[ua]
+                        f = Mp[sa, e] / d
+                        bc[sa] = bp[sa] - f * be
+                        for ub in range(n_p):
+                            if ub == n_keep:
+                                continue
+                            sb = slots[ub]
+                            Mc[sa, sb] = Mp[sa, sb] - f * Mp[e, sb]
+                # further removals (family forms set aside, block columns) in place
+                for ep in range(n_keep + 1, n_p):
+                    if not use_down:
+                        break
+                    e = slots[ep]
+                    d = Mc[e, e]
+                    if not d > 0.0:
+                        use_down = False
+                        break
+                    be = bc[e]
+                    rss_down += be * be / d
+                    for ua in range(n_p):
+                        if ua >= n_keep and ua <= ep:
+                            continue
+                        sa = slots[ua]
+                        f = Mc[sa, e] / d
+                        if f == 0.0:
+                            continue
+                        bc[sa] -= f * be
+                        for ub in range(n_p):
+                            if ub >= n_keep and ub <= ep:
+                                continue
+                            sb = slots[ub]
+                            Mc[sa, sb] -= f * Mc[e, sb]
+                if use_down:
+                    lvl_ok[level] = True
+                    lvl_rss[level] = rss_down
+                    lvl_vif[level] = lvl_vif[pl]
+                    lvl_r[level] = lvl_r[pl] + n_removed
+                    for t in range(n_terms):
+                        lvl_in[level, t] = node_in[t]
+        if use_down:
+            # factor only the leading columns that can be recorded
+            fam_acc = np.uint64(0)
+            n_f = 0
+            for i in range(n_s + 1):
+                if col_start[i] > max_size:
+                    break
+                n_f = col_start[i]
+                if i == n_s:
+                    break
+                fb = np.uint64(1) << np.uint64(t_fam[terms[i]])
+                if fam_acc & fb:
+                    break
+                fam_acc |= fb
+        else:
+            n_f = c
+        _factor_into(A, cols, n_f, L, skipped, 0, tol)
         fixed_singular = False
         any_skipped = False
-        for j in range(c):
+        for j in range(n_f):
             if skipped[j]:
                 any_skipped = True
                 if j < fw:
@@ -507,14 +723,14 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
         if fixed_singular:
             pruned_count[1] += _family_count(terms, k, n_s, t_fam, scratch) + (1.0 if is_root else 0.0)
             continue
-        rss_all = L[c, c]
+        rss_all = lvl_rss[level] if use_down else L[c, c]
         if not is_root and _prunable(rss_all, thr, lo, hi):
             pruned_count[0] += _family_count(terms, k, n_s, t_fam, scratch)
             continue
         # rss of every leading subset
-        suffix[c] = rss_all
-        for l in range(c - 1, -1, -1):
-            z = L[c, l]
+        suffix[n_f] = L[n_f, n_f]
+        for l in range(n_f - 1, -1, -1):
+            z = L[n_f, l]
             suffix[l] = suffix[l + 1] + z * z
         fam_acc = np.uint64(0)
         req_acc = np.uint64(0)
@@ -542,14 +758,49 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
             fam_acc |= fb
             req_acc |= t_req[t]
             mask |= t_bit[t]
-            for j in range(col_start[i], col_start[i + 1]):
+            for j in range(col_start[i], min(col_start[i + 1], n_f)):
                 if skipped[j]:
                     singular = True
         # exact increase of rss when dropping each free term
         for i in range(k, n_s):
             inc[i] = 0.0
             fam_inc[i] = 0.0
-        if not any_skipped and n_s - k > 1:
+            fam_members[t_fam[terms[i]]] = 0
+        for i in range(k, n_s):
+            fam_members[t_fam[terms[i]]] += 1
+        if not use_down:
+            lvl_ok[level] = False
+        if use_down and n_s - k > 1:
+            for i in range(k, n_s):
+                t = terms[i]
+                for q in range(t_width[t]):
+                    idx[q] = t_off[t] + q
+                inc[i] = _inverse_increase(lvl_M[level], lvl_beta[level], idx, t_width[t], G, bvec)
+            if family_tiers:
+                for i in range(k, n_s):
+                    fam_inc[i] = -1.0
+                for i in range(k, n_s):
+                    if fam_inc[i] >= 0.0:
+                        continue
+                    f = t_fam[terms[i]]
+                    if fam_members[f] == 1:
+                        fam_inc[i] = inc[i]
+                        continue
+                    nidx = 0
+                    members = 0
+                    for p in range(k, n_s):
+                        if t_fam[terms[p]] == f:
+                            members += 1
+                            t = terms[p]
+                            for q in range(t_width[t]):
+                                idx[nidx] = t_off[t] + q
+                                nidx += 1
+                    value = inc[i] if members == 1 else _inverse_increase(
+                        lvl_M[level], lvl_beta[level], idx, nidx, G, bvec)
+                    for p in range(k, n_s):
+                        if t_fam[terms[p]] == f:
+                            fam_inc[p] = value
+        elif not any_skipped and n_s - k > 0:
             q = c - fw
             # W = inverse of the trailing lower block L[fw:c, fw:c]
             for jj in range(q):
@@ -562,37 +813,72 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
                     for l in range(jj, ii):
                         s += L[fw + ii, fw + l] * W[l, jj]
                     W[ii, jj] = -s / L[fw + ii, fw + ii]
-            for i in range(k, n_s):
-                nidx = 0
-                for j in range(col_start[i], col_start[i + 1]):
-                    idx[nidx] = j - fw
-                    nidx += 1
-                inc[i] = _drop_increase(W, L, c, fw, q, idx, nidx, G, bvec)
-            if family_tiers:
-                # increase when dropping every form of a variable at once
+            # keep M = WᵀW (the inverse of the free block given the fixed) and β = Wᵀz
+            # for the children to downdate, when they can do so accurately
+            vif = 0.0
+            for jj in range(q):
+                s = 0.0
+                for l in range(jj, q):
+                    s += W[l, jj] * W[l, jj]
+                if s > vif:
+                    vif = s
+            if 2.0 * vif <= DOWNDATE_LIMIT:
+                for jj in range(q):
+                    sj = pos_slot[fw + jj]
+                    bsum = 0.0
+                    for l in range(jj, q):
+                        bsum += W[l, jj] * L[c, fw + l]
+                    lvl_beta[level, sj] = bsum
+                    for ii in range(jj, q):
+                        s = 0.0
+                        for l in range(ii, q):
+                            s += W[l, ii] * W[l, jj]
+                        si = pos_slot[fw + ii]
+                        lvl_M[level, si, sj] = s
+                        lvl_M[level, sj, si] = s
+                lvl_ok[level] = True
+                lvl_rss[level] = rss_all
+                lvl_vif[level] = vif
+                lvl_r[level] = 0
+                for t in range(n_terms):
+                    lvl_in[level, t] = False
+                for i in range(n_s):
+                    lvl_in[level, terms[i]] = True
+            if n_s - k > 1:
                 for i in range(k, n_s):
-                    fam_inc[i] = -1.0
-                for i in range(k, n_s):
-                    if fam_inc[i] >= 0.0:
-                        continue
-                    f = t_fam[terms[i]]
                     nidx = 0
-                    members = 0
-                    for p in range(k, n_s):
-                        if t_fam[terms[p]] == f:
-                            members += 1
-                            for j in range(col_start[p], col_start[p + 1]):
-                                idx[nidx] = j - fw
-                                nidx += 1
-                    value = inc[i] if members == 1 else _drop_increase(W, L, c, fw, q, idx, nidx, G, bvec)
-                    for p in range(k, n_s):
-                        if t_fam[terms[p]] == f:
-                            fam_inc[p] = value
+                    for j in range(col_start[i], col_start[i + 1]):
+                        idx[nidx] = j - fw
+                        nidx += 1
+                    inc[i] = _drop_increase(W, L, c, fw, q, idx, nidx, G, bvec)
+                if family_tiers:
+                    # increase when dropping every form of a variable at once
+                    for i in range(k, n_s):
+                        fam_inc[i] = -1.0
+                    for i in range(k, n_s):
+                        if fam_inc[i] >= 0.0:
+                            continue
+                        f = t_fam[terms[i]]
+                        if fam_members[f] == 1:
+                            fam_inc[i] = inc[i]
+                            continue
+                        nidx = 0
+                        members = 0
+                        for p in range(k, n_s):
+                            if t_fam[terms[p]] == f:
+                                members += 1
+                                for j in range(col_start[p], col_start[p + 1]):
+                                    idx[nidx] = j - fw
+                                    nidx += 1
+                        value = inc[i] if members == 1 else _drop_increase(W, L, c, fw, q, idx, nidx, G, bvec)
+                        for p in range(k, n_s):
+                            if t_fam[terms[p]] == f:
+                                fam_inc[p] = value
         n_free = n_s - k
         # tier of a free term: how many forms of its variable rank above it
         for i in range(k, n_s):
             tier[i] = 0
-            if family_tiers:
+            if family_tiers and fam_members[t_fam[terms[i]]] > 1:
                 for p in range(k, n_s):
                     if p != i and t_fam[terms[p]] == t_fam[terms[i]] and (
                             inc[p] > inc[i] or (inc[p] == inc[i] and p < i)):
@@ -610,6 +896,8 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
         # children: drop position i, fix terms[:i]
         new_fams = np.uint64(0)
         for i in range(k, n_s - 1):
+            if col_start[i] + 1 > max_size:
+                break  # this child and every later one fix too many columns
             if i > k:
                 fb = np.uint64(1) << np.uint64(t_fam[terms[i - 1]])
                 if new_fams & fb:
@@ -649,6 +937,7 @@ def branch_and_bound(A, t_cols, t_width, t_fam, t_req, t_bit, max_size, n_best, 
             st_k[top] = i
             st_bound[top] = cb
             st_root[top] = False
+            st_level[top] = level + 1
     counts[2] += nodes
     return top_arr[0] < 0
 

@@ -490,6 +490,17 @@ def run_unit(unit: WorkUnit) -> dict:
     st_len[0] = len(root)
     st_k[0] = len(p["fixed"])
     st_root[0] = True
+    st_level = np.zeros(capacity, dtype=np.int64)
+    # per-depth downdate state of the compiled loop (kept between slices of a time budget)
+    total_cols = int(problem.t_width.sum())
+    levels = n_terms + 2
+    lvl_M = np.zeros((levels, total_cols, total_cols))
+    lvl_beta = np.zeros((levels, total_cols))
+    lvl_rss = np.zeros(levels)
+    lvl_ok = np.zeros(levels, dtype=np.bool_)
+    lvl_vif = np.zeros(levels)
+    lvl_r = np.zeros(levels, dtype=np.int64)
+    lvl_in = np.zeros((levels, max(n_terms, 1)), dtype=np.bool_)
     top = np.zeros(1, dtype=np.int64)
     counts = np.zeros(3, dtype=np.int64)
     pruned = np.zeros(2)
@@ -503,6 +514,7 @@ def run_unit(unit: WorkUnit) -> dict:
             problem.max_size, n_best, PIVOT_TOLERANCE, init_thr, thr, best_rss, best_mask, best_count,
             st_terms, st_len, st_k, st_bound, st_root, top, counts, pruned,
             _NODES_PER_SLICE if deadline is not None else 1 << 62, p.get("family_tiers", True),
+            st_level, lvl_M, lvl_beta, lvl_rss, lvl_ok, lvl_vif, lvl_r, lvl_in,
         )
         if complete:
             break
