@@ -14,7 +14,7 @@ import numpy as np
 # benchmarks import the test factories (``tests.factories``) for CandidateSet building.
 sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 
-__all__ = ["ar_design", "linear_problem", "family_problem", "candidates_for", "family_candidates"]
+__all__ = ["ar_design", "linear_problem", "family_problem", "candidates_for", "family_candidates", "bay_chunks"]
 
 
 def ar_design(n: int, p: int, *, rho: float = 0.5, seed: int = 0) -> np.ndarray:
@@ -117,3 +117,23 @@ def family_candidates(**kwargs):
     """``family_problem`` wrapped as a CandidateSet."""
     X, y, names, families = family_problem(**kwargs)
     return candidates_for(X, y, names=names, families=families)
+
+
+def bay_chunks(seed: int, rows: int, n_columns: int, chunk: int = 200_000):
+    """Chunks ``(X, y)`` of an invented table of positive predictors, ``rows`` in all.
+
+    Each predictor is ``10·exp(0.25 z)`` with ``z`` Gaussian and correlated with
+    its neighbour, so log, square root and reciprocal forms all apply; the
+    response grows with the log of the first eight (coefficients 4 down to
+    −2.4) plus unit Gaussian noise.  Chunk ``i`` uses the seed ``[seed, i]``,
+    so any chunk can be made again on its own, without the others.
+    """
+    n_effects = min(8, n_columns)
+    for index, start in enumerate(range(0, rows, chunk)):
+        size = min(chunk, rows - start)
+        rng = np.random.default_rng([seed, index])
+        Z = rng.standard_normal((size, n_columns))
+        Z[:, 1:] += 0.5 * Z[:, :-1]
+        X = 10.0 * np.exp(0.25 * Z)
+        y = 20.0 + np.log(X[:, :n_effects]) @ np.linspace(4.0, -2.4, n_effects) + rng.standard_normal(size)
+        yield X, y

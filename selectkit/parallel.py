@@ -12,10 +12,28 @@ Backends are joblib's, chosen by name: ``"loky"`` (default, processes),
 runs the units on a Dask cluster through joblib's Dask backend (needs the
 ``selectkit[dask]`` extra and a scheduler address, or starts nothing and uses
 the current ``distributed.Client``).
+
+Small work stays in this process.  Starting process workers costs far more
+than a small search: a cold pool of two loky workers that import the search
+modules and load numba's cached kernels took 1.1–3.1 s on the project's
+2-core machine (shared with other jobs), while every unit of an exact
+search at p = 30 took 0.1–17 ms (all 25 together 0.02–0.06 s), so two
+workers made such a search slower than one.  :func:`run_units` with a process backend ("loky",
+"multiprocessing") therefore runs the units here, one after another, timing
+each, and hands the rest to the workers only once the work still to do,
+projected from the units timed so far, exceeds the break-even
+``S·w/(w−1)`` (``S`` = :data:`WORKER_START_SECONDS`, ``w`` workers: the
+start-up ``S`` plus a ``w``-fold speed-up on work ``R`` beats doing ``R``
+here only when ``R > S·w/(w−1)``; 4 s with two workers).  ``benchmarks/
+bench_stepwise.py`` measures ``S`` and the per-unit times again (section 4).
+Where a unit runs never changes its result, so the answer is the same for
+any ``n_jobs`` either way; the threading and Dask backends run as asked
+(threads start in milliseconds, a Dask cluster is already running).
 """
 
 from __future__ import annotations
 
+import time
 from contextlib import contextmanager
 from dataclasses import dataclass
 from typing import Any, Callable, Sequence
@@ -24,9 +42,18 @@ import numpy as np
 
 from .errors import OptionError
 
-__all__ = ["BACKENDS", "WorkUnit", "run_units", "dask_session", "spawn_seeds", "check_n_jobs"]
+__all__ = ["BACKENDS", "WORKER_START_SECONDS", "WorkUnit", "run_units", "dask_session", "spawn_seeds",
+           "check_n_jobs", "projected_seconds", "worth_workers"]
 
 BACKENDS = ("loky", "threading", "multiprocessing", "sequential", "dask")
+#: Backends that start worker processes, and so pay a start-up cost.
+PROCESS_BACKENDS = ("loky", "multiprocessing")
+#: Seconds to start a cold pool of process workers ready to run a unit (spawn, import of the
+#: search modules, numba's cached kernels loaded): 1.1–3.1 s measured for two loky workers on the
+#: project's shared 2-core machine (``benchmarks/bench_stepwise.py``, section 4: the same units
+#: run on a cold pool minus run here); 2 s is taken.  A pool still warm from an earlier call
+#: costs about 0.03 s, but is not assumed: a warm pool is not known to be there.
+WORKER_START_SECONDS = 2.0
 
 
 @dataclass(frozen=True)
@@ -80,7 +107,10 @@ def run_units(
     units : sequence
         Arguments, one per call.
     n_jobs : int, default 1
-        Workers; ``1`` runs in this process without joblib's overhead.
+        Workers; ``1`` runs in this process without joblib's overhead.  With a
+        process backend, units also run here while the work left is too small
+        to pay for starting workers (see the module notes and
+        :func:`worth_workers`); the results are the same.
     backend : str, default "loky"
         A name from :data:`BACKENDS`.
     scheduler : str, optional
@@ -90,8 +120,8 @@ def run_units(
         Called as ``on_result(index, result)`` in this process as each result
         arrives, in unit order (used for checkpoints and progress).
     should_stop : callable, optional
-        Polled in this process before each unit starts (one worker) or as each
-        result arrives (several); when it returns True no further result is
+        Polled in this process before each unit that runs here starts, and as
+        each result of a worker arrives; when it returns True no further result is
         collected and the units not yet started are cancelled.
 
     Returns
@@ -104,21 +134,32 @@ def run_units(
     _check_backend(backend)
     units = list(units)
     results: list = []
-    if backend == "sequential" or (n_jobs == 1 and backend != "dask") or (len(units) <= 1 and backend != "dask"):
+    in_process = backend == "sequential" or (backend != "dask" and (n_jobs == 1 or len(units) <= 1))
+    gauged = backend in PROCESS_BACKENDS and not in_process
+    seconds: list[float] = []
+    if in_process or gauged:
+        # Run here, timing each unit; with a process backend, stop as soon as the projected work
+        # left would pay for starting workers, and hand the rest to them.
         for i, unit in enumerate(units):
             if should_stop is not None and should_stop():
+                return results
+            if gauged and worth_workers(seconds, len(units) - i, n_jobs):
                 break
+            start = time.perf_counter()
             result = function(unit)
+            seconds.append(time.perf_counter() - start)
             if on_result is not None:
                 on_result(i, result)
             results.append(result)
-        return results
+        else:
+            return results
+    offset = len(results)
 
     import joblib
 
     def _consume(iterator):
         try:
-            for i, result in enumerate(iterator):
+            for i, result in enumerate(iterator, start=offset):
                 if on_result is not None:
                     on_result(i, result)
                 results.append(result)
@@ -136,8 +177,45 @@ def run_units(
         return results
 
     parallel = joblib.Parallel(n_jobs=n_jobs, backend=backend, return_as="generator")
-    _consume(parallel(joblib.delayed(function)(u) for u in units))
+    _consume(parallel(joblib.delayed(function)(u) for u in units[offset:]))
     return results
+
+
+def _workers(n_jobs: int) -> int:
+    if n_jobs == -1:
+        import os
+
+        return os.cpu_count() or 1
+    return n_jobs
+
+
+def projected_seconds(seconds: Sequence[float], units_left: int) -> float:
+    """Seconds the ``units_left`` units would take here, from the units timed so far.
+
+    Each is taken to cost the median of the timed units, leaving out the
+    first once there are others (it carries one-time costs such as loading
+    compiled kernels).  Nothing timed yet: 0.
+    """
+    if not seconds or units_left <= 0:
+        return 0.0
+    sample = seconds[1:] if len(seconds) > 1 else seconds
+    return float(np.median(sample)) * units_left
+
+
+def worth_workers(seconds: Sequence[float], units_left: int, n_jobs: int) -> bool:
+    """Whether starting process workers for the ``units_left`` units beats running them here.
+
+    With ``w = min(workers, units_left)`` workers, start-up ``S`` =
+    :data:`WORKER_START_SECONDS` and projected work ``R``
+    (:func:`projected_seconds`), workers finish after about ``S + R/w`` and
+    this process after ``R``: workers pay only when ``R > S·w/(w−1)``
+    (4 s with two workers and ``S`` = 2 s).  Before any unit is timed the
+    answer is no: the first unit always runs here.
+    """
+    w = min(_workers(n_jobs), units_left)
+    if w < 2 or not seconds:
+        return False
+    return projected_seconds(seconds, units_left) > WORKER_START_SECONDS * w / (w - 1)
 
 
 @contextmanager
