@@ -137,3 +137,13 @@ def bay_chunks(seed: int, rows: int, n_columns: int, chunk: int = 200_000):
         X = 10.0 * np.exp(0.25 * Z)
         y = 20.0 + np.log(X[:, :n_effects]) @ np.linspace(4.0, -2.4, n_effects) + rng.standard_normal(size)
         yield X, y
+
+
+def print_table(title, header, rows):
+    """Print ``rows`` under ``header``, right-aligned columns, after a blank line and ``title``."""
+    widths = [max(len(str(h)), *(len(str(r[i])) for r in rows)) for i, h in enumerate(header)]
+    print(f"\n{title}")
+    print("  ".join(str(h).rjust(w) for h, w in zip(header, widths)))
+    print("  ".join("-" * w for w in widths))
+    for r in rows:
+        print("  ".join(str(v).rjust(w) for v, w in zip(r, widths)))

@@ -43,15 +43,9 @@ import numpy as np
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
 from _data import candidates_for, family_candidates, linear_problem  # noqa: E402
+from _data import print_table as _table  # noqa: E402
 
 
-def _table(title, header, rows):
-    widths = [max(len(str(h)), *(len(str(r[i])) for r in rows)) for i, h in enumerate(header)]
-    print(f"\n{title}")
-    print("  ".join(str(h).rjust(w) for h, w in zip(header, widths)))
-    print("  ".join("-" * w for w in widths))
-    for r in rows:
-        print("  ".join(str(v).rjust(w) for v, w in zip(r, widths)))
 
 
 def _statsmodels_rate(X, y, size, n_fits):

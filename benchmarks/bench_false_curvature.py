@@ -93,6 +93,9 @@ from scipy import stats  # noqa: E402
 sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 
 import selectkit  # noqa: E402
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from _data import print_table as _table  # noqa: E402
 from selectkit import candidates as _candidates  # noqa: E402
 
 #: Each rule studied: (curvature_test passed to selectkit.search, one parameter charged per curved form).
@@ -267,13 +270,6 @@ def _rate(k, n):
     return f"{_pct(k / n)} [{_pct(low)}, {_pct(high)}]"
 
 
-def _table(title, header, rows):
-    widths = [max(len(str(h)), *(len(str(r[i])) for r in rows)) for i, h in enumerate(header)]
-    print(f"\n{title}")
-    print("  ".join(str(h).rjust(w) for h, w in zip(header, widths)))
-    print("  ".join("-" * w for w in widths))
-    for r in rows:
-        print("  ".join(str(v).rjust(w) for v, w in zip(r, widths)))
 
 
 # --------------------------------------------------------------------------------- sections
