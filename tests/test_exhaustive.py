@@ -296,7 +296,10 @@ def test_hald_cement_best_subsets_match_the_published_example():
     assert found.rss[0] == pytest.approx(2715.76, abs=0.01)  # total sum of squares
 
 
-def test_time_budget_across_worker_processes():
+def test_time_budget_across_worker_processes(monkeypatch):
+    from selectkit import parallel
+
+    monkeypatch.setattr(parallel, "WORKER_START_SECONDS", 0.0)  # small units would otherwise stay in process
     X = ar1_design(300, 40, seed=7)
     y = np.random.default_rng(1).normal(size=300)
     found = exhaustive_search(make_candidates(X, y), time_budget=0.3, n_jobs=2, backend="loky")
