@@ -522,12 +522,12 @@ def run_methods(
                 if on_unit is not None:
                     on_unit(keys[todo[j]], result)
 
-            stop = should_stop
-            if deadline is not None:
-                # Every search runs at least one unit (planned with what is left of the budget, it returns
-                # at once when nothing is left, with what its planning found); no unit starts after that.
-                def stop(user=should_stop, results=results):
-                    return (deadline.expired() and bool(results)) or (user is not None and bool(user()))
+            # Every search runs at least one unit (planned with what is left of the budget, it returns at
+            # once when nothing is left, with what its planning found); no unit starts after that.
+            def _past_deadline(user=should_stop, results=results):
+                return (deadline.expired() and bool(results)) or (user is not None and bool(user()))
+
+            stop = should_stop if deadline is None else _past_deadline
 
             stopped = stop is not None and bool(todo) and stop()
             if todo and not stopped:
