@@ -141,6 +141,15 @@ def run_fake(spec, *, resume=True, progress=False):
 
 
 # --------------------------------------------------------------------------- fixtures
+
+def uninterrupted_shortlist(folder):
+    """The shortlist CSV bytes of a job run straight through in ``folder`` (the reference a resumed or
+    repaired run must reproduce), with the stand-in search of this file."""
+    write_table(folder / "bays.csv")
+    outcome = run_fake(load_job(write_job(folder)))
+    assert outcome.complete
+    return outcome.outputs["shortlist (CSV)"].read_bytes()
+
 def write_table(path: Path, seed: int = 0, n: int = 200) -> Path:
     rng = np.random.default_rng(seed)
     X = rng.normal(size=(n, len(PREDICTORS)))

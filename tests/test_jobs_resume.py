@@ -20,7 +20,7 @@ import pytest
 
 from selectkit.errors import StoreBusyError, StoreError
 from selectkit.jobs import load_job, store_status
-from tests.test_jobs import ROOT, _cli, run_fake, write_job, write_table
+from tests.test_jobs import uninterrupted_shortlist, ROOT, _cli, run_fake, write_job, write_table
 
 UNITS = 12
 CHILD = "import sys; from selectkit.jobs import load_job; from tests.test_jobs import run_fake; run_fake(load_job(sys.argv[1]))"
@@ -49,11 +49,7 @@ def _wait_for_units(folder, count, child, timeout=60.0):
 
 @pytest.fixture(scope="module")
 def straight_shortlist(tmp_path_factory):
-    folder = tmp_path_factory.mktemp("straight")
-    write_table(folder / "bays.csv")
-    outcome = run_fake(load_job(write_job(folder)))
-    assert outcome.complete
-    return outcome.outputs["shortlist (CSV)"].read_bytes()
+    return uninterrupted_shortlist(tmp_path_factory.mktemp("straight"))
 
 
 # Points at which to kill: numbers of committed units, drawn once from a seeded generator.

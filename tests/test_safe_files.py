@@ -28,7 +28,7 @@ from selectkit.jobs import STORE_NAME, RunStore, load_job, store_status
 from selectkit.jobs.store import unit_checksum
 from selectkit.searches import Found
 from tests.test_api import _small_frame
-from tests.test_jobs import _main, run_fake, write_job, write_table
+from tests.test_jobs import uninterrupted_shortlist, _main, run_fake, write_job, write_table
 
 
 # --------------------------------------------------------------------------- the trap
@@ -279,11 +279,7 @@ def test_real_work_units_come_back_equal_through_the_store(tmp_path):
 @pytest.fixture(scope="module")
 def straight(tmp_path_factory):
     """The shortlist of an uninterrupted job (stand-in search of tests/test_jobs.py)."""
-    folder = tmp_path_factory.mktemp("straight")
-    write_table(folder / "bays.csv")
-    outcome = run_fake(load_job(write_job(folder)))
-    assert outcome.complete
-    return outcome.outputs["shortlist (CSV)"].read_bytes()
+    return uninterrupted_shortlist(tmp_path_factory.mktemp("straight"))
 
 
 def test_a_pickle_in_place_of_a_unit_is_rerun_never_loaded(tmp_path, straight, no_unpickling):

@@ -18,17 +18,13 @@ import pytest
 from selectkit.errors import StoreError
 from selectkit.jobs import STORE_NAME, RunStore, load_job, store_status
 from selectkit.jobs.store import unit_checksum
-from tests.test_jobs import _main, run_fake, write_job, write_table
+from tests.test_jobs import uninterrupted_shortlist, _main, run_fake, write_job, write_table
 
 
 @pytest.fixture(scope="module")
 def straight(tmp_path_factory):
     """The shortlist of an uninterrupted run (the reference every repaired run must give)."""
-    folder = tmp_path_factory.mktemp("straight")
-    write_table(folder / "bays.csv")
-    outcome = run_fake(load_job(write_job(folder)))
-    assert outcome.complete
-    return outcome.outputs["shortlist (CSV)"].read_bytes()
+    return uninterrupted_shortlist(tmp_path_factory.mktemp("straight"))
 
 
 def _flip_a_bit(store_path, key=None):
