@@ -61,6 +61,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from .settings import spell
 from .errors import DataFileError, OptionError
 
 __all__ = ["CsvReading", "read_csv_file", "refuse_binary", "DECIMAL_MARKS", "COMPRESSED", "describe_marks"]
@@ -280,15 +281,14 @@ def _decide_marks(evidence: _Evidence):
         example = dot or comma_three
         warning = (f"every number written with {_MARK_WORDS[mark]} has exactly three digits after it (e.g. "
                    f"{example.where()}), so {_MARK_WORDS[mark]} could also be grouping thousands; it was read as "
-                   f"the decimal mark — if it groups thousands, pass decimal_mark='{_other(mark)}' "
-                   f"(--decimal-mark {_other(mark)} at the command line)")
+                   f"the decimal mark — if it groups thousands, give {spell('decimal_mark', _other(mark))}")
         return mark, None, f"{example.where()}, read as a decimal (three digits after the mark)", warning
     return ".", None, None, None
 
 
 def _conflict_message(path: Path, clause: str) -> str:
-    return (f"cannot tell the decimal mark of '{path.name}': {clause}; pass decimal_mark='.' or "
-            f"decimal_mark=',' (--decimal-mark . or , at the command line) to say which — the other mark is then "
+    return (f"cannot tell the decimal mark of '{path.name}': {clause}; give "
+            f"{spell('decimal_mark', '.')} or {spell('decimal_mark', ',')} to say which — the other mark is then "
             f"read as grouping thousands where it groups digits in threes")
 
 

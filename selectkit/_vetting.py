@@ -21,6 +21,7 @@ import pandas as pd
 from scipy.stats import rankdata
 
 from . import transforms as tf
+from .settings import spell
 
 #: Cycles of the curvature test with the other predictors held in their current forms (back-fitting);
 #: it usually settles in two or three.
@@ -111,7 +112,7 @@ def _set_aside_twins(builder, dataset, *, twin_limit, vif_limit, prefer, forced)
                 name_a, name_b = name_b, name_a
             aside[drop] = (f"set aside before the search: a near-duplicate of {keep} (|r| = {-neg_r:.6f} between "
                            f"{name_a} and {name_b}, at least {twin_limit:g}); {keep} is kept because {why} — "
-                           f"name {drop} in --prefer (prefer=[{drop!r}]) to keep it instead")
+                           f"give {spell('prefer', [drop])} to keep it instead")
             builder.notes.append(f"near-duplicates: {keep} and {drop} (|r| = {-neg_r:.6f} between {name_a} and "
                                  f"{name_b}); kept {keep} because {why}, set {drop} aside")
     if vif_limit is not None:
@@ -135,8 +136,8 @@ def _set_aside_twins(builder, dataset, *, twin_limit, vif_limit, prefer, forced)
             vif_text = "unbounded (an exact linear combination)" if not np.isfinite(vif[j]) else f"{vif[j]:.4g}"
             aside[left[j]] = (f"set aside before the search: VIF {vif_text} among the raw columns, at least "
                               f"{vif_limit:g} (Marquardt 1970); it is nearly a linear combination of {shown}; "
-                              f"the variable of largest VIF goes first — name it in --prefer "
-                              f"(prefer=[{left[j]!r}]) to keep it and set another aside")
+                              f"the variable of largest VIF goes first — give "
+                              f"{spell('prefer', [left[j]])} to keep it and set another aside")
             builder.notes.append(f"nearly collinear: {left[j]} with {shown} (VIF {vif_text}); set {left[j]} aside")
             left.pop(j)
     for family in sorted(aside):
@@ -303,7 +304,7 @@ def _straight_families(dataset, y, weights, shift_map, notes):
     return {col: (f"no evidence that {col} bends once the other predictors are in the fit (test of "
                   f"{'x·log x (Box-Tidwell, power 1)' if positive[col] else 'x²'} added: t = "
                   f"{statistic[col]:.2g}, t² ≤ log n = {np.log(n):.2g}); only the raw form is offered — "
-                  "pass curvature_test=False (--all-forms) to offer every form")
+                  f"give {spell('curvature_test', False)} to offer every form")
             for col in names if col not in power}
 
 

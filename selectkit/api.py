@@ -37,6 +37,7 @@ __all__ = [
     "SearchSetup",
     "Result",
     "prepare_search",
+    "prepare_candidates",
     "unit_keys",
     "run_methods",
     "finish",
@@ -169,173 +170,147 @@ def _settled(run: "MethodRun", candidates, moments, deadline) -> "MethodRun":
 # ----------------------------------------------------------------------------------------------------
 
 
-def prepare_search(
-    data,
-    *,
-    response: str,
-    predictors: Sequence[str] | None = None,
-    forced: Sequence[str] = (),
-    exclude: Sequence[str] = (),
-    weights: str | None = None,
-    missing: str = "refuse",
-    keep_identifiers: Sequence[str] = (),
-    decimal_mark: str | None = None,
-    forms: Sequence[str] | None = None,
-    fractional_polynomials: bool = False,
-    shifts: Mapping[str, Any] | None = None,
-    interactions: bool | Sequence[tuple[str, str]] = False,
-    response_transform=None,
-    prefer: Sequence[str] = (),
-    twin_limit: float | None = 0.999,
-    vif_limit: float | None = 1000.0,
-    curvature_test: bool = True,
-    methods: Sequence[str] | str = ("auto",),
-    method_options: Mapping[str, Mapping[str, Any]] | None = None,
-    exact_limit: int = _EXACT_LIMIT,
-    criterion: str | None = None,
-    aim: str = "explain",
-    convention: str = "sigma-counted",
-    shortlist_size: int = 10,
-    max_delta: float | None = None,
-    folds: int = 5,
-    time_ordered: bool = False,
-    stability: int = 0,
-    honest_folds: int = 0,
-    seed: int = 0,
-    time_budget: float | None = None,
-) -> SearchSetup:
+def prepare_candidates(data, **settings):
+    """Read and check the data and build its candidate terms (the first half of :func:`prepare_search`).
+
+    Takes the settings of the ``[data]`` and ``[forms]`` sections (see
+    :mod:`selectkit.settings`).
+
+    Returns
+    -------
+    (Dataset, CandidateSet)
+    """
+    from . import settings as _settings
+
+    names = tuple(x.name for x in _settings.SETTINGS if x.section in ("data", "forms"))
+    return _intake_and_candidates(data, _settings.resolve(settings, allowed=names), check_folds=False)
+
+
+def _intake_and_candidates(data, s, *, check_folds):
+    from . import candidates as _candidates
+    from . import data as _data
+
+    dataset = _data.prepare(
+        data,
+        response=s["response"],
+        predictors=list(s["predictors"]) if s["predictors"] else None,  # empty: every other column
+        forced=list(s["always_include"]),
+        exclude=list(s["leave_out"]),
+        weights=s["row_weights"],
+        missing=s["incomplete_rows"],
+        keep_identifiers=list(s["keep_id_columns"]),
+        decimal_mark=s["decimal_mark"],
+    )
+    if check_folds:
+        _check_folds_fit(s["folds"], s["honest_folds"], dataset.n, s["seed"])
+    build_options: dict[str, Any] = dict(
+        fractional_polynomials=s["fractional_polynomials"],
+        shifts=dict(s["shifts"]),
+        interactions=s["interactions"] if isinstance(s["interactions"], bool) else list(s["interactions"]),
+        response_transform=_response_transform(s["response_form"]),
+        prefer=tuple(s["prefer"]),
+        twin_limit=s["twin_limit"],
+        vif_limit=s["vif_limit"],
+        curvature_test=s["curvature_test"],
+    )
+    if s["forms"] is not None:
+        build_options["forms"] = tuple(s["forms"])
+    cands = _candidates.build_candidates(dataset, **build_options)
+    return dataset, cands
+
+
+def prepare_search(data, **settings) -> SearchSetup:
     """Read and check the data, build the candidates and their moments, choose the searches.
 
-    Parameters are those of :func:`search` (minus the parallel ones).
-    Every option that can be judged before the searches start is checked
-    here, the ones that need the data (``folds`` and ``honest_folds`` against
-    the rows) as soon as the data are read, so that a bad setting fails before
-    any search work.  A ``time_budget`` starts here: it covers the whole run.
+    Parameters are those of :func:`search` (every setting of
+    :data:`selectkit.settings.SETTINGS`; the parallel ones are recorded and
+    used by :func:`run_methods` and :func:`finish` through the caller).
+    Every setting is checked before anything is read, then those that need
+    the data (``folds`` and ``honest_folds`` against the rows) as soon as the
+    data are read, so that a bad setting fails before any search work.  A
+    ``time_budget`` starts here: it covers the whole run.
 
     Returns
     -------
     SearchSetup
     """
-    from . import candidates as _candidates
-    from . import criteria
-    from . import data as _data
-    from ._budget import Deadline, start_deadline
+    from . import settings as _settings
+    from ._budget import start_deadline
     from .moments import moments_of
 
-    if time_budget is not None and not isinstance(time_budget, Deadline) and not (
-            isinstance(time_budget, (int, float, np.floating)) and not isinstance(time_budget, bool)
-            and float(time_budget) > 0):
-        raise OptionError(f"time_budget must be a positive number of seconds (got {time_budget!r}); "
-                          f"leave it out for no limit")
-    deadline = start_deadline(time_budget)
+    s = _settings.resolve(settings, allowed=_PYTHON_SETTINGS)
+    deadline = start_deadline(s["time_budget"])
     time_budget = None if deadline is None else deadline.seconds
-    _check_whole("seed", seed, low=0, why="seeds of numpy's SeedSequence are non-negative")
-    _check_whole("stability", stability, low=0, why="0 skips the bootstrap")
-    if not _is_fold_scheme(folds):
-        _check_whole("folds", folds, low=2, why="cross-validation needs at least 2 folds")
+    methods = s["methods"]
+    for name in s["method_options"]:
+        if name not in methods and "auto" not in methods:
+            raise OptionError(f"{_settings.spell('method_options')} gives settings for {name!r}, which is not among "
+                              f"the methods ({', '.join(methods)}); add it to {_settings.spell('methods')} or drop "
+                              f"its settings")
 
-    if isinstance(methods, str):
-        methods = (methods,)
-    methods = tuple(methods)
-    if not methods:
-        raise OptionError("methods is empty; name at least one of " + ", ".join(METHODS))
-    for name in methods:
-        _check_choice(name, METHODS, "search method")
-    _check_choice(aim, AIMS, "aim")
-    _check_choice(convention, criteria.CONVENTIONS, "criterion convention")
-    if criterion is not None:
-        criterion = criteria.check_criterion(criterion)
-    if int(honest_folds) == 1 or int(honest_folds) < 0:
-        raise OptionError(f"honest_folds must be 0 (skip) or at least 2 outer folds (got {honest_folds})")
-    if int(shortlist_size) < 1:
-        raise OptionError(f"shortlist_size must be at least 1 (got {shortlist_size})")
-    method_options = {k: dict(v) for k, v in (method_options or {}).items()}
-    for name in method_options:
-        _check_choice(name, METHODS[1:], "search method in method_options")
-
-    dataset = _data.prepare(
-        data,
-        response=response,
-        predictors=predictors,
-        forced=forced,
-        exclude=exclude,
-        weights=weights,
-        missing=missing,
-        keep_identifiers=keep_identifiers,
-        decimal_mark=decimal_mark,
-    )
-    _check_folds_fit(folds, honest_folds, dataset.n, seed)
-    build_options: dict[str, Any] = dict(
-        fractional_polynomials=fractional_polynomials,
-        shifts=shifts,
-        interactions=interactions,
-        response_transform=response_transform,
-        prefer=tuple(prefer),
-        twin_limit=twin_limit,
-        vif_limit=vif_limit,
-        curvature_test=bool(curvature_test),
-    )
-    if forms is not None:
-        build_options["forms"] = tuple(forms)
-    cands = _candidates.build_candidates(dataset, **build_options)
+    dataset, cands = _intake_and_candidates(data, s, check_folds=True)
     moments = moments_of(cands)
 
     n_terms = len(cands.terms)
     resolved = []
     for name in methods:
         if name == "auto":
-            name = "exhaustive" if n_terms <= exact_limit else "screen"
+            name = "exhaustive" if n_terms <= s["exact_limit"] else "screen"
         if name not in resolved:
             resolved.append(name)
     runs = tuple(
-        _make_run(name, method_options.get(name, {}), seed=seed, time_budget=time_budget,
-                  exact_limit=exact_limit, folds=folds, criterion=criterion, aim=aim)
+        _make_run(name, s["method_options"].get(name, {}), seed=s["seed"], time_budget=time_budget,
+                  exact_limit=s["exact_limit"], folds=s["folds"], criterion=s["criterion"], aim=s["aim"])
         for name in resolved
     )
-    settings = {
-        "selectkit_version": __version__,
-        "data": data if isinstance(data, (str, os.PathLike)) else "<DataFrame>",
-        "response": response,
-        "predictors": None if predictors is None else list(predictors),
-        "forced": list(forced),
-        "exclude": list(exclude),
-        "weights": weights,
-        "missing": missing,
-        "forms": None if forms is None else list(forms),
-        "fractional_polynomials": bool(fractional_polynomials),
-        "shifts": dict(shifts or {}),
-        "interactions": interactions if isinstance(interactions, bool) else [list(p) for p in interactions],
-        "response_transform": response_transform,
-        "prefer": list(prefer),
-        "twin_limit": twin_limit,
-        "vif_limit": vif_limit,
-        "curvature_test": bool(curvature_test),
-        "methods": list(methods),
-        "methods_run": [r.name for r in runs],
-        "method_options": method_options,
-        "criterion": criterion,
-        "aim": aim,
-        "convention": convention,
-        "shortlist_size": int(shortlist_size),
-        "max_delta": max_delta,
-        "folds": int(folds),
-        "time_ordered": bool(time_ordered),
-        "stability": int(stability),
-        "honest_folds": int(honest_folds),
-        "seed": int(seed),
-        "time_budget": time_budget,
-        "n_rows": dataset.n,
-        "n_terms": n_terms,
-    }
+    settings = {"selectkit_version": __version__,
+                "data": data if isinstance(data, (str, os.PathLike)) else "<DataFrame>"}
+    settings.update(_settings_record(s, time_budget))
+    settings.update({"methods_run": [r.name for r in runs], "n_rows": dataset.n, "n_terms": n_terms})
     if isinstance(settings["data"], os.PathLike):
         settings["data"] = os.fspath(settings["data"])
     return SearchSetup(dataset=dataset, candidates=cands, moments=moments, runs=runs, settings=settings,
                        deadline=deadline)
 
 
-def _check_whole(name, value, *, low, why):
-    if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or int(value) < low:
-        raise OptionError(f"{name} must be a whole number of at least {low} (got {value!r}); {why}")
+def _names_of_python_settings() -> tuple:
+    from .settings import PYTHON, SETTINGS
+
+    return tuple(x.name for x in SETTINGS if PYTHON in x.surfaces)
+
+
+_PYTHON_SETTINGS = _names_of_python_settings()
+
+
+def _response_transform(form):
+    """The candidates' ``response_transform`` from the setting ``response_form`` ("boxcox:0.5" → a pair)."""
+    if isinstance(form, str) and form.startswith("boxcox:"):
+        return ("boxcox", float(form.split(":", 1)[1]))
+    return form
+
+
+def _settings_record(s: Mapping, time_budget) -> dict:
+    """The checked settings as plain values (lists for tuples), for reports, JSON and run stores."""
+    from .settings import BY_NAME
+
+    out = {}
+    for key, value in s.items():
+        if key != "time_budget" and not BY_NAME[key].changes_result:
+            continue  # where the run ran (workers, backend, scheduler) does not change what it found
+        if key == "time_budget":
+            value = time_budget
+        elif key == "folds" and not isinstance(value, int):
+            value = getattr(value, "k", str(value))
+        elif key == "interactions" and not isinstance(value, bool):
+            value = [list(pair) for pair in value]
+        elif key == "response_form" and value is not None and not isinstance(value, str):
+            value = repr(value)
+        elif isinstance(value, tuple):
+            value = list(value)
+        elif isinstance(value, dict):
+            value = {k: dict(v) if isinstance(v, dict) else v for k, v in value.items()}
+        out[key] = value
+    return out
 
 
 def _is_fold_scheme(folds) -> bool:
@@ -599,7 +574,7 @@ def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: st
 
     def _rank(scores):
         return _rank_module.rank(founds, setup.candidates, setup.moments, criterion=s["criterion"], aim=s["aim"],
-                                 convention=s["convention"], size=s["shortlist_size"], max_delta=s["max_delta"],
+                                 convention=s["parameter_count"], size=s["shortlist_size"], max_delta=s["keep_within"],
                                  scores=scores)
 
     shortlist = _rank(scores)
@@ -610,11 +585,11 @@ def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: st
         shortlist = _rank(scores)  # same order (PRESS does not rank): now with PRESS shown
     deadline = setup.deadline if deadline is None else deadline
     stability = None
-    if s["stability"] > 0:
+    if s["resamples"] > 0:
         stability = _rank_module.stability(
             setup.candidates,
             _SearchRunner(tuple(setup.runs), deadline),
-            n_boot=s["stability"],
+            n_boot=s["resamples"],
             seed=s["seed"],
             n_jobs=n_jobs,
             backend=backend,
@@ -638,7 +613,7 @@ def _note_budget(result: "Result", founds, deadline) -> None:
              for f in founds if "time budget" in str(f.stopped_by)]
     if result.stability is not None:
         notes += [n for n in result.stability.notes if "time budget" in n]
-    elif result.settings.get("stability", 0) > 0:
+    elif result.settings.get("resamples", 0) > 0:
         notes.append(f"The {deadline.describe()} ran out before the bootstrap resamples could be compared with the "
                      f"searches on all rows: no stability is shown.")
     honest = getattr(result, "honest", None)
@@ -690,59 +665,19 @@ class _SearchRunner:
 # ----------------------------------------------------------------------------------------------------
 
 
-def search(
-    data,
-    *,
-    response: str,
-    methods: Sequence[str] | str = ("auto",),
-    n_jobs: int = 1,
-    backend: str = "loky",
-    scheduler: str | None = None,
-    scheduler_timeout: float = 10.0,
-    seed: int = 0,
-    **options,
-) -> "Result":
+def search(data, **settings) -> "Result":
     """Search for the best linear models of ``response`` and return a ranked, checked shortlist.
+
+    Every setting is a keyword argument; each has the same name as a job-file
+    key and, with dashes, a command-line flag (see :mod:`selectkit.settings`,
+    where they are defined once).  A former spelling (``forced``, ``n_jobs``,
+    ``max_delta`` ...) is refused with the current one.
 
     Parameters
     ----------
     data : str, path or DataFrame
         A CSV or Parquet file, or a DataFrame (never modified).
-    response : str
-        Name of the response column.
-    methods : str or sequence of str, default ("auto",)
-        Searches to run and pool: ``"exhaustive"`` (exact best subsets by
-        branch and bound), ``"forward"`` (forward selection), ``"backward"``
-        (backward elimination), ``"stepwise"`` (steps both ways), ``"crossval"`` (model size chosen by cross-validation),
-        ``"screen"`` (screen → exact search on the survivors → stepwise
-        polish) and ``"auto"`` (exhaustive when the candidate terms are few
-        enough, else screen).
-    n_jobs : int, default 1
-        Worker processes (−1: every core).  The result does not depend on it.
-    backend : str, default "loky"
-        joblib backend: loky, threading, multiprocessing, sequential or dask.
-    scheduler : str, optional
-        Dask scheduler address with ``backend="dask"``.
-    scheduler_timeout : float, default 10
-        Seconds to wait for that scheduler to answer before any work; a
-        scheduler out of reach is refused in one line.
-    seed : int, default 0
-        Seed of every random draw (folds, bootstrap).
-    **options
-        Roles of columns (``predictors``, ``forced``, ``exclude``,
-        ``weights``, ``missing``, ``keep_identifiers``), ``decimal_mark`` of a
-        CSV table ("." or ","; default: decided from its numbers), candidate forms
-        (``forms``, ``fractional_polynomials``, ``shifts``, ``interactions``,
-        ``response_transform``), near-duplicate variables and collinear groups
-        (``prefer`` — variables to keep —, ``twin_limit``, ``vif_limit``),
-        ``curvature_test`` (curved forms only for predictors that show
-        curvature with the others in the fit; see
-        :func:`selectkit.candidates.build_candidates`), ranking (``criterion``, ``aim`` — "explain"
-        ranks by BIC, "predict" by AICc —, ``convention``, ``shortlist_size``,
-        ``max_delta``, ``folds``, ``stability``, ``honest_folds`` — outer
-        folds for the honest error of the whole procedure, 0 to skip),
-        ``method_options`` (a dict
-        per method name), ``time_ordered`` and ``time_budget`` (seconds).
+{parameters}
 
     Returns
     -------
@@ -750,6 +685,14 @@ def search(
 
     Notes
     -----
+    ``methods`` names the searches to run and pool: ``"exhaustive"`` (exact best
+    subsets by branch and bound), ``"forward"`` (forward selection),
+    ``"backward"`` (backward elimination), ``"stepwise"`` (steps both ways),
+    ``"crossval"`` (model size chosen by cross-validation), ``"screen"``
+    (screen → exact search on the survivors → stepwise polish) and ``"auto"``
+    (exhaustive when the candidate terms are at most ``exact_limit``, else
+    screen).  The result does not depend on ``workers`` or ``backend``.
+
     The p-values and intervals of a model chosen by a search are optimistic:
     the same data chose the model and estimated it.  Prefer the honest
     cross-validated error, and check the chosen model on data it has not seen.
@@ -764,10 +707,29 @@ def search(
     >>> result.terms(0)  # doctest: +SKIP
     ('log(light_mol_m2_day)', 'sqrt(co2_above_ambient_ppm)', ...)
     """
-    check_run_options(n_jobs=n_jobs, backend=backend, scheduler=scheduler, timeout=scheduler_timeout)
-    setup = prepare_search(data, response=response, methods=methods, seed=seed, **options)
-    founds = run_methods(setup, n_jobs=n_jobs, backend=backend, scheduler=scheduler)
-    return finish(setup, founds, n_jobs=n_jobs, backend=backend, scheduler=scheduler)
+    from . import settings as _settings
+
+    s = _settings.resolve(settings, allowed=_PYTHON_SETTINGS)  # every name and value checked before any work
+    check_run_options(n_jobs=s["workers"], backend=s["backend"], scheduler=s["scheduler"],
+                      timeout=s["scheduler_timeout"])
+    setup = prepare_search(data, **settings)
+    founds = run_methods(setup, n_jobs=s["workers"], backend=s["backend"], scheduler=s["scheduler"])
+    return finish(setup, founds, n_jobs=s["workers"], backend=s["backend"], scheduler=s["scheduler"])
+
+
+def _dress_search() -> None:
+    """Give :func:`search` the signature and Parameters of every setting (``help()``, ``inspect``, IDEs)."""
+    import inspect
+
+    from . import settings as _settings
+
+    data = inspect.Parameter("data", inspect.Parameter.POSITIONAL_OR_KEYWORD)
+    search.__signature__ = _settings.signature(extra_first=[data])
+    search.__doc__ = search.__doc__.replace("{parameters}", _settings.parameters_doc())
+    prepare_search.__signature__ = search.__signature__
+
+
+_dress_search()
 
 
 class Result:
@@ -891,7 +853,7 @@ class Result:
         naive = float(table["cv_mse"].iloc[0]) if "cv_mse" in table and len(table) else float("nan")
         self.honest = procedure_cv_error(
             self.candidates, _SearchRunner(tuple(self._setup.runs), deadline), criterion=criterion,
-            convention=self._setup.settings["convention"], folds=folds, seed=self._setup.settings["seed"],
+            convention=self._setup.settings["parameter_count"], folds=folds, seed=self._setup.settings["seed"],
             moments=self._setup.moments, naive_error=naive,
             procedure=" + ".join(r.name for r in self._setup.runs) + " search(es)",
             n_jobs=n_jobs, backend=backend, scheduler=scheduler, deadline=deadline,

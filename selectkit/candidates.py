@@ -32,6 +32,7 @@ import pandas as pd
 
 from . import transforms as tf
 from ._vetting import _raw_columns, _set_aside_twins, _straight_families
+from .settings import spell
 from .errors import InputError, OptionError
 
 __all__ = ["Term", "Refusal", "ResponseTransform", "CandidateSet", "build_candidates", "DEFAULT_FORMS"]
@@ -848,6 +849,13 @@ def _would_be_name(transform, col, q, shift_params):
     return tf.term_name(transform, col, shift_params)
 
 
+def _as_number(text):
+    try:
+        return float(text)
+    except ValueError:
+        return text
+
+
 def _with_fix(problem, col, x, c, transform, q):
     suggestion = tf.format_number(_auto_shift(x))
     if transform == "power":
@@ -856,8 +864,7 @@ def _with_fix(problem, col, x, c, transform, q):
         target = f"a Box-Tidwell power of {col} + {suggestion}"
     else:
         target = tf.term_name(transform, col, (("shift", _auto_shift(x)),))
-    how = f"give a shift (--shift {col}={suggestion}, or shifts={{{col!r}: {suggestion}}}) to use {target}, " \
-          "or leave the form out"
+    how = f"give a shift ({spell('shifts', {col: _as_number(suggestion)})}) to use {target}, or leave the form out"
     if c:
         return f"{problem} — the shift {tf.format_number(c)} is too small; {how}"
     return f"{problem} — {how}"

@@ -4,7 +4,7 @@ Commands::
 
     selectkit search TABLE --response COL [options]   search, rank, check, write the shortlist and report
     selectkit forms TABLE --response COL              list the candidate terms a table gives
-    selectkit demo [--out FOLDER]                     the whole job on the bundled greenhouse data
+    selectkit demo [--output FOLDER]                  the whole job on the bundled greenhouse data
     selectkit job new TABLE -o job.toml               write a commented starter job file
     selectkit job run job.toml                        run (or continue) an overnight job
     selectkit job resume FOLDER                       continue an interrupted job from its run store
@@ -23,7 +23,6 @@ control characters escaped (``\\x1b``), so a column name cannot drive the termin
 from __future__ import annotations
 
 import argparse
-import math
 import os
 import sys
 import time
@@ -69,34 +68,6 @@ class _Parser(argparse.ArgumentParser):
                                   f"(see {_printable(self.prog)} --help)\n")
 
 
-def _whole_number(least: int, meaning: str, *, also=None):
-    """An argparse type: a whole number of at least ``least`` (or exactly ``also``), else a one-line refusal."""
-    def convert(text: str) -> int:
-        try:
-            value = int(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number; give {meaning}") from None
-        if value < least and value != also:
-            raise argparse.ArgumentTypeError(f"{value} is too small; give {meaning}")
-        return value
-
-    return convert
-
-
-def _number_at_least(least: float, meaning: str, *, strictly: bool = False):
-    """An argparse type: a finite number ``>= least`` (``> least`` when ``strictly``), else a refusal."""
-    def convert(text: str) -> float:
-        try:
-            value = float(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"{text!r} is not a number; give {meaning}") from None
-        if not math.isfinite(value) or value < least or (strictly and value == least):
-            raise argparse.ArgumentTypeError(f"{text} is out of range; give {meaning}")
-        return value
-
-    return convert
-
-
 class _Renamed(argparse.Action):
     """A former option: refused with the spelling that replaced it (held in ``metavar``)."""
 
@@ -104,114 +75,75 @@ class _Renamed(argparse.Action):
         parser.error(f"{option_string} was renamed; did you mean {self.metavar}?")
 
 
-def _convention_name(text: str) -> str:
-    """An argparse type: a parameter-count convention, a former name refused with the new one."""
-    from .criteria import RENAMED_CONVENTIONS
+def _setting_type(name: str):
+    """An argparse type for the setting ``name``: its command-line text read, then checked as on every surface."""
+    from . import settings
 
-    if text in RENAMED_CONVENTIONS:
-        raise argparse.ArgumentTypeError(f"{text!r} was renamed; did you mean {RENAMED_CONVENTIONS[text]!r}?")
-    return text
+    setting = settings.BY_NAME[name]
 
+    def convert(text: str):
+        try:
+            return setting.kind.check(setting.kind.parse(text))
+        except settings.Refusal as why:
+            raise argparse.ArgumentTypeError(str(why).removeprefix("= ")) from None
 
-def _method_name(text: str) -> str:
-    """An argparse type: a search method, a former name refused with the new one."""
-    from .searches._adapters import RENAMED_METHODS
-
-    if text in RENAMED_METHODS:
-        raise argparse.ArgumentTypeError(f"method {text!r} was renamed; did you mean {RENAMED_METHODS[text]!r}?")
-    return text
+    convert.__name__ = name  # argparse names the type in its own messages
+    return convert
 
 
-_TOP = _whole_number(1, "at least 1 model")
-_FOLDS = _whole_number(2, "at least 2 folds")
-_RESAMPLES = _whole_number(0, "0 (skip) or a positive number of resamples")
-_OUTER_FOLDS = _whole_number(2, "0 (skip) or at least 2 outer folds", also=0)
-_WORKERS = _whole_number(1, "a positive number of worker processes, or -1 for every core", also=-1)
-_SEED = _whole_number(0, "a seed of 0 or more")
-_DELTA = _number_at_least(0.0, "a distance of 0 or more")
-_SECONDS = _number_at_least(0.0, "a positive number of seconds", strictly=True)
+def _add_settings(p: argparse.ArgumentParser, names, *, required=()) -> None:
+    """One flag per setting of :mod:`selectkit.settings` (its name with dashes), with the table's help line.
+
+    Only the settings given end up in the namespace (``default=SUPPRESS``): the
+    rest take the table's defaults when the settings are resolved.
+    """
+    from . import settings
+
+    for name in names:
+        setting = settings.BY_NAME[name]
+        flags = ([setting.short] if setting.short else []) + [setting.flag]
+        default = "" if setting.required or "default" in setting.help else f" (default: {_default_text(setting)})"
+        if setting.kind is settings.FLAG:
+            p.add_argument(*flags, dest=name, action=argparse.BooleanOptionalAction, default=argparse.SUPPRESS,
+                           help=setting.help + default)
+        else:
+            p.add_argument(*flags, dest=name, type=_setting_type(name), metavar=setting.metavar,
+                           default=argparse.SUPPRESS, required=name in required, help=setting.help + default)
 
 
-def _csv_list(text: str) -> list[str]:
-    return [part.strip() for part in text.split(",") if part.strip()]
+def _default_text(setting) -> str:
+    if setting.default is None or setting.default in ((), {}):
+        return "none"
+    if isinstance(setting.default, bool):
+        return "on" if setting.default else "off"
+    return setting.kind.cli(setting.default) if not isinstance(setting.default, str) else setting.default
 
 
-def _add_table_roles(p: argparse.ArgumentParser) -> None:
-    p.add_argument("table", help="CSV or Parquet file (delimiter, decimal mark and encoding are detected)")
-    p.add_argument("-r", "--response", required=True, help="name of the response column")
-    p.add_argument("--only", type=_csv_list, metavar="COL,COL", default=None,
-                   help="use only these columns as predictors (default: every other column)")
-    p.add_argument("--keep-in", type=_csv_list, metavar="COL,COL", default=[],
-                   help="predictors every model must hold (in some form)")
-    p.add_argument("--leave-out", type=_csv_list, metavar="COL,COL", default=[],
-                   help="columns that are not predictors")
-    p.add_argument("--row-weights", metavar="COL", default=None, help="column of positive row weights")
-    p.add_argument("--drop-incomplete-rows", action="store_true",
-                   help="drop rows with missing values (default: refuse and list them)")
-    p.add_argument("--keep-id-columns", type=_csv_list, metavar="COL,COL", default=[],
-                   help="keep these identifier-like columns as predictors (excluded by default)")
-    p.add_argument("--decimal-mark", choices=(".", ",", "point", "comma"), default=None,
-                   help="decimal mark of a CSV table (default: decided from its numbers; the other mark is "
-                        "then read as grouping thousands)")
-    p.add_argument("--forms", type=_csv_list, metavar="FORM,FORM", default=None,
-                   help="forms of each numeric predictor: identity, log, sqrt, reciprocal, square, "
-                        "boxcox, boxtidwell (default: all of them)")
-    p.add_argument("--fractional-powers", action="store_true",
-                   help="also try the fractional-polynomial powers -2, -1, -0.5, 0, 0.5, 1, 2, 3")
-    p.add_argument("--shift", action="append", default=[], metavar="COL=C",
-                   help="allow log/sqrt/reciprocal of COL + C (C a number, or 'auto'); repeatable")
-    p.add_argument("--prefer", type=_csv_list, metavar="COL,COL", default=[],
-                   help="variables to keep when they nearly duplicate another or sit in a nearly collinear group")
-    p.add_argument("--all-forms", action="store_true",
-                   help="offer every curved form of every predictor, not only of those that bend once the "
-                        "other predictors are in the fit (t^2 > log n)")
-    p.add_argument("--keep-twins", action="store_true",
-                   help="do not set aside near-duplicate variables (|r| >= 0.999) or members of a collinear "
-                        "group (VIF >= 1000)")
-    p.add_argument("--pairwise-products", action="store_true",
-                   help="add every pairwise product x*z of numeric predictors (hierarchy kept)")
-    p.add_argument("--response-form", default=None, metavar="FORM",
-                   help="transform the response: log, sqrt or boxcox:LAMBDA")
+def _add_former_flags(p: argparse.ArgumentParser) -> None:
+    """Hidden former flags of this command, each refused with its current spelling."""
+    from . import settings
+
+    taken = set(p._option_string_actions)
+    for old, now in settings.FORMER[settings.CLI].items():
+        if old not in taken:
+            p.add_argument(old, nargs="?", action=_Renamed, metavar=now, help=argparse.SUPPRESS,
+                           default=argparse.SUPPRESS)
 
 
-def _add_search_options(p: argparse.ArgumentParser) -> None:
-    from .api import AIMS, METHODS
-    from .criteria import CONVENTIONS
+def _given(args, names) -> dict:
+    """The settings given on the command line, by name."""
+    return {name: getattr(args, name) for name in names if hasattr(args, name)}
 
-    p.add_argument("-m", "--method", action="append", dest="methods", choices=METHODS, default=None,
-                   type=_method_name,
-                   help="search to run (repeatable; findings are pooled). Default: auto = exact best subset "
-                        "when the terms are few enough, else screen -> exact -> stepwise polish")
-    p.add_argument("--aim", choices=AIMS, default="explain",
-                   help="explain: rank by BIC (find the terms that matter); predict: rank by AICc")
-    p.add_argument("--rank-by", default=None, metavar="CRITERION",
-                   help="rank by this criterion instead: aic, aicc, bic, cp, adj_r2, press, cv_mse")
-    p.add_argument("--count-parameters", dest="convention", choices=CONVENTIONS, default="sigma-counted",
-                   type=_convention_name,
-                   help="what AIC/BIC count: sigma-counted = k coefficients + the error variance (default), "
-                        "coefficients-only = k; rankings are unchanged")
-    p.add_argument("--statsmodels-convention", nargs=0, action=_Renamed, help=argparse.SUPPRESS,
-                   default=argparse.SUPPRESS, metavar="--count-parameters coefficients-only")
-    p.add_argument("--top", type=_TOP, default=10, metavar="N", help="models in the shortlist (default 10)")
-    p.add_argument("--within-delta", type=_DELTA, default=None, metavar="D",
-                   help="keep only models within D of the best by the ranking criterion")
-    p.add_argument("--folds", type=_FOLDS, default=5, metavar="K", help="folds for cross-validated error (default 5)")
-    p.add_argument("--resamples", type=_RESAMPLES, default=0, metavar="B",
-                   help="bootstrap resamples for the stability of the selection (default 0: skip)")
-    p.add_argument("--honest-error", type=_OUTER_FOLDS, default=0, metavar="K",
-                   help="also estimate the honest error of the whole procedure by repeating it inside K outer "
-                        "folds (costs K more searches; default 0: skip)")
-    p.add_argument("--rows-in-time-order", action="store_true",
-                   help="row order means time or sequence (enables the Durbin-Watson check, blocked folds)")
-    p.add_argument("--workers", type=_WORKERS, default=1, metavar="N", help="worker processes (-1: all cores)")
-    p.add_argument("--backend", default="loky", help="joblib backend: loky, threading, multiprocessing, dask")
-    p.add_argument("--scheduler", default=None, metavar="ADDRESS", help="Dask scheduler address for --backend dask")
-    p.add_argument("--scheduler-timeout", type=_number_at_least(0, "a positive number of seconds", strictly=True),
-                   default=10.0, metavar="SECONDS",
-                   help="how long to wait for the Dask scheduler to answer before any work (default 10)")
-    p.add_argument("--seed", type=_SEED, default=0, help="seed of every random draw (default 0)")
-    p.add_argument("--time-budget", type=_SECONDS, default=None, metavar="SECONDS",
-                   help="stop searching after this long and report the best found (marked not proven exact)")
+
+#: Settings of each command (in --help order).
+_TABLE_SETTINGS = ("response", "predictors", "always_include", "leave_out", "row_weights", "incomplete_rows",
+                   "keep_id_columns", "decimal_mark", "time_ordered", "forms", "fractional_polynomials", "shifts",
+                   "interactions", "response_form", "prefer", "twin_limit", "vif_limit", "curvature_test")
+_SEARCH_SETTINGS = _TABLE_SETTINGS + ("methods", "method_options", "exact_limit", "criterion", "aim",
+                                      "parameter_count", "shortlist_size", "keep_within", "folds", "resamples",
+                                      "honest_folds", "seed", "workers", "backend", "scheduler",
+                                      "scheduler_timeout", "time_budget", "output")
+_RUN_SETTINGS = ("workers", "backend", "scheduler", "scheduler_timeout")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -219,7 +151,8 @@ def build_parser() -> argparse.ArgumentParser:
         prog="selectkit",
         allow_abbrev=False,
         description="Find which predictors, in which forms, give a defensible linear regression model.",
-        epilog="Cautions: p-values of a selected model are optimistic; association is not causation; "
+        epilog="Every setting has the same name here (with dashes), in a job file and in selectkit.search(). "
+               "Cautions: p-values of a selected model are optimistic; association is not causation; "
                "the decision rests with the practitioner.",
     )
     parser.add_argument("--version", action="version", version=f"selectkit {__version__}")
@@ -229,29 +162,29 @@ def build_parser() -> argparse.ArgumentParser:
     common = _Parser(add_help=False, allow_abbrev=False)
     common.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                         help="show the full traceback on errors")
+    table_help = "CSV or Parquet file (delimiter, decimal mark and encoding are detected)"
 
     p = commands.add_parser("search", parents=[common], help="search a table, write the shortlist and the report",
                             description="Search for the best linear models of a response and write the "
                                         "shortlist (CSV, JSON) and a self-contained HTML report.")
-    _add_table_roles(p)
-    _add_search_options(p)
-    p.add_argument("-o", "--out", default="selectkit-output", metavar="FOLDER",
-                   help="folder for the shortlist and the report (default: selectkit-output)")
+    p.add_argument("table", help=table_help)
+    _add_settings(p, _SEARCH_SETTINGS, required=("response",))
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    _add_former_flags(p)
 
     p = commands.add_parser("forms", parents=[common], help="list the candidate terms a table gives",
                             description="Read a table and list every candidate term (and every refused form, "
                                         "with the reason) without searching.")
-    _add_table_roles(p)
+    p.add_argument("table", help=table_help)
+    _add_settings(p, _TABLE_SETTINGS, required=("response",))
     p.add_argument("--save", default=None, metavar="CSV", help="also write the list as CSV")
+    _add_former_flags(p)
 
     p = commands.add_parser("demo", parents=[common], help="run the whole job on the bundled greenhouse data",
                             description="Run intake, candidates, search, ranking, checks and the report on "
-                                        "the bundled invented greenhouse data.")
-    p.add_argument("-o", "--out", default="selectkit-demo", metavar="FOLDER",
-                   help="folder for the outputs (default: selectkit-demo)")
-    p.add_argument("--workers", type=_WORKERS, default=1, metavar="N", help="worker processes (-1: all cores)")
-    p.add_argument("--seed", type=_SEED, default=0, help="seed of every random draw (default 0)")
+                                        "the bundled invented greenhouse data (outputs in selectkit-demo).")
+    _add_settings(p, ("output", "workers", "seed"))
+    _add_former_flags(p)
 
     job = commands.add_parser("job", parents=[common], help="overnight jobs: job files, run stores, resume, status",
                               description="Run long searches from a job file with a run store that survives "
@@ -259,10 +192,11 @@ def build_parser() -> argparse.ArgumentParser:
     jobs = job.add_subparsers(dest="job_command", metavar="JOB_COMMAND")
     j = jobs.add_parser("new", parents=[common], help="write a commented starter job file for a table")
     j.add_argument("table")
-    j.add_argument("-o", "--out", default=None, metavar="JOB_FILE",
-                   help="where to write it (default: the table's name with .toml, in this folder)")
-    j.add_argument("-r", "--response", default=None)
+    j.add_argument("-o", "--output", default=None, metavar="JOB_FILE",
+                   help="where to write the job file (default: the table's name with .toml, in this folder)")
+    _add_settings(j, ("response",))
     j.add_argument("--force", action="store_true", help="overwrite an existing job file")
+    _add_former_flags(j)
     j = jobs.add_parser("run", parents=[common], help="run a job file (continues its run store if one exists)")
     j.add_argument("job_file")
     j.add_argument("--fresh", action="store_true",
@@ -273,88 +207,15 @@ def build_parser() -> argparse.ArgumentParser:
                         description="Continue a job from its run store. Only where and how long it runs may "
                                     "change; everything that decides what is found comes from the store.")
     j.add_argument("folder")
-    j.add_argument("--workers", type=_WORKERS, default=None, metavar="N",
-                   help="worker processes for the rest of the job (-1: all cores)")
-    j.add_argument("--backend", default=None, help="joblib backend for the rest of the job (e.g. dask)")
-    j.add_argument("--scheduler", default=None, metavar="ADDRESS", help="Dask scheduler address")
-    j.add_argument("--scheduler-timeout", type=_number_at_least(0, "a positive number of seconds", strictly=True),
-                   default=None, metavar="SECONDS", help="how long to wait for the Dask scheduler to answer")
-    j.add_argument("--time-budget", default=None, metavar="DURATION",
-                   help="new time budget from now: seconds or text such as 8h, 90m")
+    _add_settings(j, _RUN_SETTINGS + ("time_budget",))
     j.add_argument("--quiet", action="store_true", help="no progress bar or progress lines")
+    _add_former_flags(j)
     j = jobs.add_parser("status", parents=[common], help="show the progress of a job (safe while it runs)")
     j.add_argument("folder")
     return parser
 
 
 # ---------------------------------------------------------------------------------------------------
-
-
-def _response_form(text):
-    if text is None:
-        return None
-    text = text.strip().lower()
-    if text.startswith("boxcox:"):
-        try:
-            return ("boxcox", float(text.split(":", 1)[1]))
-        except ValueError:
-            raise SelectkitError(f"--response-form {text!r}: write boxcox:LAMBDA with a number, e.g. boxcox:0.5")
-    return text
-
-
-def _shifts(items):
-    shifts = {}
-    for item in items:
-        if "=" not in item:
-            raise SelectkitError(f"--shift {item!r}: write COL=C, e.g. --shift bay_age_years=1 or COL=auto")
-        col, value = item.split("=", 1)
-        value = value.strip()
-        if value != "auto":
-            try:
-                value = float(value)
-            except ValueError:
-                raise SelectkitError(f"--shift {item!r}: C must be a number or 'auto'")
-        shifts[col.strip()] = value
-    return shifts
-
-
-def _table_options(args) -> dict:
-    return dict(
-        response=args.response,
-        predictors=args.only,
-        forced=args.keep_in,
-        exclude=args.leave_out,
-        weights=args.row_weights,
-        missing="drop" if args.drop_incomplete_rows else "refuse",
-        keep_identifiers=args.keep_id_columns,
-        decimal_mark=args.decimal_mark,
-        forms=args.forms,
-        fractional_polynomials=args.fractional_powers,
-        shifts=_shifts(args.shift),
-        interactions=args.pairwise_products,
-        response_transform=_response_form(args.response_form),
-        prefer=args.prefer,
-        twin_limit=None if args.keep_twins else 0.999,
-        vif_limit=None if args.keep_twins else 1000.0,
-        curvature_test=not args.all_forms,
-    )
-
-
-def _search_options(args) -> dict:
-    return dict(
-        methods=tuple(args.methods or ("auto",)),
-        aim=args.aim,
-        criterion=args.rank_by,
-        convention=args.convention,
-        shortlist_size=args.top,
-        max_delta=args.within_delta,
-        folds=args.folds,
-        stability=args.resamples,
-        honest_folds=args.honest_error,
-        time_ordered=args.rows_in_time_order,
-        seed=args.seed,
-        time_budget=args.time_budget,
-    )
 
 
 def _say(text: str = "", *, quiet: bool = False) -> None:
@@ -375,7 +236,7 @@ def _search_and_write(setup, *, out, workers=1, backend="loky", scheduler=None, 
     founds = api.run_methods(setup, n_jobs=workers, backend=backend, scheduler=scheduler,
                              on_unit=lambda key, result: bar.update(1))
     bar.close()
-    extra = [what for what, wanted in (("bootstrap resamples", setup.settings["stability"]),
+    extra = [what for what, wanted in (("bootstrap resamples", setup.settings["resamples"]),
                                        ("outer folds for the honest error", setup.settings["honest_folds"]))
              if wanted]
     if show:
@@ -388,11 +249,16 @@ def _search_and_write(setup, *, out, workers=1, backend="loky", scheduler=None, 
 def _run_search(args) -> int:
     from . import api
 
+    from . import settings
+
     started = time.perf_counter()
-    api.check_output_folder(args.out)  # settings that can be checked before any work, checked first
-    api.check_run_options(n_jobs=args.workers, backend=args.backend, scheduler=args.scheduler,
-                          timeout=args.scheduler_timeout)
-    setup = api.prepare_search(args.table, **_table_options(args), **_search_options(args))
+    given = _given(args, _SEARCH_SETTINGS)
+    s = settings.resolve(given)  # every setting checked before any work
+    api.check_output_folder(s["output"])
+    api.check_run_options(n_jobs=s["workers"], backend=s["backend"], scheduler=s["scheduler"],
+                          timeout=s["scheduler_timeout"])
+    given.pop("output", None)
+    setup = api.prepare_search(args.table, **given)
     for note in setup.dataset.report.notes:
         if note.kind in ("warning", "dropped"):
             _say(f"note: {note.message}", quiet=args.quiet)
@@ -402,8 +268,8 @@ def _run_search(args) -> int:
     _say(f"read {setup.dataset.n} rows; {len(setup.candidates.terms)} candidate terms from "
          f"{len(setup.candidates.families)} variables; running: {', '.join(r.name for r in setup.runs)}",
          quiet=args.quiet)
-    result, paths = _search_and_write(setup, out=args.out, workers=args.workers, backend=args.backend,
-                                      scheduler=args.scheduler, quiet=args.quiet)
+    result, paths = _search_and_write(setup, out=s["output"], workers=s["workers"], backend=s["backend"],
+                                      scheduler=s["scheduler"], quiet=args.quiet)
     _say(result.summary(), quiet=args.quiet)
     for label, path in paths.items():
         _say(f"  {label}: {path}", quiet=args.quiet)
@@ -412,17 +278,9 @@ def _run_search(args) -> int:
 
 
 def _run_forms(args) -> int:
-    from . import candidates as _candidates
-    from . import data as _data
+    from . import api
 
-    opts = _table_options(args)
-    build = {k: opts.pop(k) for k in ("fractional_polynomials", "shifts", "interactions", "response_transform",
-                                     "prefer", "twin_limit", "vif_limit", "curvature_test")}
-    forms = opts.pop("forms")
-    if forms is not None:
-        build["forms"] = tuple(forms)
-    dataset = _data.prepare(args.table, **opts)
-    cands = _candidates.build_candidates(dataset, **build)
+    dataset, cands = api.prepare_candidates(args.table, **_given(args, _TABLE_SETTINGS))
     for note in dataset.report.notes:
         _show(f"note: {note.message}")
     for note in cands.notes:
@@ -460,9 +318,14 @@ def _run_demo(args) -> int:
     print(f"demo: invented greenhouse data, {len(data)} bay-seasons, {data.shape[1] - 1} measurements ({where})")
     print(f"demo: the data were generated from: {TRUE_EQUATION}")
     started = time.perf_counter()
-    setup = api.prepare_search(data, response=RESPONSE, seed=args.seed, honest_folds=5)
+    from . import settings
+
+    s = settings.resolve(_given(args, ("output", "workers", "seed")), allowed=("output", "workers", "seed"))
+    output = s["output"] if hasattr(args, "output") else "selectkit-demo"
+    api.check_output_folder(output)
+    setup = api.prepare_search(data, response=RESPONSE, seed=s["seed"], honest_folds=5)
     print(f"demo: {len(setup.candidates.terms)} candidate terms; running {', '.join(r.name for r in setup.runs)}")
-    result, paths = _search_and_write(setup, out=args.out, workers=args.workers)
+    result, paths = _search_and_write(setup, out=output, workers=s["workers"])
     _show(result.summary())
     found = recovery(result)
     if not found.missing_variables and not found.extra_variables:
@@ -488,20 +351,18 @@ def _run_job(args) -> int:
     from . import jobs
 
     if args.job_command == "new":
-        out = Path(args.out) if args.out else Path(Path(args.table).stem + ".toml")
+        out = Path(args.output) if args.output else Path(Path(args.table).stem + ".toml")
         if out.exists() and not args.force:
-            raise SelectkitError(f"{out} exists; choose another name with -o or pass --force to overwrite")
+            raise SelectkitError(f"{out} exists; choose another name with --output or pass --force to overwrite")
         from ._io import atomic_write_text
 
-        atomic_write_text(out, jobs.starter_job(args.table, response=args.response, job_file=out))
+        atomic_write_text(out, jobs.starter_job(args.table, response=getattr(args, "response", None), job_file=out))
         _show(f"wrote {out}; fill in what it asks, then: selectkit job run {out}")
         return 0
     if args.job_command == "run":
         outcome = jobs.run_job(args.job_file, resume=not args.fresh, progress=False if args.quiet else None)
     elif args.job_command == "resume":
-        given = {key: getattr(args, key) for key in ("workers", "backend", "scheduler", "scheduler_timeout",
-                                                     "time_budget")
-                 if getattr(args, key) is not None}
+        given = _given(args, _RUN_SETTINGS + ("time_budget",))
         outcome = jobs.resume_job(args.folder, progress=False if args.quiet else None, **given)
     elif args.job_command == "status":
         _show(jobs.store_status(args.folder).render())
@@ -577,9 +438,12 @@ def _main(argv) -> int:
 
 
 def _run_command(args) -> int:
+    from . import settings
+
     handlers = {"search": _run_search, "forms": _run_forms, "demo": _run_demo, "job": _run_job}
     try:
-        return handlers[args.command](args)
+        with settings.speaking(settings.CLI):  # hints name flags, not keywords
+            return handlers[args.command](args)
     except SelectkitError as err:
         if args.debug:
             raise

@@ -29,6 +29,7 @@ import pandas as pd
 from . import _csvsniff
 from ._csvsniff import DECIMAL_MARKS
 from ._identifiers import distinct_integers, identifier_evidence
+from .settings import spell
 from .errors import DataFileError, InputError, OptionError
 
 __all__ = [
@@ -278,8 +279,8 @@ def _check_decimal_mark(decimal_mark):
     words = {"point": ".", "dot": ".", "comma": ","}
     if isinstance(decimal_mark, str) and decimal_mark.strip().lower() in words:
         return words[decimal_mark.strip().lower()]
-    raise OptionError(f"decimal_mark={decimal_mark!r} is not a decimal mark; use '.' (a point) or ',' (a comma), "
-                      f"or leave it out to decide it from the numbers of the file")
+    raise OptionError(f"{spell('decimal_mark', decimal_mark)} is not a decimal mark; use '.' (a point) or ',' "
+                      f"(a comma), or leave it out to decide it from the numbers of the file")
 
 
 def read_table(source, *, encoding: str | None = None, decimal_mark: str | None = None,
@@ -375,8 +376,8 @@ def read_table(source, *, encoding: str | None = None, decimal_mark: str | None 
             raise OptionError(f"encoding= applies to CSV files only; '{path.name}' is a Parquet file, which "
                               f"records its own text encoding — leave encoding out")
         if decimal_mark is not None:
-            raise OptionError(f"decimal_mark= applies to CSV files only; '{path.name}' is a Parquet file, which "
-                              f"stores numbers, not text — leave decimal_mark out")
+            raise OptionError(f"{spell('decimal_mark')} applies to CSV files only; '{path.name}' is a Parquet "
+                              f"file, which stores numbers, not text — leave it out")
         return _read_parquet(path)
     return _read_csv(path, encoding, compression, decimal_mark)
 
@@ -516,9 +517,10 @@ def _classify(series: pd.Series, name: str, notes: list[Note], decimal: str | No
     dtype = series.dtype
     if _is_date_like(series):
         raise InputError(f"column '{name}' holds dates or time spans (type {dtype}); convert it to a number "
-                         f"(e.g. days since the first planting) or pass exclude=['{name}']", column=name)
+                         f"(e.g. days since the first planting) or leave it out ({spell('leave_out', [name])})", column=name)
     if pd.api.types.is_complex_dtype(dtype):
-        raise InputError(f"column '{name}' holds complex numbers; pass exclude=['{name}']", column=name)
+        raise InputError(f"column '{name}' holds complex numbers; leave it out ({spell('leave_out', [name])})",
+                         column=name)
     if isinstance(dtype, pd.CategoricalDtype) or pd.api.types.is_bool_dtype(dtype):
         return "categorical", series.astype(object)
     if pd.api.types.is_numeric_dtype(dtype):
@@ -528,7 +530,7 @@ def _classify(series: pd.Series, name: str, notes: list[Note], decimal: str | No
         return "numeric", _as_float(series)
     if inferred in ("datetime", "datetime64", "date", "timedelta", "timedelta64", "time", "period"):
         raise InputError(f"column '{name}' holds dates or times; convert it to a number (e.g. days since the "
-                         f"first planting) or pass exclude=['{name}']", column=name)
+                         f"first planting) or leave it out ({spell('leave_out', [name])})", column=name)
     values = series.astype(object)
     counts = values.value_counts(dropna=True)  # judged on distinct values, weighted by their counts
     if len(counts):
@@ -547,8 +549,8 @@ def _classify(series: pd.Series, name: str, notes: list[Note], decimal: str | No
             notes.append(Note(name, "warning",
                               f"column '{name}' is read as text, but {int(weight[comma].sum())} of its {total} values "
                               f"look like numbers with a decimal comma; it is treated as categorical — save the "
-                              f"file with one decimal mark, or pass decimal_mark=',' (--decimal-mark ,), to use it "
-                              f"as a number"))
+                              f"file with one decimal mark, or give {spell('decimal_mark', ',')}, to use it as a "
+                              f"number"))
         elif weight[numeric].sum() >= 0.8 * total:
             odd = int(weight[~numeric].sum())
             example = text[~numeric].iloc[0]
@@ -712,8 +714,9 @@ def _set_aside_collinear(n, order, kinds, numeric_values, categoricals, forced, 
         key = _partition_key(codes)
         if key in partitions:
             if name in forced:
-                raise InputError(f"forced column '{name}' groups the rows exactly as '{partitions[key]}' does; "
-                                 f"force only one of them", column=name)
+                raise InputError(f"column '{name}', which every model must hold, groups the rows exactly "
+                                 f"as '{partitions[key]}' does; keep only one of them in "
+                                 f"{spell('always_include')}", column=name)
             dropped.append(name)
             notes.append(Note(name, "dropped", f"column '{name}' groups the rows exactly as '{partitions[key]}' "
                                                f"does (same {width + 1} groups); '{name}' was dropped"))
@@ -775,9 +778,9 @@ def _set_aside_collinear(n, order, kinds, numeric_values, categoricals, forced, 
         else:
             sentence = _describe_combination(name, x, span.combination(coef), kept)
         if name in forced:
-            raise InputError(f"forced column {sentence}; "
-                             f"a model cannot hold it with the columns it depends on — force fewer columns or "
-                             f"exclude one of them", column=name)
+            raise InputError(f"column {sentence}; it is in {spell('always_include')}, but a model cannot hold "
+                             f"it with the columns it depends on — name fewer columns there or leave one of "
+                             f"them out", column=name)
         dropped.append(name)
         notes.append(Note(name, "dropped", f"column {sentence}; it adds nothing to a model holding the columns it "
                                            f"depends on, so '{name}' was dropped and they were kept"))
@@ -796,7 +799,7 @@ def _rows_to_keep(missing_masks, n_read: int, missing: str, notes: list[Note]):
     listing = ", ".join(f"'{name}' ({_plural(c, 'row')})" for name, c in counts)
     if missing == "refuse":
         raise InputError(f"missing values in {listing}; {_plural(dropped_rows.size, 'row')} of {n_read} have at "
-                         f"least one — pass missing='drop' to drop those rows, or fill the values in first",
+                         f"least one — give {spell('incomplete_rows', 'drop')} to drop those rows, or fill the values in first",
                          column=counts[0][0], counts=dict(counts), n_rows=int(dropped_rows.size))
     if not keep.any():
         raise InputError(f"every one of the {n_read} rows has a missing value (in {listing}); no rows are left "
@@ -859,30 +862,30 @@ def _assign_roles(columns, *, response, weights, given, forced, exclude, keep_id
     _require_column(response, columns, "response")
     if weights is not None:
         _require_column(weights, columns, "weights")
-    for role, names in (("predictor", given or ()), ("forced", forced), ("excluded", exclude),
-                        ("keep_identifiers", keep_identifiers)):
+    for role, names in (("predictor", given or ()), ("always-included", forced), ("left-out", exclude),
+                        ("identifier-like", keep_identifiers)):
         for name in names:
             _require_column(name, columns, role)
 
-    for role, names in (("predictors", given or ()), ("forced", forced), ("exclude", exclude)):
+    for role, names in (("predictors", given or ()), ("always_include", forced), ("leave_out", exclude)):
         if response in names:
-            raise InputError(f"'{response}' is the response and cannot also be listed in {role}=; "
-                             f"remove it from {role}", column=response)
+            raise InputError(f"'{response}' is the response and cannot also be listed in {spell(role)}; "
+                             f"remove it from there", column=response)
     if weights is not None:
         if weights == response:
             raise InputError(f"'{weights}' cannot be both the response and the weights", column=weights)
-        for role, names in (("predictors", given or ()), ("forced", forced)):
+        for role, names in (("predictors", given or ()), ("always_include", forced)):
             if weights in names:
-                raise InputError(f"'{weights}' is the weights column and cannot also be listed in {role}=; "
+                raise InputError(f"'{weights}' is the weights column and cannot also be listed in {spell(role)}; "
                                  f"weights are not a predictor", column=weights)
     for name in forced:
         if name in exclude:
-            raise InputError(f"column '{name}' is both forced and excluded; remove it from one of the two",
-                             column=name)
+            raise InputError(f"column '{name}' is in both {spell('always_include')} and {spell('leave_out')}; "
+                             f"remove it from one of the two", column=name)
     for name in given or ():
         if name in exclude:
-            raise InputError(f"column '{name}' is both listed in predictors= and excluded; remove it from one "
-                             f"of the two", column=name)
+            raise InputError(f"column '{name}' is in both {spell('predictors')} and {spell('leave_out')}; "
+                             f"remove it from one of the two", column=name)
 
     if given is None:
         pool = [c for c in columns if c not in (response, weights) and c not in exclude]
@@ -890,12 +893,13 @@ def _assign_roles(columns, *, response, weights, given, forced, exclude, keep_id
         pool = list(given)
     for name in forced:
         if name not in pool:
-            raise InputError(f"forced column '{name}' is not among the predictors; add it to predictors=",
-                             column=name)
+            raise InputError(f"column '{name}' is in {spell('always_include')} but not among the predictors; "
+                             f"add it to {spell('predictors')}", column=name)
     for name in keep_identifiers:
         if name not in pool:
-            raise InputError(f"keep_identifiers names '{name}', which is not among the predictors; add it to "
-                             f"predictors= or remove it from keep_identifiers", column=name)
+            raise InputError(f"{spell('keep_id_columns')} names '{name}', which is not among the predictors; "
+                             f"add it to {spell('predictors')} or remove it from {spell('keep_id_columns')}",
+                             column=name)
     if not pool:
         raise InputError(f"the table has no column besides the response '{response}'"
                          f"{' and the weights' if weights else ''} to use as a predictor; check that the file was "
@@ -903,7 +907,8 @@ def _assign_roles(columns, *, response, weights, given, forced, exclude, keep_id
     return pool
 
 
-_KEEP_HINT = "list it in keep_identifiers= (--keep-id-columns at the command line)"
+def _keep_hint(name) -> str:
+    return f"list it in {spell('keep_id_columns', [name])}"
 
 
 def _set_aside_identifiers(pool, kinds, values, response, y, keep_identifiers, forced, notes, set_aside_column):
@@ -928,8 +933,8 @@ def _set_aside_identifiers(pool, kinds, values, response, y, keep_identifiers, f
                     why = (f"its {evidence.n_values} values are distinct integers, but nothing else marks it as an "
                            f"identifier (no id-like name, and its values do not step evenly like a row number), so "
                            f"it is kept as a predictor")
-                notes.append(Note(name, "info", f"column '{name}': {why}; to leave it out, pass exclude=['{name}'] "
-                                                f"(--leave-out at the command line)"))
+                notes.append(Note(name, "info", f"column '{name}': {why}; to leave it out, give "
+                                                f"{spell('leave_out', [name])}"))
                 continue
         if name in keep_identifiers or name in forced:
             notes.append(Note(name, "warning", f"column '{name}' looks like a row identifier ({reasons}) but is "
@@ -940,7 +945,7 @@ def _set_aside_identifiers(pool, kinds, values, response, y, keep_identifiers, f
         caution = (f"; note that {relation} — if the rows are in time or position order, that order may matter"
                    if relation else "")
         notes.append(Note(name, "dropped", f"column '{name}' looks like a row identifier ({reasons}) and was "
-                                           f"excluded{caution}; to use it as a predictor, {_KEEP_HINT}"))
+                                           f"excluded{caution}; to use it as a predictor, {_keep_hint(name)}"))
     return identifier_names
 
 
@@ -1074,7 +1079,7 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
         count_missing = int(np.isnan(v).sum()) if kinds[name] == "numeric" else int(v.isna().sum())
         if count_missing == n_read:
             if name in forced:
-                raise InputError(f"forced column '{name}' has no values (all {n_read} rows are missing); "
+                raise InputError(f"always-included column '{name}' has no values (all {n_read} rows are missing); "
                                  f"fill it in or un-force it", column=name)
             set_aside_column(name)
             notes.append(Note(name, "dropped", f"column '{name}' was dropped: all {n_read} of its values are missing"))
@@ -1125,7 +1130,7 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
             x = values[name][keep]
             if np.ptp(x) == 0:
                 if name in forced:
-                    raise InputError(f"forced column '{name}' is constant ({_format_number(x[0])} in all {n} rows "
+                    raise InputError(f"always-included column '{name}' is constant ({_format_number(x[0])} in all {n} rows "
                                      f"used); it cannot be estimated beside the intercept — un-force it",
                                      column=name)
                 set_aside_column(name)
@@ -1138,7 +1143,7 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
             cat = _categorical(column, name, notes)
             if len(cat.categories) < 2:
                 if name in forced:
-                    raise InputError(f"forced column '{name}' has a single level ({cat.categories[0]!r}) in all "
+                    raise InputError(f"always-included column '{name}' has a single level ({cat.categories[0]!r}) in all "
                                      f"{n} rows used; it cannot be estimated — un-force it", column=name)
                 set_aside_column(name)
                 notes.append(Note(name, "dropped", f"column '{name}' was dropped: it has a single level "
@@ -1152,7 +1157,7 @@ def prepare(source, *, response: str, predictors=None, forced=(), exclude=(), we
                 if name not in keep_identifiers and name not in forced:
                     set_aside_column(name)
                     notes.append(Note(name, "dropped", f"{sentence}, so it was set aside as a label; to use it "
-                                                       f"anyway, {_KEEP_HINT}, or merge its rare levels first"))
+                                                       f"anyway, {_keep_hint(name)}, or merge its rare levels first"))
                     continue
                 notes.append(Note(name, "warning", f"{sentence}; it is kept as a predictor, as asked"))
             level_counts = pd.Series(cat.codes).value_counts()

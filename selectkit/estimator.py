@@ -38,9 +38,10 @@ class SubsetRegressor(RegressorMixin, TransformerMixin, BaseEstimator):
     model_rank : int, default 0
         Which shortlisted model to use (0 = best).
     seed : int, default 0
-    n_jobs : int, default 1
+    workers : int, default 1
+        Worker processes (-1: every core), as :func:`selectkit.search` names them.
     search_options : dict, optional
-        Any other keyword of :func:`selectkit.search`.
+        Any other setting of :func:`selectkit.search`, by the same name.
 
     Attributes
     ----------
@@ -59,7 +60,7 @@ class SubsetRegressor(RegressorMixin, TransformerMixin, BaseEstimator):
     Notes
     -----
     Predictions are on the scale of the searched response: when the search
-    used a transformed response (e.g. ``response_transform="log"``), back-transform
+    used a transformed response (e.g. ``response_form="log"``), back-transform
     them yourself, remembering that the naive back-transform of a log model
     estimates the median, not the mean.
 
@@ -74,14 +75,14 @@ class SubsetRegressor(RegressorMixin, TransformerMixin, BaseEstimator):
     """
 
     def __init__(self, methods=("auto",), aim="predict", criterion=None, forms=None, model_rank=0, seed=0,
-                 n_jobs=1, search_options=None):
+                 workers=1, search_options=None):
         self.methods = methods
         self.aim = aim
         self.criterion = criterion
         self.forms = forms
         self.model_rank = model_rank
         self.seed = seed
-        self.n_jobs = n_jobs
+        self.workers = workers
         self.search_options = search_options
 
     def fit(self, X, y):
@@ -100,7 +101,7 @@ class SubsetRegressor(RegressorMixin, TransformerMixin, BaseEstimator):
         if self.forms is not None:
             options["forms"] = tuple(self.forms)
         result = search(frame, response=_RESPONSE, methods=self.methods, aim=self.aim, criterion=self.criterion,
-                        seed=self.seed, n_jobs=self.n_jobs, **options)
+                        seed=self.seed, workers=self.workers, **options)
         self.result_ = result
         self.terms_ = result.terms(self.model_rank)
         params = np.asarray(result.model(self.model_rank).params, dtype=float)

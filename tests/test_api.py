@@ -86,8 +86,8 @@ def test_repr_html_escapes_user_strings():
 
 def test_same_shortlist_for_one_and_two_workers():
     frame = _small_frame()
-    one = selectkit.search(frame, response="yield_kg_m2", methods=("exhaustive", "stepwise"), n_jobs=1, seed=4)
-    two = selectkit.search(frame, response="yield_kg_m2", methods=("exhaustive", "stepwise"), n_jobs=2, seed=4)
+    one = selectkit.search(frame, response="yield_kg_m2", methods=("exhaustive", "stepwise"), workers=1, seed=4)
+    two = selectkit.search(frame, response="yield_kg_m2", methods=("exhaustive", "stepwise"), workers=2, seed=4)
     pd.testing.assert_frame_equal(one.shortlist, two.shortlist)
 
 
@@ -104,8 +104,11 @@ def test_unknown_method_setting_suggests_nearest():
 
 @pytest.mark.parametrize("options, words", [
     ({"methods": ("both",)}, "did you mean 'stepwise'"),
-    ({"convention": "statsmodels"}, "did you mean 'coefficients-only'"),
-    ({"convention": "selectkit"}, "did you mean 'sigma-counted'"),
+    ({"parameter_count": "statsmodels"}, "did you mean 'coefficients-only'"),
+    ({"parameter_count": "selectkit"}, "did you mean 'sigma-counted'"),
+    ({"convention": "sigma-counted"}, "did you mean parameter_count="),
+    ({"n_jobs": 2}, "did you mean workers="),
+    ({"forced": ["x"]}, "did you mean always_include="),
     ({"methods": ("stepwise",), "method_options": {"stepwise": {"direction": "forward"}}},
      "did you mean methods=('forward',)"),
     ({"methods": ("forward",), "method_options": {"both": {}}}, "did you mean 'stepwise'"),

@@ -11,6 +11,8 @@ from __future__ import annotations
 
 import pickle
 import time
+
+import pytest
 from dataclasses import replace
 
 import numpy as np
@@ -45,7 +47,7 @@ def test_deadline_counts_down_pickles_and_is_not_restarted():
 
 def _slow_setup(frame, *, budget, stability=0, honest_folds=0, delay=0.05, chunks=4):
     """A real setup (intake, candidates, moments) whose one search is the slow stand-in."""
-    setup = api.prepare_search(frame, response="yield_kg_m2", forms=["identity"], stability=stability,
+    setup = api.prepare_search(frame, response="yield_kg_m2", forms=["identity"], resamples=stability,
                                honest_folds=honest_folds, folds=3, seed=2, time_budget=budget)
     run = MethodRun(name="exhaustive", module_name="tests.test_jobs", options=FakeOptions(chunks=chunks, delay=delay))
     return replace(setup, runs=(run,))
@@ -212,5 +214,6 @@ def test_job_resume_accepts_the_durations_the_help_promises(tmp_path, capsys, mo
     monkeypatch.chdir(tmp_path)
     for given in ("60", "1m", "90s", "0.5h"):
         assert main(["job", "resume", "results", "--time-budget", given, "--quiet"]) == 0, capsys.readouterr().err
-    code = main(["job", "resume", "results", "--time-budget", "soon", "--quiet"])
-    assert code == 2 and "not a duration" in capsys.readouterr().err
+    with pytest.raises(SystemExit) as stop:  # a usage error: argparse exits with 2
+        main(["job", "resume", "results", "--time-budget", "soon", "--quiet"])
+    assert stop.value.code == 2 and "not a duration" in capsys.readouterr().err

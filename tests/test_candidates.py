@@ -139,7 +139,7 @@ def test_domain_refusals_name_the_count_and_the_fix():
     reason = log_co2["reason"].iloc[0]
     assert reason.startswith("3 of 120 values are zero; log is undefined there")
     assert "shifts={'co2_above': 1}" in reason and "log(co2_above + 1)" in reason
-    assert "--shift co2_above=1" in reason
+    assert "shifts={'co2_above': 1}" in reason
     assert "log(co2_above)" not in set(cands.names)
     sqrt_temp = refused[(refused["family"] == "night_temp") & (refused["form"] == "sqrt")]
     n_negative = int((ds.frame["night_temp"] < 0).sum())
@@ -149,7 +149,7 @@ def test_domain_refusals_name_the_count_and_the_fix():
     (pole,) = refused[(refused["family"] == "night_temp") & (refused["form"] == "reciprocal")]["reason"]
     low, high = ds.frame["night_temp"].min(), ds.frame["night_temp"].max()
     assert pole.startswith(f"night_temp crosses zero (min {tf.format_number(low)}, max {tf.format_number(high)})")
-    assert "pole inside the data" in pole and "--shift night_temp=" in pole
+    assert "pole inside the data" in pole and "shifts={'night_temp': " in pole
     # every refusal is a Refusal with family, form and reason
     assert all(isinstance(r, Refusal) and r.reason for r in cands.refused)
 
@@ -591,7 +591,7 @@ def test_a_variable_crossing_zero_gets_no_form_with_a_pole_and_the_table_says_wh
     report = cands.describe().set_index("form")
     reason = report.loc["reciprocal", "reason"]
     assert reason.startswith("night_temp_c crosses zero (min -9.1, max 38.9); reciprocal has a pole inside")
-    assert "--shift night_temp_c=10.1" in reason and "or leave the form out" in reason
+    assert "shifts={'night_temp_c': 10.1}" in reason and "or leave the form out" in reason
     for form in ("log", "sqrt"):
         assert report.loc[form, "status"] == "refused"
 
@@ -664,7 +664,7 @@ def test_near_duplicate_variables_are_named_and_one_is_set_aside():
     r = abs(np.corrcoef(np.log(frame["light_mol"]), np.log(frame["light_lux_index"]))[0, 1])
     assert 0.999 <= r < 0.99999
     assert f"near-duplicate of light_mol (|r| = {r:.6f} between log(light_mol) and log(light_lux_index)" in aside.reason
-    assert "more usable forms (6 to 5)" in aside.reason and "--prefer" in aside.reason
+    assert "more usable forms (6 to 5)" in aside.reason and "prefer=['light_lux_index']" in aside.reason
     (note,) = [m for m in cands.notes if m.startswith("near-duplicates:")]
     assert "light_mol and light_lux_index" in note and "set light_lux_index aside" in note
     # the user picks the other one

@@ -23,7 +23,7 @@ def table(tmp_path):
 
 def test_missing_response_column_is_one_line_exit_2_and_writes_nothing(table, tmp_path):
     out = tmp_path / "out"
-    proc = _run("search", str(table), "--response", "yeild_kg_m2", "--out", str(out))
+    proc = _run("search", str(table), "--response", "yeild_kg_m2", "--output", str(out))
     assert proc.returncode == 2
     lines = proc.stderr.strip().splitlines()
     assert len(lines) == 1 and "yeild_kg_m2" in lines[0]
@@ -43,8 +43,8 @@ def test_debug_shows_the_traceback(tmp_path):
 
 def test_search_writes_shortlist_and_report(table, tmp_path, capsys):
     out = tmp_path / "results"
-    code = main(["search", str(table), "-r", "yield_kg_m2", "--method", "exhaustive", "--forms",
-                 "identity,log,reciprocal", "--out", str(out)])
+    code = main(["search", str(table), "-r", "yield_kg_m2", "--methods", "exhaustive", "--forms",
+                 "identity,log,reciprocal", "--output", str(out)])
     assert code == 0
     written = sorted(p.name for p in out.iterdir())
     assert any(name.endswith(".csv") for name in written)

@@ -75,23 +75,27 @@ def test_an_abbreviated_option_is_refused_not_guessed(argv, typo, capsys):
 
 def test_whole_names_still_work():
     args = build_parser().parse_args(["search", "t.csv", "--response", "y", "--folds", "3", "--workers", "-1",
-                                      "--seed", "0", "--resamples", "0", "--honest-error", "0", "-m", "stepwise"])
-    assert (args.folds, args.workers, args.seed, args.resamples, args.honest_error) == (3, -1, 0, 0, 0)
+                                      "--seed", "0", "--resamples", "0", "--honest-folds", "0", "--methods", "stepwise"])
+    assert (args.folds, args.workers, args.seed, args.resamples, args.honest_folds) == (3, -1, 0, 0, 0)
 
 
 @pytest.mark.parametrize("argv, words", [
-    (["search", "t.csv", "-r", "y", "-m", "both"], "did you mean 'stepwise'"),
-    (["search", "t.csv", "-r", "y", "--statsmodels-convention"], "did you mean --count-parameters coefficients-only"),
-    (["search", "t.csv", "-r", "y", "--count-parameters", "statsmodels"], "did you mean 'coefficients-only'"),
+    (["search", "t.csv", "-r", "y", "--methods", "both"], "did you mean 'stepwise'"),
+    (["search", "t.csv", "-r", "y", "--statsmodels-convention"], "did you mean --parameter-count coefficients-only"),
+    (["search", "t.csv", "-r", "y", "--parameter-count", "statsmodels"], "did you mean 'coefficients-only'"),
 ])
 def test_former_names_are_refused_naming_the_new_one(argv, words, capsys):
     assert words in _refused(argv, capsys)
 
 
 def test_the_parameter_count_is_passed_on():
-    args = build_parser().parse_args(["search", "t.csv", "-r", "y", "--count-parameters", "coefficients-only"])
-    assert cli._search_options(args)["convention"] == "coefficients-only"
-    assert cli._search_options(build_parser().parse_args(["search", "t.csv", "-r", "y"]))["convention"] == \
+    args = build_parser().parse_args(["search", "t.csv", "-r", "y", "--parameter-count", "coefficients-only"])
+    from selectkit import settings
+
+    assert settings.resolve(cli._given(args, cli._SEARCH_SETTINGS), where="cli")["parameter_count"] == \
+        "coefficients-only"
+    plain = build_parser().parse_args(["search", "t.csv", "-r", "y"])
+    assert settings.resolve(cli._given(plain, cli._SEARCH_SETTINGS), where="cli")["parameter_count"] == \
         "sigma-counted"
 
 
@@ -100,25 +104,25 @@ def test_the_parameter_count_is_passed_on():
 
 @pytest.mark.parametrize("argv, words", [
     (["search", "t.csv", "-r", "y", "--resamples", "-1"], "--resamples"),
-    (["search", "t.csv", "-r", "y", "--top", "0"], "--top"),
+    (["search", "t.csv", "-r", "y", "--shortlist-size", "0"], "--shortlist-size"),
     (["search", "t.csv", "-r", "y", "--folds", "1"], "--folds"),
     (["search", "t.csv", "-r", "y", "--folds", "-5"], "--folds"),
-    (["search", "t.csv", "-r", "y", "--honest-error", "1"], "--honest-error"),
-    (["search", "t.csv", "-r", "y", "--honest-error", "-3"], "--honest-error"),
+    (["search", "t.csv", "-r", "y", "--honest-folds", "1"], "--honest-folds"),
+    (["search", "t.csv", "-r", "y", "--honest-folds", "-3"], "--honest-folds"),
     (["search", "t.csv", "-r", "y", "--workers", "0"], "--workers"),
     (["search", "t.csv", "-r", "y", "--workers", "-2"], "--workers"),
     (["search", "t.csv", "-r", "y", "--seed", "-1"], "--seed"),
-    (["search", "t.csv", "-r", "y", "--within-delta", "-0.5"], "--within-delta"),
+    (["search", "t.csv", "-r", "y", "--keep-within", "-0.5"], "--keep-within"),
     (["search", "t.csv", "-r", "y", "--time-budget", "0"], "--time-budget"),
     (["search", "t.csv", "-r", "y", "--time-budget", "nan"], "--time-budget"),
-    (["search", "t.csv", "-r", "y", "--resamples", "2.5"], "not a whole number"),
+    (["search", "t.csv", "-r", "y", "--resamples", "2.5"], "must be a whole number"),
     (["demo", "--workers", "0"], "--workers"),
     (["demo", "--seed", "-4"], "--seed"),
     (["job", "resume", "results", "--workers", "-7"], "--workers"),
 ])
 def test_a_negative_or_empty_count_is_refused_in_one_line(argv, words, capsys):
     line = _refused(argv, capsys)
-    assert words in line and "give" in line  # names the option and says what to give
+    assert words in line and ("must be" in line or "write" in line)  # names the option and says what it takes
 
 
 def test_the_refusal_holds_through_a_real_process(tmp_path):
@@ -126,8 +130,8 @@ def test_the_refusal_holds_through_a_real_process(tmp_path):
                           text=True, timeout=120, cwd=tmp_path, env=_environment())
     assert proc.returncode == 2
     assert proc.stderr.strip().splitlines() == [
-        "selectkit search: error: argument --resamples: -1 is too small; give 0 (skip) or a positive number of "
-        "resamples (see selectkit search --help)"]
+        "selectkit search: error: argument --resamples: must be 0 (skip) or a positive number of resamples "
+        "(got -1) (see selectkit search --help)"]
 
 
 # --------------------------------------------------------------------------- files that are not tables
@@ -146,7 +150,7 @@ def _nested_table(path):
     ("bays.csv", lambda p: p.write_bytes(bytes(range(256)) * 4), ["-r", "y"], "'bays.csv' looks like binary data"),
     ("bays.csv", lambda p: p.write_bytes(b"%PDF-1.4\n" + bytes(64)), ["-r", "y"], "looks like a PDF document"),
     ("bays.parquet", _nested_table, ["-r", "readings"], "response column 'readings' holds lists"),
-    ("bays.parquet", _nested_table, ["-r", "y", "--only", "x,readings"], "column 'readings' holds lists"),
+    ("bays.parquet", _nested_table, ["-r", "y", "--predictors", "x,readings"], "column 'readings' holds lists"),
 ])
 def test_a_file_that_is_not_a_table_gets_one_line_and_exit_2(tmp_path, capsys, monkeypatch, name, make, argv,
                                                              words):

@@ -57,7 +57,7 @@ def test_dask_job_resumes_a_store_started_locally(tmp_path, cluster):
     spec = _job(tmp_path, 'time_budget = "0.001s"\n')
     first = _run(spec, resume=True, progress=False, engine=TablesEngine())
     assert not first.complete and "time budget" in first.stopped_by
-    on_dask = _run(replace(spec, time_budget=None, workers=2, backend="dask", scheduler=cluster.scheduler_address),
+    on_dask = _run(spec.with_settings(time_budget=None, workers=2, backend="dask", scheduler=cluster.scheduler_address),
                    resume=True, progress=False, engine=TablesEngine())
     assert on_dask.complete and on_dask.units_resumed == first.units_done
 
@@ -75,5 +75,5 @@ def test_unreachable_scheduler_is_one_clear_error(tmp_path):
     with pytest.raises(OptionError, match="cannot reach the Dask scheduler"):
         runner._check_dask(spec.scheduler, timeout=2)
     with pytest.raises(OptionError, match="needs the address of a scheduler"):
-        _run(replace(spec, scheduler=None), resume=True, progress=False, engine=TablesEngine())
+        _run(spec.with_settings(scheduler=None), resume=True, progress=False, engine=TablesEngine())
     assert not (tmp_path / "results").exists()  # refused before the store was made

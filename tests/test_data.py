@@ -395,15 +395,15 @@ def test_response_written_as_numeric_text_is_accepted():
 
 
 @pytest.mark.parametrize("options, pattern", [
-    ({"forced": ["co2_pmm"]}, "forced column 'co2_pmm'.*did you mean 'co2_ppm'"),
-    ({"exclude": ["nite_temp_c"]}, "excluded column 'nite_temp_c'.*did you mean 'night_temp_c'"),
+    ({"forced": ["co2_pmm"]}, "always-included column 'co2_pmm'.*did you mean 'co2_ppm'"),
+    ({"exclude": ["nite_temp_c"]}, "left-out column 'nite_temp_c'.*did you mean 'night_temp_c'"),
     ({"predictors": ["light"]}, "predictor column 'light' is not in the table"),
-    ({"forced": ["co2_ppm"], "exclude": ["co2_ppm"]}, "'co2_ppm' is both forced and excluded"),
-    ({"predictors": ["co2_ppm"], "exclude": ["co2_ppm"]}, "'co2_ppm' is both listed in predictors= and excluded"),
-    ({"predictors": ["co2_ppm"], "forced": ["night_temp_c"]}, "forced column 'night_temp_c' is not among the"),
+    ({"forced": ["co2_ppm"], "exclude": ["co2_ppm"]}, "'co2_ppm' is in both always_include= and leave_out="),
+    ({"predictors": ["co2_ppm"], "exclude": ["co2_ppm"]}, "'co2_ppm' is in both predictors= and leave_out="),
+    ({"predictors": ["co2_ppm"], "forced": ["night_temp_c"]}, "'night_temp_c' is in always_include= but not among the"),
     ({"predictors": ["co2_ppm", "yield_kg_m2"]}, "'yield_kg_m2' is the response"),
     ({"weights": "yield_kg_m2"}, "both the response and the weights"),
-    ({"keep_identifiers": ["bay_id"], "exclude": ["bay_id"]}, "keep_identifiers names 'bay_id'"),
+    ({"keep_identifiers": ["bay_id"], "exclude": ["bay_id"]}, "keep_id_columns= names 'bay_id'"),
 ])
 def test_contradictory_or_unknown_roles(options, pattern):
     with pytest.raises(InputError, match=pattern) as info:
@@ -444,7 +444,7 @@ def test_missing_values_refused_with_counts_per_column():
     frame.loc[[1, 2, 3], "co2_ppm"] = np.nan
     frame.loc[[3, 9], "cultivar"] = None
     with pytest.raises(InputError, match=r"'co2_ppm' \(3 rows\), 'cultivar' \(2 rows\).*4 rows of 40.*"
-                                         r"missing='drop'") as info:
+                                         r"incomplete_rows='drop'") as info:
         prepare(frame, response="yield_kg_m2")
     assert info.value.column == "co2_ppm" and info.value.context["counts"] == {"co2_ppm": 3, "cultivar": 2}
 
@@ -509,9 +509,9 @@ def test_constant_and_all_missing_predictors_are_dropped():
         assert name not in data.predictors
         assert notes_about(data, name, "dropped")
         assert name in data.report.set_aside
-    with pytest.raises(InputError, match="forced column 'heating_on' is constant"):
+    with pytest.raises(InputError, match="always-included column 'heating_on' is constant"):
         prepare(frame, response="yield_kg_m2", forced=["heating_on"])
-    with pytest.raises(InputError, match="forced column 'greenhouse_block' has a single level"):
+    with pytest.raises(InputError, match="always-included column 'greenhouse_block' has a single level"):
         prepare(frame, response="yield_kg_m2", forced=["greenhouse_block"])
 
 
@@ -555,7 +555,7 @@ def test_numbers_written_with_a_stray_word_are_noted():
     data = prepare(frame, response="yield_kg_m2")
     assert "irrigation_l" not in data.predictors and "irrigation_l" in data.report.set_aside
     dropped = notes_about(data, "irrigation_l", "dropped")[0].message
-    assert "39 levels in 40 rows" in dropped and "keep_identifiers" in dropped
+    assert "39 levels in 40 rows" in dropped and "keep_id_columns" in dropped
     # ... and when it is kept anyway, it cannot be fitted and the error says which column is to blame
     with pytest.raises(InputError, match=r"40 rows.*'irrigation_l' \(39 levels\)") as info:
         prepare(frame, response="yield_kg_m2", keep_identifiers=["irrigation_l"])
@@ -623,7 +623,7 @@ def test_numeric_code_of_a_categorical_is_dropped():
 def test_forced_columns_that_are_collinear():
     frame = greenhouse()
     frame["night_temp_f"] = 1.8 * frame["night_temp_c"] + 32
-    with pytest.raises(InputError, match="forced column 'night_temp_f'"):
+    with pytest.raises(InputError, match="column 'night_temp_f' is an exact linear combination.*always_include="):
         prepare(frame, response="yield_kg_m2", forced=["night_temp_c", "night_temp_f"])
 
 

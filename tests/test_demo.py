@@ -57,7 +57,7 @@ def test_checks_pass_on_the_generating_model(demo_result):
 
 
 def test_demo_command_runs_end_to_end(tmp_path):
-    proc = subprocess.run([sys.executable, "-m", "selectkit", "demo", "--out", str(tmp_path / "demo")],
+    proc = subprocess.run([sys.executable, "-m", "selectkit", "demo", "--output", str(tmp_path / "demo")],
                           capture_output=True, text=True, timeout=600)
     assert proc.returncode == 0, proc.stderr
     assert "the top answer holds exactly the generating variables" in proc.stdout

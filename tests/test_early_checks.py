@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import os
 import re
-from dataclasses import replace
 
 import numpy as np
 import pandas as pd
@@ -58,10 +57,10 @@ def test_folds_larger_than_the_rows_fail_before_any_search(no_search_work):
 
 
 @pytest.mark.parametrize("option, value, words", [
-    ("seed", -1, "seed must be a whole number of at least 0 (got -1)"),
+    ("seed", -1, "seed must be 0 or more (seeds of numpy's SeedSequence are non-negative) (got -1)"),
     ("seed", 1.5, "seed must be a whole number"),
-    ("stability", -3, "stability must be a whole number of at least 0"),
-    ("folds", 1, "folds must be a whole number of at least 2"),
+    ("resamples", -3, "resamples must be 0 (skip) or a positive number of resamples (got -3)"),
+    ("folds", 1, "folds must be at least 2 folds"),
     ("time_budget", -5, "time_budget must be a positive number of seconds"),
 ])
 def test_bad_numbers_fail_before_the_data_are_read(option, value, words, tmp_path):
@@ -228,7 +227,7 @@ def test_ranking_only_settings_may_change_on_resume_and_say_so(tmp_path):
     spec = load_job(write_job(tmp_path, exhaustive="chunks = 12\ndelay = 0.05", extra_run='time_budget = "0.2s"\n'))
     first = run_fake(spec)
     assert not first.complete and first.units_done >= 1
-    changed = replace(spec, time_budget=None, folds=7, shortlist_size=3, resamples=0, honest_folds=0)
+    changed = spec.with_settings(time_budget=None, folds=7, shortlist_size=3, resamples=0, honest_folds=0)
     again = run_fake(changed)
     assert again.complete and again.units_resumed == first.units_done
     assert any("[ranking] shortlist_size: 8 -> 3" in n and "[ranking] folds: 5 -> 7" in n for n in again.notes)
@@ -236,23 +235,23 @@ def test_ranking_only_settings_may_change_on_resume_and_say_so(tmp_path):
 
     # a setting the units depend on still refuses, in one line naming it
     with pytest.raises(StoreError, match=r"\[run\] seed: 3 -> 9.*the stored units depend on it") as caught:
-        run_fake(replace(changed, seed=9))
+        run_fake(changed.with_settings(seed=9))
     assert "\n" not in str(caught.value)
 
 
 def test_which_settings_change_the_units(tmp_path):
     write_table(tmp_path / "bays.csv")
     base = load_job(write_job(tmp_path))  # methods = ["exhaustive"]
-    assert not _changes_units("ranking.folds", base, replace(base, folds=9))
-    assert not _changes_units("ranking.criterion", base, replace(base, criterion="aic"))  # exhaustive only
-    assert not _changes_units("ranking.shortlist_size", base, replace(base, shortlist_size=2))
-    stepwise = replace(base, methods=("stepwise",))
+    assert not _changes_units("ranking.folds", base, base.with_settings(folds=9))
+    assert not _changes_units("ranking.criterion", base, base.with_settings(criterion="aic"))  # exhaustive only
+    assert not _changes_units("ranking.shortlist_size", base, base.with_settings(shortlist_size=2))
+    stepwise = base.with_settings(methods=("stepwise",))
     # stepwise steers by the criterion (BIC to explain by default): AIC would change its path
-    assert _changes_units("ranking.criterion", stepwise, replace(stepwise, criterion="aic"))
-    assert not _changes_units("ranking.criterion", stepwise, replace(stepwise, criterion="bic"))
-    crossval = replace(base, methods=("crossval",))
-    assert _changes_units("ranking.folds", crossval, replace(crossval, folds=9))
-    assert _changes_units("forms.offer", base, replace(base, offer=("log",)))
+    assert _changes_units("ranking.criterion", stepwise, stepwise.with_settings(criterion="aic"))
+    assert not _changes_units("ranking.criterion", stepwise, stepwise.with_settings(criterion="bic"))
+    crossval = base.with_settings(methods=("crossval",))
+    assert _changes_units("ranking.folds", crossval, crossval.with_settings(folds=9))
+    assert _changes_units("forms.forms", base, base.with_settings(forms=("log",)))
 
 
 def test_settings_may_change_freely_while_no_unit_has_finished(tmp_path):
@@ -260,7 +259,7 @@ def test_settings_may_change_freely_while_no_unit_has_finished(tmp_path):
     spec = load_job(write_job(tmp_path, exhaustive="chunks = 4\ndelay = 0.05", extra_run="time_budget = 1e-9\n"))
     first = run_fake(spec)
     assert first.units_done == 0
-    again = run_fake(replace(spec, seed=11, time_budget=None))
+    again = run_fake(spec.with_settings(seed=11, time_budget=None))
     assert again.complete and any("before any unit had finished" in n for n in again.notes)
 
 
@@ -293,7 +292,7 @@ def test_job_scheduler_timeout_is_read_checked_and_used(tmp_path, monkeypatch):
     spec = load_job(write_job(tmp_path, extra_run='backend = "dask"\nscheduler = "tcp://127.0.0.1:1"\n'
                                                   'scheduler_timeout = 4\n'))
     assert spec.scheduler_timeout == 4.0
-    assert replace(spec, scheduler_timeout=30.0).fingerprint() == spec.fingerprint()  # where, not what
+    assert spec.with_settings(scheduler_timeout=30.0).fingerprint() == spec.fingerprint()  # where, not what
     seen = _recording_scheduler_check(monkeypatch)
     with pytest.raises(OptionError, match="within 4 s"):
         run_fake(spec)

@@ -49,7 +49,7 @@ def test_a_named_identifier_is_set_aside_and_the_note_gives_evidence_and_the_way
     dropped = note(data, "bay_id")
     assert dropped.kind == "dropped"
     assert "its name says so ('id')" in dropped.message and "step evenly by 1 from 1 to 40" in dropped.message
-    assert "keep_identifiers=" in dropped.message and "--keep-id-columns" in dropped.message
+    assert "keep_id_columns=['bay_id']" in dropped.message
     kept = prepare(bays(), response="yield_kg_m2", keep_identifiers=["bay_id"])
     assert "bay_id" in kept.numeric
 

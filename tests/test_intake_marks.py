@@ -54,7 +54,7 @@ def test_three_decimals_beside_one_comma_cell_is_refused(tmp_path):
     assert "'2,5' (column 'night_temp_c', line 6)" in message and "decimal comma" in message
     # the dotted example is shown with the value it would get, and the option that decides
     assert "(column 'yield_kg_m2', line 2)" in message and "would have to be" in message
-    assert "decimal_mark='.'" in message and "--decimal-mark" in message
+    assert "decimal_mark='.'" in message and "decimal_mark=','" in message
 
 
 def test_decimal_mark_option_decides_and_the_stray_cell_is_named(tmp_path):

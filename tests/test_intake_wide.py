@@ -62,7 +62,7 @@ def test_many_level_categorical_is_set_aside_before_forms_and_can_be_kept():
     levels = frame["bay_row"].nunique()
     assert "bay_row" not in data.predictors and "bay_row" in data.report.set_aside
     message = [x.message for x in data.report.notes if x.column == "bay_row"][0]
-    assert f"{levels} levels in {n} rows" in message and "keep_identifiers" in message
+    assert f"{levels} levels in {n} rows" in message and "keep_id_columns" in message
     kept = prepare(frame, response="yield_kg_m2", keep_identifiers=["bay_row"])
     assert kept.categorical == ("bay_row",)
     # a categorical of few levels is untouched

@@ -116,9 +116,9 @@ class FakeEngine(_ApiEngine):
         from tests.factories import make_candidates
 
         frame = pd.read_csv(spec.table)
-        columns = list(spec.predictors) or [c for c in frame.columns if c != spec.response]
+        columns = list(spec.predictors or ()) or [c for c in frame.columns if c != spec.response]
         cands = make_candidates(frame[columns].to_numpy(float), frame[spec.response].to_numpy(float), names=columns)
-        settings = dict(spec.method_settings.get("exhaustive", {}))
+        settings = dict(spec.method_options.get("exhaustive", {}))
         options = FakeOptions(**settings)
         runs = (MethodRun(name="exhaustive", module_name="tests.test_jobs", options=options),)
         return SearchSetup(dataset=None, candidates=cands, moments=compute_moments(cands.matrix, cands.y),
@@ -216,7 +216,7 @@ incomplete_rows = "drop"
 time_ordered = true
 
 [forms]
-offer = ["identity", "log", "sqrt"]
+forms = ["identity", "log", "sqrt"]
 fractional_polynomials = true
 shifts = { x1 = 1, x2 = "auto" }
 interactions = ["x0*x1"]
@@ -231,7 +231,7 @@ max_size = 3
 [ranking]
 aim = "predict"
 criterion = "aicc"
-convention = "coefficients-only"
+parameter_count = "coefficients-only"
 shortlist_size = 5
 keep_within = 4
 folds = 4
@@ -256,12 +256,12 @@ def test_full_job_file_is_read(job_folder):
     assert spec.predictors == ("x0", "x1", "x2", "x3")
     assert spec.time_budget == 5400.0
     assert spec.workers == 2 and spec.backend == "dask" and spec.scheduler == "tcp://127.0.0.1:8786"
-    assert dict(spec.method_settings["exhaustive"]) == {"max_size": 3}
+    assert dict(spec.method_options["exhaustive"]) == {"max_size": 3}
     options = spec.search_options()
     assert options["shifts"] == {"x1": 1, "x2": "auto"}
-    assert options["interactions"] == [("x0", "x1")]
-    assert options["response_transform"] == ("boxcox", 0.5)
-    assert options["max_delta"] == 4.0 and options["stability"] == 20 and options["missing"] == "drop"
+    assert options["interactions"] == (("x0", "x1"),)
+    assert options["response_form"] == "boxcox:0.5"
+    assert options["keep_within"] == 4.0 and options["resamples"] == 20 and options["incomplete_rows"] == "drop"
     assert "time_budget" not in options  # enforced by the runner, between units
 
 
@@ -294,9 +294,9 @@ def test_spec_round_trips_through_a_dict(job_folder):
 
 def test_run_settings_do_not_change_the_fingerprint(job_folder):
     base = parse_job(FULL_JOB, base=job_folder)
-    assert replace(base, workers=1, backend="loky", scheduler=None, time_budget=None).fingerprint() == base.fingerprint()
-    assert replace(base, seed=12).fingerprint() != base.fingerprint()
-    assert replace(base, criterion="bic").fingerprint() != base.fingerprint()
+    assert base.with_settings(workers=1, backend="loky", scheduler=None, time_budget=None).fingerprint() == base.fingerprint()
+    assert base.with_settings(seed=12).fingerprint() != base.fingerprint()
+    assert base.with_settings(criterion="bic").fingerprint() != base.fingerprint()
 
 
 @pytest.mark.parametrize("edit, words", [
@@ -308,7 +308,7 @@ def test_run_settings_do_not_change_the_fingerprint(job_folder):
     (('methods = ["exhaustive", "stepwise"]\nexact_limit = 30\n[search.exhaustive]',
       'methods = ["auto"]\nexact_limit = 30\n[search.auto]'), ["[search.auto] cannot hold settings"]),
     (('workers = 2', 'workers = "two"'), ["[run] workers", "whole number"]),
-    (('workers = 2', 'workers = 0'), ["[run] workers", "at least 1"]),
+    (('workers = 2', 'workers = 0'), ["[run] workers", "positive number of worker processes"]),
     (('time_budget = "1h30m"', 'time_budget = -60'), ["time_budget", "positive"]),
     (('time_budget = "1h30m"', 'time_budget = "-2h"'), ["time_budget", "not a duration"]),
     (('table = "bays.csv"', 'table = "missing.csv"'), ["missing.csv", "does not exist"]),
@@ -317,12 +317,13 @@ def test_run_settings_do_not_change_the_fingerprint(job_folder):
     # former names are refused with the new spelling
     (('methods = ["exhaustive", "stepwise"]', 'methods = ["exhaustive", "both"]'), ["'both'", "did you mean 'stepwise'"]),
     (('[search.exhaustive]', '[search.both]'), ["[search.both]", "did you mean 'stepwise'"]),
-    (('convention = "coefficients-only"', 'convention = "statsmodels"'), ["did you mean 'coefficients-only'"]),
-    (('convention = "coefficients-only"', 'convention = "selectkit"'), ["did you mean 'sigma-counted'"]),
+    (('parameter_count = "coefficients-only"', 'parameter_count = "statsmodels"'), ["did you mean 'coefficients-only'"]),
+    (('parameter_count = "coefficients-only"', 'parameter_count = "selectkit"'), ["did you mean 'sigma-counted'"]),
     (('aim = "predict"', 'aim = "guess"'), ["aim", "explain, predict"]),
     (('backend = "dask"', 'backend = "loky"'), ["scheduler is set", "dask"]),
     (('[search.exhaustive]', '[search.forward]'), ["[search.forward]", "not in [search] methods"]),
-    (('offer = ["identity", "log", "sqrt"]', 'offer = "log"'), ["offer", "list"]),
+    (('forms = ["identity", "log", "sqrt"]', 'forms = 42'), ["forms", "list"]),
+    (('forms = ["identity", "log", "sqrt"]', 'offer = ["log"]'), ["'offer'", "did you mean forms"]),
     (('leave_out = []', 'leave_out = ["x0"]'), ["'x0' is in both always_include and leave_out"]),
     (('leave_out = []', 'leave_out = []\nleave_out = ["x1"]'), ["not valid TOML"]),
     (('predictors = ["x0", "x1", "x2", "x3"]', 'predictors = ["x0", "x1", "x1"]'), ["more than once"]),
@@ -349,13 +350,13 @@ def test_missing_job_file(tmp_path):
 def test_settings_for_what_auto_may_run_are_accepted(job_folder):
     text = FULL_JOB.replace('methods = ["exhaustive", "stepwise"]', 'methods = ["auto"]')
     spec = parse_job(text, base=job_folder)
-    assert spec.methods == ("auto",) and dict(spec.method_settings["exhaustive"]) == {"max_size": 3}
+    assert spec.methods == ("auto",) and dict(spec.method_options["exhaustive"]) == {"max_size": 3}
 
 
 def test_job_file_takes_the_candidate_screens(job_folder):
-    text = FULL_JOB.replace("[forms]", '[forms]\nprefer = ["light"]\nkeep_twins = true\nall_forms = true', 1)
+    text = FULL_JOB.replace("[forms]", '[forms]\nprefer = ["light"]\ntwin_limit = "off"\nvif_limit = "off"\ncurvature_test = false', 1)
     options = parse_job(text, base=job_folder).search_options()
-    assert options["prefer"] == ["light"] and options["twin_limit"] is None and options["vif_limit"] is None
+    assert options["prefer"] == ("light",) and options["twin_limit"] is None and options["vif_limit"] is None
     assert options["curvature_test"] is False
     defaults = parse_job(FULL_JOB, base=job_folder).search_options()
     assert defaults["twin_limit"] == 0.999 and defaults["curvature_test"] is True and defaults["decimal_mark"] is None
@@ -494,7 +495,7 @@ def test_time_budget_stops_marks_incomplete_and_resume_finishes_identically(job_
     assert summary["complete"] is False and summary["not_proven_exact"] == ["exhaustive"]
     assert store_status(job_folder / "results").state == "incomplete"
 
-    second = run_fake(replace(spec, time_budget=None))  # a run setting: allowed to change on resume
+    second = run_fake(spec.with_settings(time_budget=None))  # a run setting: allowed to change on resume
     assert second.complete and second.units_resumed == first.units_done
     assert (job_folder / "results" / "shortlist.csv").read_bytes() == \
         (straight_folder / "results" / "shortlist.csv").read_bytes()
@@ -535,8 +536,8 @@ def test_changed_settings_are_refused_and_named(job_folder):
     spec = load_job(write_job(job_folder))
     run_fake(spec)
     with pytest.raises(StoreError, match=r"\[run\] seed: 3 -> 4"):
-        run_fake(replace(spec, seed=4))
-    again = run_fake(replace(spec, workers=2, backend="threading"))  # run settings may change
+        run_fake(spec.with_settings(seed=4))
+    again = run_fake(spec.with_settings(workers=2, backend="threading"))  # run settings may change
     assert again.complete and again.units_resumed == 12
 
 
@@ -707,7 +708,7 @@ def test_moving_the_data_file_keeps_the_store_usable(job_folder, tmp_path_factor
     assert not first.complete
     elsewhere = tmp_path_factory.mktemp("moved-data")
     (job_folder / "bays.csv").rename(elsewhere / "bays.csv")
-    moved = replace(spec, table=elsewhere / "bays.csv", time_budget=None)
+    moved = spec.with_settings(table=elsewhere / "bays.csv", time_budget=None)
     again = run_fake(moved)
     assert again.complete and again.units_resumed == first.units_done
 

@@ -127,9 +127,7 @@ def test_ctrl_c_to_a_running_job_writes_an_incomplete_shortlist(tmp_path):
     assert status.not_exact == ("exhaustive",)
     assert 2 <= status.units_done < 12
     assert (tmp_path / "results" / "shortlist.csv").exists()
-    from dataclasses import replace
-
-    resumed = run_fake(replace(load_job(job), workers=1))  # a run setting: may change on resume
+    resumed = run_fake(load_job(job).with_settings(workers=1))  # a run setting: may change on resume
     assert resumed.complete and resumed.units_resumed == status.units_done
 
 
@@ -146,7 +144,7 @@ def test_moved_output_folder_resumes_from_its_store(tmp_path):
     assert spec.output == (tmp_path / "moved").resolve()
     from dataclasses import replace
 
-    again = run_fake(replace(spec, time_budget=None))
+    again = run_fake(spec.with_settings(time_budget=None))
     assert again.complete and again.units_resumed == first.units_done
 
 
@@ -163,7 +161,7 @@ table = "bays.csv"
 response = "yield_kg_m2"
 
 [forms]
-offer = ["identity", "log", "sqrt"]
+forms = ["identity", "log", "sqrt"]
 
 [search]
 methods = ["exhaustive", "stepwise"]
@@ -299,6 +297,6 @@ def test_real_search_stopped_by_a_signal_then_resumed(tmp_path_factory):
     assert not stopped.complete and stopped.units_done == 2 and stopped.stopped_by == "stopped by SIGTERM"
     assert "crossval" in stopped.not_exact
     assert stopped.outputs["shortlist_csv"].is_file()
-    resumed = _run(replace(spec), resume=True, progress=False, engine=TablesEngine())
+    resumed = _run(spec.with_settings(), resume=True, progress=False, engine=TablesEngine())
     assert resumed.complete and resumed.units_resumed == 2
     assert resumed.outputs["shortlist_csv"].read_bytes() == straight.outputs["shortlist_csv"].read_bytes()

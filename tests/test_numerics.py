@@ -98,7 +98,7 @@ def test_offsets_cli_succeeds_and_writes(tmp_path, capsys):
     path = tmp_path / "probes.csv"
     _offset_frame().to_csv(path, index=False, float_format="%.17g")
     out = tmp_path / "out"
-    assert main(["search", str(path), "-r", "yield_g", "--forms", "identity", "--out", str(out)]) == 0
+    assert main(["search", str(path), "-r", "yield_g", "--forms", "identity", "--output", str(out)]) == 0
     assert any(p.name.endswith(".html") for p in out.iterdir())
 
 
@@ -124,7 +124,7 @@ def test_near_constant_cli_succeeds(tmp_path):
     path = tmp_path / "drift.csv"
     _near_constant_frame().to_csv(path, index=False, float_format="%.17g")
     out = tmp_path / "out"
-    proc = _run("search", str(path), "-r", "yield_g", "--forms", "identity", "--out", str(out), "--quiet")
+    proc = _run("search", str(path), "-r", "yield_g", "--forms", "identity", "--output", str(out), "--quiet")
     assert proc.returncode == 0, proc.stderr
     assert any(p.name.endswith(".csv") for p in out.iterdir())
 
@@ -156,7 +156,7 @@ def test_subnormal_column_is_named_as_beyond_double_precision_not_a_combination(
     assert set(result.terms(0)) == {"shade"}
     # forced into every model, it cannot be left out: one clear error naming it
     with pytest.raises(InputError, match="trace_gas") as caught:
-        selectkit.search(_subnormal_frame(), response="yield_g", forced=["trace_gas"])
+        selectkit.search(_subnormal_frame(), response="yield_g", always_include=["trace_gas"])
     assert "double precision" in str(caught.value) and "combination" not in str(caught.value)
 
 
@@ -173,7 +173,7 @@ def test_beyond_double_precision_cli_exits_2_with_one_line(tmp_path):
     path = tmp_path / "bays.csv"
     _huge_response_frame().to_csv(path, index=False, float_format="%.17g")
     out = tmp_path / "out"
-    proc = _run("search", str(path), "-r", "yield_g", "--out", str(out))
+    proc = _run("search", str(path), "-r", "yield_g", "--output", str(out))
     assert proc.returncode == 2
     lines = proc.stderr.strip().splitlines()
     assert len(lines) == 1 and "power of ten" in lines[0] and "Traceback" not in proc.stderr
@@ -183,7 +183,7 @@ def test_beyond_double_precision_cli_exits_2_with_one_line(tmp_path):
 def test_a_predictor_beyond_double_precision_is_named_at_the_terminal(tmp_path):
     path = tmp_path / "bays.csv"
     _subnormal_frame().to_csv(path, index=False, float_format="%.17g")
-    proc = _run("search", str(path), "-r", "yield_g", "--out", str(tmp_path / "out"))
+    proc = _run("search", str(path), "-r", "yield_g", "--output", str(tmp_path / "out"))
     assert proc.returncode == 0, proc.stderr
     assert "note: trace_gas is not in the search:" in proc.stdout and "double precision" in proc.stdout
 

@@ -112,7 +112,7 @@ def _search(frame, n_jobs):
     import selectkit
 
     return selectkit.search(frame, response="yield_kg_m2", methods=("exhaustive", "forward"),
-                            forms=("identity", "log"), n_jobs=n_jobs, seed=2)
+                            forms=("identity", "log"), workers=n_jobs, seed=2)
 
 
 def test_small_search_on_two_workers_stays_here_and_matches_one(monkeypatch):

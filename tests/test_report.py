@@ -210,10 +210,10 @@ def test_dollar_signs_in_names_do_not_break_the_figures():
 
 def test_what_was_asked_reads_as_a_person_would_write_it():
     settings = {"selectkit_version": "9.9", "data": "<DataFrame>", "response": "yield_kg_m2", "predictors": None,
-                "forced": [], "exclude": ["bay_id"], "forms": ["identity", "log"], "shifts": {"co2": "auto"},
+                "always_include": [], "leave_out": ["bay_id"], "forms": ["identity", "log"], "shifts": {"co2": "auto"},
                 "interactions": [["light", "co2"]], "method_options": {"exhaustive": {"max_size": 3}},
-                "criterion": "bic", "convention": "coefficients-only", "stability": 0, "curvature_test": True,
-                "time_budget": None, "weights": None, "missing": "drop"}
+                "criterion": "bic", "parameter_count": "coefficients-only", "resamples": 0, "curvature_test": True,
+                "time_budget": None, "row_weights": None, "incomplete_rows": "drop", "vif_limit": None}
     page = report_html._settings_section(settings)
     cells = re.findall(r"<td[^>]*>(.*?)</td>", page)
     shown = dict(zip(cells[::2], cells[1::2]))
@@ -223,7 +223,7 @@ def test_what_was_asked_reads_as_a_person_would_write_it():
         "products of two predictors": "light*co2", "settings of each search": "exhaustive: max_size = 3",
         "ranked by": "BIC", "parameters counted in AIC and BIC": "the coefficients only (coefficients-only)",
         "bootstrap resamples for stability": "none (skipped)", "curved forms only where the fit bends": "yes",
-        "rows with a missing value": "dropped",
+        "rows with a missing value": "dropped", "collinearity limit (VIF)": "off (every variable kept)",
     }
     assert "null" not in page and "&lt;DataFrame&gt;" not in page and "[]" not in page
 

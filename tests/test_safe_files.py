@@ -78,7 +78,7 @@ def result():
     # invented greenhouse rows (tests/test_api.py); two searches, a bootstrap and the honest error so that
     # every part of a Result is saved
     return selectkit.search(_small_frame(), response="yield_kg_m2", methods=("exhaustive", "forward"),
-                            forms=("identity", "log", "reciprocal"), stability=4, honest_folds=2, seed=0)
+                            forms=("identity", "log", "reciprocal"), resamples=4, honest_folds=2, seed=0)
 
 
 @pytest.mark.parametrize("name", ["greenhouse.skres", "greenhouse.sqlite", STORE_NAME, "greenhouse.json",
@@ -356,5 +356,5 @@ def test_a_pickle_in_place_of_the_store_file_is_refused(tmp_path, capsys, monkey
     with pytest.raises(StoreError, match="--fresh"):
         store_status(tmp_path / "results")
     with pytest.raises(StoreError, match="--fresh"):
-        run_fake(replace(spec))
+        run_fake(spec.with_settings())
     assert not marker.exists()

@@ -55,7 +55,7 @@ def test_a_flipped_bit_in_a_partial_store_is_rerun_on_resume(tmp_path, straight)
     first = run_fake(spec)
     assert not first.complete and first.units_done >= 2
     key = _flip_a_bit(tmp_path / "results" / STORE_NAME)
-    again = run_fake(replace(spec, time_budget=None))
+    again = run_fake(spec.with_settings(time_budget=None))
     assert again.complete
     assert again.units_resumed == first.units_done - 1  # every unit but the damaged one came from the store
     assert any(key in note and "failed their checksum" in note for note in again.notes), again.notes

@@ -25,6 +25,7 @@ from typing import Any, Mapping
 from .._io import atomic_write_text
 from ..errors import JobFileError, OptionError, SelectkitError, StoreError
 from .progress import JobProgress, format_seconds, make_reporter
+from ..settings import JOB, speaking
 from .spec import JobSpec, load_job
 from .store import STORE_NAME, RunStore, StoreLock, damaged_store_error, data_fingerprint, find_store, move_aside
 
@@ -195,7 +196,7 @@ RUN_SETTINGS = ("workers", "backend", "scheduler", "scheduler_timeout", "time_bu
 
 #: [ranking] settings used only after the units (ranking, bootstrap, honest error): a job may change them
 #: on resume, since the stored units do not depend on them.
-RANKING_ONLY = ("ranking.convention", "ranking.shortlist_size", "ranking.keep_within", "ranking.resamples",
+RANKING_ONLY = ("ranking.parameter_count", "ranking.shortlist_size", "ranking.keep_within", "ranking.resamples",
                 "ranking.honest_folds")
 
 
@@ -228,24 +229,22 @@ def resume_job(folder_or_store, *, progress=None, **run_settings) -> JobOutcome:
 
 
 def _with_run_settings(spec: JobSpec, run_settings: dict) -> JobSpec:
-    from .spec import _SCHEMA
+    from .. import settings
 
     changes = {}
     for key, value in run_settings.items():
         if key not in RUN_SETTINGS:
-            raise OptionError(f"{key!r} cannot be changed when resuming; the settings that can are "
-                              f"{', '.join(RUN_SETTINGS)} (the others would change what is found)")
+            raise OptionError(f"{settings.spell(key).rstrip('=')!r} cannot be changed when resuming; the settings "
+                              f"that can are {', '.join(RUN_SETTINGS)} (the others would change what is found)")
         if value is None and key in ("scheduler", "time_budget"):
             changes[key] = None
             continue
-        check = _SCHEMA["run"][key][0]
-        try:
-            changes[key] = check(value, key)
-        except JobFileError as err:
-            raise OptionError(str(err)) from err
-    spec = replace(spec, **changes)
+        changes[key] = settings.check_value(key, value, where=settings.CLI if settings.surface() == settings.CLI
+                                            else settings.PYTHON)
+    spec = spec.with_settings(**changes)
     if spec.scheduler is not None and spec.backend != "dask":
-        raise OptionError(f"a scheduler address needs backend='dask' (got backend={spec.backend!r})")
+        raise OptionError(f"a scheduler address needs {settings.spell('backend', 'dask')} "
+                          f"(got backend {spec.backend!r})")
     return spec
 
 
@@ -260,7 +259,7 @@ def _spec_from_store(folder_or_store) -> JobSpec:
         raise StoreError(f"the run store {str(path)!r} holds no job settings (it was never started); "
                          f"run the job file with 'selectkit job run JOB.toml'")
     spec = JobSpec.from_dict(recorded)
-    return replace(spec, output=path.parent)
+    return spec.with_settings(output=path.parent)
 
 
 def _run(spec: JobSpec, *, resume: bool, progress, engine) -> JobOutcome:
@@ -341,7 +340,8 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
         notes += _check_same_job(spec, store, fingerprint)
 
     try:
-        setup = engine.prepare(spec)
+        with speaking(JOB):  # a hint names the job file's key, where the setting lives
+            setup = engine.prepare(spec)
     except OptionError as err:
         where = spec.source or spec.name
         message = f"job {str(where)!r}: {err}"

@@ -6,7 +6,8 @@ import os
 from pathlib import Path
 
 from ..errors import DataFileError, JobFileError
-from ._checks import _suggest
+from ..settings import JOB, SECTIONS, SETTINGS
+from ..settings import suggest as _suggest
 
 __all__ = ["starter_job"]
 
@@ -56,50 +57,44 @@ def starter_job(table_path, *, response=None, job_file=None) -> str:
     response_line = (f'response = {_toml_text(response)}' + ("   # guessed: check it" if guessed else "")
                      if response else 'response = ""   # fill in: the column to explain')
     columns_text = "\n".join(f"#   {_one_line(c)}" for c in columns)
-    return f"""\
+    head = f"""\
 # selectkit job file for {_one_line(table_path.name)} (TOML; see docs/overnight-jobs.md).
+# Every key is a setting of the same name as a keyword of selectkit.search() and, with dashes, a flag of
+# 'selectkit search'. A key left commented out takes the default shown.
 # Run it with:     selectkit job run {_one_line(job_name)}
 # Watch it with:   selectkit job status {_one_line(results)}
 # Resume it with:  selectkit job resume {_one_line(results)}
 # Columns found in the table:
 {columns_text}
-
-[data]
-table = {_toml_text(table_entry)}
-{response_line}
-predictors = []            # empty: every column except the response and leave_out
-always_include = []        # predictors every model must hold
-leave_out = []             # columns never to use (identifiers, duplicates)
-# row_weights = "column"   # optional positive weights per row
-time_ordered = false       # true when rows are in time order (checks serial correlation)
-
-[forms]
-# offer = ["identity", "log", "sqrt", "reciprocal", "square", "boxcox"]   # default: the library's list
-fractional_polynomials = false
-# shifts = {{ column = 1 }}   # allow log/sqrt/reciprocal of column + 1 ("auto" picks the shift)
-interactions = []          # pairs such as {_toml_text(_example_pair(predictors))}
-
-[search]
-methods = ["auto"]         # auto, exhaustive, forward, backward, stepwise, crossval, screen
-# [search.exhaustive]      # settings of one method, handed to it as given
-
-[ranking]
-aim = "explain"            # "explain" ranks by BIC, "predict" by AICc
-# criterion = "bic"        # or name one: aic, aicc, bic, cp, adj_r2, press, cv_mse
-convention = "sigma-counted"   # k+1 parameters (the error variance counted); "coefficients-only": k
-shortlist_size = 10
-# keep_within = 4.0        # keep only models within this criterion distance of the best
-folds = 5
-resamples = 0              # bootstrap resamples for the stability of the selection (0: skip)
-honest_folds = 0           # outer folds for the honest error of the whole procedure (0: skip; 5 is usual)
-
-[run]
-seed = 0
-workers = 1                # -1: every core
-backend = "loky"           # "dask" to use a cluster; then set scheduler = "tcp://host:8786"
-# time_budget = "8h"       # seconds, or text such as "8h", "90m", "1h30m"
-output = {_toml_text(table_path.stem + "-results")}
 """
+    lines = [head]
+    pair = _example_pair(predictors)
+    examples = {"predictors": predictors[:2], "row_weights": "area_m2", "decimal_mark": ",",
+                "forms": ["identity", "log", "sqrt"], "shifts": {"bay_age_years": 1.0},
+                "interactions": (tuple(pair.split("*", 1)),), "response_form": "log", "criterion": "bic",
+                "keep_within": 4.0, "scheduler": "tcp://scheduler.example:8786", "time_budget": 8 * 3600.0}
+    for section in SECTIONS:
+        lines.append(f"[{section}]")
+        if section == "data":
+            lines.append(f"table = {_toml_text(table_entry)}")
+        for x in SETTINGS:
+            if x.section != section or JOB not in x.surfaces:
+                continue
+            if x.name == "response":
+                lines.append(response_line)
+            elif x.name == "method_options":
+                lines.append("# [search.exhaustive]       # method_options: settings of one method, e.g. "
+                             "max_size = 6")
+            elif x.name == "output":
+                lines.append(f"output = {_toml_text(table_path.stem + '-results')}   # {x.help}")
+            else:
+                shown = examples.get(x.name, x.default)
+                text = _toml_text(shown) if isinstance(shown, str) else x.kind.toml(shown)
+                if x.name == "time_budget":
+                    text = '"8h"'
+                lines.append(f"# {x.name} = {_one_line(text)}   # {x.help}")
+        lines.append("")
+    return "\n".join(lines).rstrip("\n") + "\n"
 
 
 def _path_from(table_path: Path, job_file) -> str:

@@ -102,32 +102,36 @@ def _section(anchor: str, title: str, body: str) -> str:
 #: How "What was asked" words each recorded setting; one not listed shows its key with spaces.
 _SETTING_LABELS = {
     "data": "table", "response": "response", "predictors": "predictors considered",
-    "forced": "always in every model", "exclude": "left out", "weights": "row weights from column",
-    "missing": "rows with a missing value", "forms": "forms offered",
+    "always_include": "always in every model", "leave_out": "left out", "row_weights": "row weights from column",
+    "incomplete_rows": "rows with a missing value", "keep_id_columns": "identifier-like columns kept",
+    "decimal_mark": "decimal mark of the file", "forms": "forms offered",
     "fractional_polynomials": "fractional-polynomial powers", "shifts": "shift before log or square root",
-    "interactions": "products of two predictors", "response_transform": "response transform",
-    "prefer": "forms preferred on a tie", "twin_limit": "near-duplicate limit (correlation)",
+    "interactions": "products of two predictors", "response_form": "form of the response",
+    "prefer": "variables kept first among near-duplicates", "twin_limit": "near-duplicate limit (correlation)",
     "vif_limit": "collinearity limit (VIF)", "curvature_test": "curved forms only where the fit bends",
     "methods": "searches asked for", "methods_run": "searches run", "method_options": "settings of each search",
-    "criterion": "ranked by", "aim": "aim", "convention": "parameters counted in AIC and BIC",
-    "shortlist_size": "models in the shortlist", "max_delta": "keep models within this distance of the best",
+    "exact_limit": "largest number of terms searched exactly by auto",
+    "criterion": "ranked by", "aim": "aim", "parameter_count": "parameters counted in AIC and BIC",
+    "shortlist_size": "answers in the shortlist", "keep_within": "keep models within this distance of the best",
     "folds": "cross-validation folds", "time_ordered": "rows are in time order",
-    "stability": "bootstrap resamples for stability", "honest_folds": "outer folds for the honest error",
+    "resamples": "bootstrap resamples for stability", "honest_folds": "outer folds for the honest error",
     "seed": "seed", "time_budget": "time budget", "n_rows": "rows used", "n_terms": "candidate terms",
     "selectkit_version": "selectkit version",
 }
 #: Words for the values of a few settings.
 _SETTING_VALUES = {
-    "convention": {"sigma-counted": "the coefficients and the error variance (sigma-counted)",
-                   "coefficients-only": "the coefficients only (coefficients-only)"},
-    "missing": {"refuse": "refused: the search stops and lists them", "drop": "dropped"},
+    "parameter_count": {"sigma-counted": "the coefficients and the error variance (sigma-counted)",
+                        "coefficients-only": "the coefficients only (coefficients-only)"},
+    "incomplete_rows": {"refuse": "refused: the search stops and lists them", "drop": "dropped"},
 }
 #: Settings whose value 0 means the step was skipped.
-_ZERO_SKIPS = ("stability", "honest_folds")
+_ZERO_SKIPS = ("resamples", "honest_folds")
 
 
 def _setting_words(key: str, value) -> str | None:
     """One setting as a person would write it; None when it was not set (nothing to show)."""
+    if value is None and key in ("twin_limit", "vif_limit"):
+        return "off (every variable kept)"
     if value is None or (isinstance(value, (str, list, tuple, dict)) and len(value) == 0):
         return None
     if key == "data" and value == "<DataFrame>":

@@ -1,7 +1,7 @@
 """The shortlist as CSV and as a versioned JSON document, written atomically.
 
 The JSON layout is described by ``schema.json`` beside this module (JSON
-Schema draft 2020-12, ``schema_version`` 1.0).  :func:`validate_document`
+Schema draft 2020-12, ``schema_version`` in :data:`SCHEMA_VERSION`).  :func:`validate_document`
 checks a document against it without needing the ``jsonschema`` package: it
 implements the keywords the schema uses (``type``, ``const``, ``enum``,
 ``required``, ``properties``, ``additionalProperties``, ``items``,
@@ -41,7 +41,7 @@ __all__ = [
     "check_document",
 ]
 
-SCHEMA_VERSION = "2.0"
+SCHEMA_VERSION = "3.0"  # 3.0: ranking.parameter_count (was convention), the one name of the setting
 
 #: Columns of the model-level CSV (``models.csv``), in order.
 MODEL_CSV_COLUMNS = (
@@ -310,7 +310,7 @@ def shortlist_document(*, shortlist, candidates=None, settings=None, founds=(), 
             "criterion": shortlist.criterion,
             "reason": shortlist.criterion_reason,
             "aim": shortlist.aim,
-            "convention": shortlist.convention,
+            "parameter_count": shortlist.convention,
             "weight_criterion": shortlist.weight_criterion,
             "cp_variance_source": shortlist.cp_variance_source,
             "models_pooled": int(len(shortlist.scored)),
