@@ -115,8 +115,8 @@ def cli_call(frame, method, criterion):
         table = os.path.join(folder, "bays.csv")
         frame.to_csv(table, index=False)
         env = dict(os.environ, PYTHONPATH=ROOT + os.pathsep + os.environ.get("PYTHONPATH", ""))
-        command = [sys.executable, "-m", "selectkit", "search", table, "-r", RESPONSE, "-m", method,
-                   "--forms", "identity", "--rank-by", criterion, "-o", os.path.join(folder, "out"), "--quiet"]
+        command = [sys.executable, "-m", "selectkit", "search", table, "-r", RESPONSE, "--methods", method,
+                   "--forms", "identity", "--criterion", criterion, "-o", os.path.join(folder, "out"), "--quiet"]
         start = time.perf_counter()
         done = subprocess.run(command, capture_output=True, text=True, env=env, cwd=ROOT)
         seconds = time.perf_counter() - start
@@ -327,10 +327,10 @@ def bench_crossval(n, p, repeats, large_n=None, seed=0):
     method = _method("crossval")
     frame = _frame(X, y)
     for n_jobs in (1, 2):
-        whole, t_whole = _timed(whole_call, frame, method, seed=seed, n_jobs=n_jobs,
+        whole, t_whole = _timed(whole_call, frame, method, seed=seed, workers=n_jobs,
                                 method_options={method: {"folds": shuffled_folds(5, repeats=repeats)}})
         chosen = _column_indices(whole.terms(0))
-        rows.append([f"selectkit.search(methods=({method!r},)), same folds, n_jobs={n_jobs} (whole call)",
+        rows.append([f"selectkit.search(methods=({method!r},)), same folds, workers={n_jobs} (whole call)",
                      f"{t_whole:.3f}", f"{t_whole / t_single:.1f}x",
                      f"top model {'=' if chosen == sorted(cv1.details['chosen']) else '!='} cv_select's choice"])
     if large_n:
@@ -369,12 +369,12 @@ setup = api.prepare_search(frame, **kw)
 unit_seconds = [timed(run.module.run_unit, u) for run, units, keys in setup.planned for u in units]
 out = {"units": len(unit_seconds), "unit_median": float(np.median(unit_seconds)), "unit_max": max(unit_seconds)}
 out["units_here"] = best_of_two(api.run_methods, setup, n_jobs=1)
-out["search_1"] = best_of_two(selectkit.search, frame, n_jobs=1, **kw)
-out["search_2_rule"] = best_of_two(selectkit.search, frame, n_jobs=2, **kw)
+out["search_1"] = best_of_two(selectkit.search, frame, workers=1, **kw)
+out["search_2_rule"] = best_of_two(selectkit.search, frame, workers=2, **kw)
 parallel.WORKER_START_SECONDS = 0.0  # force the workers: every unit after the first goes to them
 out["units_cold_pool"] = timed(api.run_methods, setup, n_jobs=2)
 out["units_warm_pool"] = timed(api.run_methods, setup, n_jobs=2)
-out["search_2_forced"] = best_of_two(selectkit.search, frame, n_jobs=2, **kw)
+out["search_2_forced"] = best_of_two(selectkit.search, frame, workers=2, **kw)
 print(json.dumps(out))
 """
 

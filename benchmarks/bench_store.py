@@ -60,7 +60,7 @@ response = "{RESPONSE}"
 predictors = [{listed}]
 
 [forms]
-offer = ["identity", "log", "sqrt", "reciprocal"]
+forms = ["identity", "log", "sqrt", "reciprocal"]
 
 [search]
 methods = ["exhaustive"]
@@ -134,9 +134,7 @@ def main(argv=None) -> int:
 
         # Warm-up: compile the kernels on a small search (not timed).
         warm = load_job(folder / "job.toml")
-        from dataclasses import replace
-
-        _plain(replace(warm, predictors=tuple(predictors[:4])))
+        _plain(warm.with_settings(predictors=tuple(predictors[:4])))
 
         plain_times, job_times, store_times = [], [], []
         outcome = None

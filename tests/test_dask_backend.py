@@ -7,7 +7,6 @@ shortlist CSV byte for byte with the same job run with the local backend.
 
 from __future__ import annotations
 
-from dataclasses import replace
 
 import pytest
 

@@ -17,7 +17,7 @@ import subprocess
 import sys
 import textwrap
 import time
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np

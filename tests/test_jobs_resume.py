@@ -142,7 +142,6 @@ def test_moved_output_folder_resumes_from_its_store(tmp_path):
     shutil.move(tmp_path / "results", tmp_path / "moved")
     spec = _spec_from_store(tmp_path / "moved")
     assert spec.output == (tmp_path / "moved").resolve()
-    from dataclasses import replace
 
     again = run_fake(spec.with_settings(time_budget=None))
     assert again.complete and again.units_resumed == first.units_done
@@ -275,7 +274,6 @@ def test_real_search_stopped_by_a_signal_then_resumed(tmp_path_factory):
     run ends with the shortlist of an uninterrupted run.
     """
     import os
-    from dataclasses import replace
 
     job = REAL_JOB.replace('methods = ["exhaustive", "stepwise"]', 'methods = ["crossval"]')
     straight_folder = tmp_path_factory.mktemp("cv-straight")

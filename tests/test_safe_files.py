@@ -14,7 +14,6 @@ import json
 import pickle
 import sqlite3
 import struct
-from dataclasses import replace
 from types import MappingProxyType
 
 import numpy as np

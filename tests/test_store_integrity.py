@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import hashlib
 import sqlite3
-from dataclasses import replace
 
 import pytest
 
