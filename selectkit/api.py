@@ -295,7 +295,7 @@ def _settings_record(s: Mapping, time_budget) -> dict:
 
     out = {}
     for key, value in s.items():
-        if key != "time_budget" and not BY_NAME[key].changes_result:
+        if key not in ("time_budget", "detailed_answers") and not BY_NAME[key].changes_result:
             continue  # where the run ran (workers, backend, scheduler) does not change what it found
         if key == "time_budget":
             value = time_budget

@@ -142,7 +142,7 @@ _TABLE_SETTINGS = ("response", "predictors", "always_include", "leave_out", "row
 _SEARCH_SETTINGS = _TABLE_SETTINGS + ("methods", "method_options", "exact_limit", "criterion", "aim",
                                       "parameter_count", "shortlist_size", "keep_within", "folds", "resamples",
                                       "honest_folds", "seed", "workers", "backend", "scheduler",
-                                      "scheduler_timeout", "time_budget", "output")
+                                      "scheduler_timeout", "time_budget", "detailed_answers", "output")
 _RUN_SETTINGS = ("workers", "backend", "scheduler", "scheduler_timeout")
 
 

@@ -709,7 +709,7 @@ def rank(
     short_subsets = tuple(ordered[r] for r in best_rows)
     answer_forms = tuple(answers.loc[int(a), "alternatives"] for a in shortlist_table["answer"])
     support = _variable_support(candidates, ordered, table["model_weight"].to_numpy())
-    fits = tuple(fit_model(candidates, s) for s in short_subsets)
+    fits = tuple(fit_model(candidates, s, moments=moments) for s in short_subsets)
     return Shortlist(
         table=shortlist_table,
         scored=table,
@@ -1022,8 +1022,136 @@ def _equation(lhs, params, labels) -> str:
     return "".join(parts)
 
 
-def fit_model(candidates, subset, *, level=0.95) -> ModelFit:
-    """Refit ``subset`` by QR and build its coefficient table and equation.
+@dataclass(frozen=True, eq=False)
+class MomentFit:
+    """A least-squares fit solved from the moments alone (no pass over the rows).
+
+    Attributes
+    ----------
+    coef : ndarray, shape (k,)
+        Intercept first, then the model's columns in order.
+    cov_unscaled : ndarray, shape (k, k)
+        (XᵀWX)⁻¹, so that σ̂²·``cov_unscaled`` is the coefficients' covariance.
+    rss : float
+        Σ wᵢ eᵢ², the (weighted) residual sum of squares.
+    n, k : int
+        Rows and coefficients (intercept included).
+    smallest_pivot : float
+        The smallest diagonal entry of the Cholesky factor of the columns'
+        correlation matrix: the length of the part of a centred, unit-length
+        column outside the span of those before it (1 for orthogonal columns).
+        Its inverse square bounds the condition number of the solved system
+        from below, and so the digits the moments route may lose.
+    """
+
+    coef: np.ndarray
+    cov_unscaled: np.ndarray
+    rss: float
+    n: int
+    k: int
+    smallest_pivot: float = 1.0
+
+    @property
+    def df_resid(self) -> int:
+        return self.n - self.k
+
+    @property
+    def scale(self) -> float:
+        """σ̂² = rss / (n − k)."""
+        return self.rss / self.df_resid if self.df_resid > 0 else float("nan")
+
+
+#: Below this smallest Cholesky pivot of the correlation matrix (its condition number then exceeds
+#: 10⁶, so a solution from the moments may lose more than 10 of its 16 digits) a shortlisted model is
+#: refitted by QR of its rows instead, whose error grows with the square root of that condition number
+#: (Golub & Van Loan 2013, §5.3).  Our own threshold, chosen for 10⁻⁸ agreement with a QR fit.
+MOMENT_PIVOT_FLOOR = 1e-3
+
+
+def moment_fit(moments, columns, *, tolerance=RANK_TOLERANCE) -> MomentFit:
+    """Solve the least-squares fit of ``y ~ 1 + X[:, columns]`` from the centred cross-products.
+
+    Parameters
+    ----------
+    moments : selectkit.moments.Moments
+        Weighted means and centred cross-products of the candidate columns
+        and the response (last).
+    columns : sequence of int
+        Columns of the candidate matrix, in the model's order.
+    tolerance : float, default :data:`RANK_TOLERANCE`
+        A column is dependent when, centred and scaled to unit length, the
+        part of it outside the span of the intercept and the columns before it
+        is at most this long (the criterion of :func:`_least_squares`).
+
+    Returns
+    -------
+    MomentFit
+
+    Raises
+    ------
+    ValueError
+        ``("dependent", j)``: column position ``j`` (0 = the intercept) fails
+        the rank test; the caller words the error.
+
+    Notes
+    -----
+    With C the centred cross-products of the model's columns, c those with
+    the response, S = diag(C)^½ and R = S⁻¹CS⁻¹ (their correlation matrix),
+    the Cholesky factor R = LLᵀ gives z = L⁻¹S⁻¹c, the slopes b = S⁻¹L⁻ᵀz,
+    rss = Σw(y − ȳ)² − zᵀz and the intercept ȳ − x̄ᵀb.  The inverse moment
+    matrix is (XᵀWX)⁻¹ with blocks C⁻¹ = S⁻¹L⁻ᵀL⁻¹S⁻¹ (slopes),
+    −C⁻¹x̄ and 1/W + x̄ᵀC⁻¹x̄ (intercept; W = Σw).  Centring and unit scaling
+    make the factorised matrix as well conditioned as the columns' own
+    correlations allow: offsets and units cost no digits (Golub & Van Loan
+    2013, §5.3 on normal equations; the diagonal of L equals that of the R
+    factor of the QR of the centred, unit-length columns, so the rank test
+    is the one :func:`_least_squares` makes).  Checked against statsmodels'
+    QR fit on NIST Longley and on ill-conditioned random designs.
+    """
+    from scipy.linalg import solve_triangular
+
+    cols = np.asarray(list(columns), dtype=np.int64)
+    m = moments.m
+    p = cols.size
+    n = int(moments.n)
+    C = np.asarray(moments.cross[np.ix_(cols, cols)], dtype=float)
+    c = np.asarray(moments.cross[cols, m], dtype=float)
+    scale = np.sqrt(np.maximum(np.diag(C), 0.0))
+    for j in range(p):
+        if not scale[j] > 0:
+            raise ValueError("dependent", j + 1)
+    Rm = C / np.outer(scale, scale)
+    L = np.zeros((p, p))
+    for j in range(p):  # Cholesky with the rank test on each pivot (k is small: a loop costs nothing)
+        d = Rm[j, j] - L[j, :j] @ L[j, :j]
+        if not d > tolerance ** 2:
+            raise ValueError("dependent", j + 1)
+        L[j, j] = np.sqrt(d)
+        if j + 1 < p:
+            L[j + 1:, j] = (Rm[j + 1:, j] - L[j + 1:, :j] @ L[j, :j]) / L[j, j]
+    z = solve_triangular(L, c / scale, lower=True) if p else np.empty(0)
+    slopes = solve_triangular(L.T, z, lower=False) / scale if p else np.empty(0)
+    rss = max(float(moments.tss - z @ z), 0.0)
+    means = np.asarray(moments.mean[cols], dtype=float)
+    intercept = float(moments.mean[m] - means @ slopes)
+    Linv = solve_triangular(L, np.eye(p), lower=True) if p else np.empty((0, 0))
+    c_inv = (Linv.T @ Linv) / np.outer(scale, scale)
+    cov = np.empty((p + 1, p + 1))
+    cov[1:, 1:] = c_inv
+    cross_term = -c_inv @ means
+    cov[0, 1:] = cov[1:, 0] = cross_term
+    cov[0, 0] = 1.0 / float(moments.weight_sum) + means @ c_inv @ means
+    return MomentFit(coef=np.concatenate([[intercept], slopes]), cov_unscaled=cov, rss=rss, n=n, k=p + 1,
+                     smallest_pivot=float(np.min(np.diag(L))) if p else 1.0)
+
+
+def fit_model(candidates, subset, *, level=0.95, moments=None) -> ModelFit:
+    """Refit ``subset`` and build its coefficient table and equation.
+
+    With ``moments`` (those the searches ran on) the fit is solved from them
+    (:func:`moment_fit`: no pass over the rows, whatever n); without, by QR
+    of the column-scaled design (:func:`refit`).  The two agree to rounding;
+    :meth:`selectkit.api.Result.model` still gives the statsmodels results.
 
     Parameters
     ----------
@@ -1045,7 +1173,9 @@ def fit_model(candidates, subset, *, level=0.95) -> ModelFit:
     transform = candidates.response_transform
     lhs = transform.name if transform.transform != "identity" else candidates.response
     try:
-        results = refit(candidates, subset)
+        results = _moment_results(candidates, subset, labels, moments) if moments is not None else None
+        if results is None or results.smallest_pivot < MOMENT_PIVOT_FLOOR:
+            results = refit(candidates, subset)  # nearly dependent columns: one QR pass over the rows
     except SearchError as err:
         k = len(labels) + 1
         nothing = np.full(k, np.nan)
@@ -1066,6 +1196,8 @@ def fit_model(candidates, subset, *, level=0.95) -> ModelFit:
             sigma=float("nan"),
             problem=str(err),
         )
+    if isinstance(results, MomentFit):
+        return _table_from_moments(candidates, subset, labels, results, lhs, level)
     ci = np.asarray(results.conf_int(alpha=1.0 - level))
     coefficients = pd.DataFrame({
         "coefficient": [INTERCEPT_LABEL] + [label for _, _, label, _ in labels],
@@ -1086,6 +1218,54 @@ def fit_model(candidates, subset, *, level=0.95) -> ModelFit:
         n=n,
         k=k,
         sigma=float(np.sqrt(results.scale)),
+    )
+
+
+def _moment_results(candidates, subset, labels, moments) -> MomentFit:
+    """:func:`moment_fit` of a model, its rank failure worded as :func:`refit` words it."""
+    try:
+        return moment_fit(moments, [j for _, j, _, _ in labels])
+    except ValueError as err:
+        if not (err.args and err.args[0] == "dependent"):
+            raise
+        names = [INTERCEPT_LABEL] + [label for _, _, label, _ in labels]
+        j = err.args[1]
+        before = ", ".join(repr(c) for c in names[:j]) or "nothing"
+        raise SearchError(
+            f"coefficient column {names[j]!r} of the model ({', '.join(names[1:])}) is a linear "
+            f"combination of {before} on these {moments.n} rows even after centring and scaling the "
+            f"columns (the part of it outside their span is at most {RANK_TOLERANCE:g} of its length); "
+            "drop it or one of the terms it depends on",
+            columns=tuple(names), singular_column=names[j],
+        ) from None
+
+
+def _table_from_moments(candidates, subset, labels, fit: MomentFit, lhs, level) -> ModelFit:
+    """The coefficient table of a :class:`MomentFit`: t intervals and p-values on n − k df."""
+    from scipy import stats
+
+    se = np.sqrt(np.maximum(np.diag(fit.cov_unscaled) * fit.scale, 0.0))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        t = fit.coef / se
+    q = float(stats.t.ppf(0.5 + level / 2.0, fit.df_resid))
+    coefficients = pd.DataFrame({
+        "coefficient": [INTERCEPT_LABEL] + [label for _, _, label, _ in labels],
+        "term": [INTERCEPT_LABEL] + [term for term, _, _, _ in labels],
+        "estimate": fit.coef,
+        "std_error": se,
+        "ci_low": fit.coef - q * se,
+        "ci_high": fit.coef + q * se,
+        "p_value_optimistic": 2.0 * stats.t.sf(np.abs(t), fit.df_resid),
+    })
+    params = pd.Series(fit.coef, index=list(coefficients["coefficient"]))
+    return ModelFit(
+        subset=subset,
+        terms=_term_names(candidates, subset),
+        coefficients=coefficients,
+        equation=_equation(lhs, params, labels),
+        n=fit.n,
+        k=fit.k,
+        sigma=float(np.sqrt(fit.scale)),
     )
 
 

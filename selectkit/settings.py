@@ -677,6 +677,9 @@ SETTINGS: tuple[Setting, ...] = (
     _S("time_budget", "run", DURATION, None,
        "wall-clock budget of the whole run: seconds, or text such as 8h, 90m (default: no limit)",
        changes_result=False, metavar="DURATION"),
+    _S("detailed_answers", "run", _whole(0, meaning="0 or more answers"), 3,
+       "answers whose report section draws the figures of the checks; the others get their tables only",
+       changes_result=False, metavar="N"),
     _S("output", "run", PATH, "selectkit-output", "folder for the shortlist, the report and a job's run store",
        surfaces=frozenset((CLI, JOB)), changes_result=False, metavar="FOLDER", short="-o"),
 )

@@ -58,6 +58,7 @@ EXAMPLES = {
     "scheduler": "tcp://scheduler.example:8786",
     "scheduler_timeout": 3.0,
     "time_budget": 5400.0,
+    "detailed_answers": 1,
     "output": "bays-results",
 }
 

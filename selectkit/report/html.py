@@ -293,7 +293,7 @@ def _checks_table(diagnosis) -> str:
             f"<th>source</th></tr></thead><tbody>{''.join(rows)}</tbody></table></div>")
 
 
-def _model_section(position, fit, diagnosis, row, candidates=None) -> str:
+def _model_section(position, fit, diagnosis, row, candidates=None, *, figures=True) -> str:
     parts = [f'<p class="equation">{_e(fit.equation)}</p>',
              f"<p>n = {fit.n} rows, k = {fit.k} coefficients, residual standard error {_e(_fmt(fit.sigma))}; "
              f"Δ = {_e(_fmt(row['delta_from_best']))}, model weight {_e(_fmt(row['model_weight']))}, "
@@ -327,6 +327,10 @@ def _model_section(position, fit, diagnosis, row, candidates=None) -> str:
                          + (f"Rows are named {_e(named)}; " if named else "")
                          + "row is the position among the rows used, counting from 0. "
                          "Rows are listed for a check, not removed.</p>")
+        if not figures:
+            parts.append('<p class="note">The figures of the checks are drawn for the first answers only '
+                         '(setting detailed_answers); the verdicts above are those of every check.</p>')
+    if diagnosis is not None and figures:
         parts.append("<h3>What the checks look like</h3>")
         shown = plots.check_figures(diagnosis, candidates)
         for item in shown:
@@ -335,6 +339,7 @@ def _model_section(position, fit, diagnosis, row, candidates=None) -> str:
             parts.append(_figure(plots.residuals_vs_terms(diagnosis),
                                  "Residuals against each numeric column of the model: a bend suggests another "
                                  "form of that term."))
+    if diagnosis is not None:
         if not diagnosis.vif.empty and len(diagnosis.term_vif) > 1:
             parts.append("<h3>Collinearity</h3>"
                          + _table(diagnosis.term_vif, headers={"gvif": "GVIF",
@@ -343,7 +348,7 @@ def _model_section(position, fit, diagnosis, row, candidates=None) -> str:
                          + '<p class="note">GVIF: generalised variance inflation of a term\'s coefficients '
                            "together; scaled GVIF, its root of order the number of coefficients, is the VIF itself "
                            "for a one-column term and reads on the same scale (Fox &amp; Monette 1992).</p>")
-    else:
+    if diagnosis is None:
         parts.append('<p class="note">The assumption checks of this model were not run.</p>')
     return _section(f"model-{position}", f"Answer {position}: {' + '.join(fit.terms) or 'intercept only'}",
                     "".join(parts))
@@ -418,10 +423,12 @@ def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnos
         ("shortlist", "The shortlist: answers first", _shortlist_section(shortlist)),
     ]
     body = [_section(a, t, b) for a, t, b in sections]
+    detailed = settings.get("detailed_answers", 3)
+    detailed = len(shortlist.fits) if detailed is None else int(detailed)
     for i, fit in enumerate(shortlist.fits):
         row = shortlist.table.iloc[i]
         body.append(_model_section(i + 1, fit, diagnoses[i] if i < len(diagnoses) else None, row,
-                                   candidates))
+                                   candidates, figures=i < detailed))
     if stability is not None:
         body.append(_section("stability", "Does the choice survive resampling?", _stability_section(stability)))
     if honest is not None:

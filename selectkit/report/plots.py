@@ -43,12 +43,19 @@ def _plain(text) -> str:
     return str(text).replace("$", r"\$")
 
 
-def _figure(width=6.0, height=4.0, layout="tight"):
+#: Fixed margins of every figure (fractions of its size).  A layout engine ("constrained", "tight")
+#: measures every text box on each draw and doubled the cost of a figure; fixed margins cost nothing.
+_MARGINS = dict(left=0.1, right=0.97, bottom=0.15, top=0.84, wspace=0.32, hspace=0.55)
+
+
+def _figure(width=6.0, height=4.0, **margins):
+    """A figure on the Agg canvas with fixed margins (``margins`` override :data:`_MARGINS`)."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
-    figure = Figure(figsize=(width, height), layout=layout)
+    figure = Figure(figsize=(width, height))
     FigureCanvasAgg(figure)
+    figure.subplots_adjust(**{**_MARGINS, **margins})
     return figure
 
 
@@ -80,7 +87,7 @@ def criterion_by_size(shortlist, *, criterion=None):
     lower = LOWER_IS_BETTER.get(criterion, True)
     values = scored[criterion].to_numpy(dtype=float)
     sizes = scored["n_terms"].to_numpy()
-    figure = _figure()
+    figure = _figure(6.0, 4.0, left=0.14, top=0.92, bottom=0.12)
     axes = figure.add_subplot()
     by_size = {}
     for size, value in zip(sizes, values):
@@ -113,9 +120,12 @@ def criterion_by_size(shortlist, *, criterion=None):
 def variable_support(shortlist, *, top=25):
     """Horizontal bars: summed model weight of the pooled models holding each variable."""
     support = shortlist.variable_support.head(top)
-    figure = _figure(6.0, max(2.0, 0.28 * len(support) + 1.0))
-    axes = figure.add_subplot()
     names = [_plain(v) for v in support["variable"]][::-1]
+    height = max(2.0, 0.28 * len(support) + 1.0)
+    # room on the left for the longest name (about 0.075 in per character at 8 pt), at most half the width
+    left = min(0.5, (0.2 + 0.075 * max((len(v) for v in names), default=4)) / 6.0)
+    figure = _figure(6.0, height, left=left, bottom=0.55 / height, top=1.0 - 0.35 / height)
+    axes = figure.add_subplot()
     values = support["support"].to_numpy(dtype=float)[::-1]
     axes.barh(range(len(names)), values, color=[_INK if v >= 0.5 else _MUTED for v in values])
     axes.set_yticks(range(len(names)), names, fontsize=8)
@@ -128,10 +138,6 @@ def variable_support(shortlist, *, top=25):
 
 #: Most points drawn in one scatter; larger data are thinned to every k-th row (deterministic).
 MAX_POINTS = 5000
-#: Most points the lowess line is computed from (its cost grows with n²).
-MAX_SMOOTH_POINTS = 1500
-
-
 def _thin(count: int, cap: int) -> np.ndarray:
     """Row positions kept when at most ``cap`` of ``count`` points are drawn: every k-th row."""
     if count <= cap:
@@ -147,16 +153,23 @@ def _scatter(axes, x, y, **style):
                   va="bottom", fontsize=7, color=_MUTED, transform=axes.transAxes)
 
 
-def _lowess_line(axes, x, y, *, frac=0.6):
+def _smooth_line(axes, x, y, *, bins=None):
+    """A smoother of the points: the mean of ``y`` in groups of about equal size by increasing ``x``.
+
+    Binned means (a regressogram; common practice, our choice over a local
+    regression smoother) cost one sort whatever the number of rows.  The
+    number of groups is ``bins`` or, by default, about one per 8 rows between
+    5 and :data:`SMOOTHER_BINS`.
+    """
     x = np.asarray(x, dtype=float)
     y = np.asarray(y, dtype=float)
-    if len(x) >= 10 and np.ptp(x) > 0:
-        from statsmodels.nonparametric.smoothers_lowess import lowess
-
-        order = np.argsort(x, kind="stable")
-        keep = order[_thin(len(x), MAX_SMOOTH_POINTS)]
-        smooth = lowess(y[keep], x[keep], frac=frac, return_sorted=True)
-        axes.plot(smooth[:, 0], smooth[:, 1], color=_ACCENT, linewidth=1.2)
+    ok = np.isfinite(x) & np.isfinite(y)
+    x, y = x[ok], y[ok]
+    if len(x) < 10 or np.ptp(x) <= 0:
+        return
+    count = bins or int(min(SMOOTHER_BINS, max(5, len(x) // 8)))
+    groups = [g for g in np.array_split(np.argsort(x, kind="stable"), count) if g.size]
+    axes.plot([x[g].mean() for g in groups], [y[g].mean() for g in groups], color=_ACCENT, linewidth=1.2)
 
 
 # --------------------------------------------------------------------------- figures of the checks
@@ -164,9 +177,9 @@ def _lowess_line(axes, x, y, *, frac=0.6):
 # One figure per family of checks, each titled by the question it answers and
 # captioned with that check's verdict (``Diagnosis.checks``).
 
-#: Share of the rows in each local fit of the smoother of the term panels: narrow enough to follow a
-#: curve the fitted form misses (a span of 0.6 flattens a log curve's bend; our own choice).
-FORM_SMOOTHER_SPAN = 0.35
+#: Most groups of the binned-means smoother (:func:`_smooth_line`): enough to follow a curve the fitted
+#: form misses, few enough that each mean rests on many rows at large n (our own choice).
+SMOOTHER_BINS = 30
 #: The figures of one model's checks: key -> (title, aspect of the checks whose verdict it carries).
 CHECK_FIGURES = {
     "mean": ("Does the mean follow the terms?", "linearity"),
@@ -251,7 +264,7 @@ def mean_follows_terms(diagnosis):
     run of bars on one side, or a bend, is the curvature that RESET (Ramsey
     1969) tests for.  With row weights the values are on the √w scale.
     """
-    figure = _figure(6.0, 3.8, layout="constrained")
+    figure = _figure(6.0, 3.8)
     axes = figure.add_subplot()
     fitted, resid = np.asarray(diagnosis.fitted, float), np.asarray(diagnosis.residuals, float)
     _scatter(axes, fitted, resid, label="a row")
@@ -289,7 +302,7 @@ def error_shape(diagnosis):
     the band is Φ⁻¹ of that Beta's 2.5 % and 97.5 % points.  Points leaving
     the band at the ends are heavy or light tails; a tilt is skewness.
     """
-    figure = _figure(8.0, 3.6, layout="constrained")
+    figure = _figure(8.0, 3.6, bottom=0.2)
     left, right = figure.subplots(1, 2)
     r = np.sort(np.asarray(diagnosis.studentized, float)[np.isfinite(diagnosis.studentized)])
     n = r.shape[0]
@@ -329,7 +342,7 @@ def spread_by_fitted(diagnosis):
     common variance).  Constant variance puts every group near 1 (the dotted
     line); a trend is what the Breusch-Pagan test (Koenker 1981 form) detects.
     """
-    figure = _figure(6.0, 3.8, layout="constrained")
+    figure = _figure(6.0, 3.8)
     axes = figure.add_subplot()
     fitted = np.asarray(diagnosis.fitted, float)
     r = np.asarray(diagnosis.studentized, float)
@@ -358,22 +371,37 @@ def spread_by_fitted(diagnosis):
     return figure
 
 
+#: Most rows drawn as stems in an influence panel: the largest of those above the screening cut-off.
+MAX_STEMS = 300
+
+
 def _stems(axes, values, limit, names, what):
-    """Stems from zero for every row above ``limit`` and a thinned share of the rest; names the largest."""
+    """Stems from zero for the rows above ``limit`` (the largest :data:`MAX_STEMS`); names the largest.
+
+    The rows below the screening cut-off are not drawn one by one (at 10⁶ rows
+    they were a solid block that cost most of the report); a shaded band up to
+    the largest of them shows where they lie.
+    """
     n = values.shape[0]
     finite = np.isfinite(values)
     top = float(np.max(values[finite])) if finite.any() else 1.0
     shown = np.where(finite, values, top * 1.1 if top > 0 else 1.0)  # hᵢᵢ = 1: Dᵢ infinite, drawn at the top
     above = np.flatnonzero(~(values <= limit))
-    keep = np.union1d(_thin(n, MAX_POINTS), above).astype(np.int64)
-    colour = np.where(np.isin(keep, above), _ACCENT, _INK)
-    axes.vlines(keep + 1, 0, shown[keep], color=colour, linewidth=0.9)
-    axes.scatter(keep + 1, shown[keep], s=6, color=colour)
-    order = above[np.lexsort((above, -shown[above]))][:8]
-    for row in order:
+    ranked = above[np.lexsort((above, -shown[above]))]
+    keep = np.sort(ranked[:MAX_STEMS])
+    below = values[finite & (values <= limit)]
+    if below.size:
+        axes.fill_between([1, n], 0, float(below.max()), color=_MUTED, alpha=0.25, linewidth=0,
+                          label=f"{below.size} rows below the screening cut-off")
+    axes.vlines(keep + 1, 0, shown[keep], color=_ACCENT, linewidth=0.9)
+    axes.scatter(keep + 1, shown[keep], s=6, color=_ACCENT)
+    for row in ranked[:8]:
         axes.annotate(_plain(names.get(int(row), int(row) + 1)), (row + 1, shown[row]), fontsize=7,
                       color=_ACCENT, xytext=(2, 2), textcoords="offset points")
-    axes.set_xlabel("row, in the order used (counting from 1)")
+    axes.set_xlim(0, n + 1)
+    axes.set_xlabel("row, in the order used (counting from 1)"
+                    + (f"; the {MAX_STEMS} largest of {above.size} above the cut-off drawn"
+                       if above.size > MAX_STEMS else ""))
     axes.set_ylabel(what)
     return max(top, 0.0)
 
@@ -388,8 +416,8 @@ def _cut_lines(axes, top, lines):
         elif np.isfinite(value):
             beyond.append(label if ":" in label else f"{label} = {value:.3g}")
     axes.set_ylim(0, ceiling)
-    if beyond:
-        axes.set_xlabel("\n".join([axes.get_xlabel(), "not drawn, above every row:"] + beyond), fontsize=7)
+    for label in beyond:  # a legend entry without a mark: the cut-off is above every row, not drawn
+        axes.plot([], [], " ", label=f"above every row, not drawn: {label}")
     _legend(axes, fontsize=6.5, loc="upper left")
 
 
@@ -414,7 +442,7 @@ def row_influence(diagnosis):
     flagged = diagnosis.flagged_rows
     names = (dict(zip(flagged["row"].astype(int), flagged["name"].astype(str)))
              if flagged is not None and "name" in flagged else {})
-    figure = _figure(8.0, 3.6, layout="constrained")
+    figure = _figure(8.0, 3.6, bottom=0.2)
     left, right = figure.subplots(1, 2)
     cooks = np.asarray(diagnosis.cooks_distance, float)
     top = _stems(left, cooks, 4.0 / n, names, "Cook's distance")
@@ -522,8 +550,8 @@ def term_forms(diagnosis, candidates, *, columns=3):
     variable x on its own scale against the partial residual
     eᵢ + bⱼ·fⱼ(xᵢ) (Ezekiel 1924; Larsen & McCleary 1972), the raw residual
     plus the term's fitted contribution, uncentred.  The fitted form
-    bⱼ·fⱼ(x) is drawn as a line over the points and a lowess smoother
-    (Cleveland 1979; span :data:`FORM_SMOOTHER_SPAN`) beside it: where the
+    bⱼ·fⱼ(x) is drawn as a line over the points and a smoother of the points
+    (binned means, :func:`_smooth_line`) beside it: where the
     smoother leaves the line, the data follow another form of x than the one
     fitted.  Categorical blocks and interactions have no single curve and are
     not drawn.  Without the candidates' dataset (or for a source that is not
@@ -548,7 +576,8 @@ def term_forms(diagnosis, candidates, *, columns=3):
     count = len(components)
     ncols = min(columns, count)
     nrows = int(np.ceil(count / ncols))
-    figure = _figure(3.3 * ncols, 2.9 * nrows + 0.4, layout="constrained")
+    figure = _figure(3.3 * ncols, 2.9 * nrows + 0.4, left=0.1 if ncols > 1 else 0.16,
+                     top=1.0 - 0.5 / (2.9 * nrows + 0.4), bottom=0.5 / (2.9 * nrows + 0.4))
     axes = np.atleast_1d(figure.subplots(nrows, ncols)).reshape(-1)
     for ax, part in zip(axes, components):
         _scatter(ax, part.x, part.partial)
@@ -557,7 +586,7 @@ def term_forms(diagnosis, candidates, *, columns=3):
         line = order[_thin(order.size, MAX_POINTS)]
         ax.plot(part.x[line], part.component[line], color=_INK, linewidth=1.8, label="fitted form")
         before = len(ax.get_lines())
-        _lowess_line(ax, part.x, part.partial, frac=FORM_SMOOTHER_SPAN)
+        _smooth_line(ax, part.x, part.partial)
         for smooth in ax.get_lines()[before:]:
             smooth.set_linestyle("--")
             smooth.set_label("smoother of the points")
@@ -588,9 +617,9 @@ _READING = {
     "spread": "Points are the sizes of the studentised residuals; the diamonds are each group's root mean "
               "square with a 95 % interval. With constant variance they sit near 1; a trend means the spread "
               "grows or shrinks with the fitted value.",
-    "influence": "Cook's distance and leverage of each row with the cut-offs the checks use; rows above the "
-                 "screening cut-off are red and the largest are named as in the verdicts. Rows are shown for "
-                 "a look, never removed.",
+    "influence": "Cook's distance and leverage with the cut-offs the checks use; each row above the "
+                 "screening cut-off is a red stem and the largest are named as in the verdicts; the grey band "
+                 "reaches the largest of the rows below it. Rows are shown for a look, never removed.",
 }
 
 
@@ -659,13 +688,13 @@ def residuals_vs_terms(diagnosis, *, columns=3):
     count = frame.shape[1]
     ncols = min(columns, count)
     nrows = int(np.ceil(count / ncols))
-    figure = _figure(3.0 * ncols, 2.6 * nrows, layout="constrained")
+    figure = _figure(3.0 * ncols, 2.6 * nrows, top=1.0 - 0.2 / (2.6 * nrows), bottom=0.45 / (2.6 * nrows))
     axes = np.atleast_1d(figure.subplots(nrows, ncols)).reshape(-1)
     for ax, name in zip(axes, frame.columns):
         x = frame[name].to_numpy(dtype=float)
         _scatter(ax, x, diagnosis.residuals)
         ax.axhline(0.0, color=_MUTED, linewidth=0.8)
-        _lowess_line(ax, x, diagnosis.residuals)
+        _smooth_line(ax, x, diagnosis.residuals)
         ax.set_xlabel(_plain(name), fontsize=8)
         ax.set_ylabel("residual", fontsize=8)
     for ax in axes[count:]:
