@@ -384,6 +384,7 @@ def main(argv=None):
     rows = args.rows or (100_000 if args.quick else 1_000_000)
     memory_rows = args.memory_rows or (200_000 if args.quick else 5_000_000)
 
+    load_before = os.getloadavg()
     started = time.perf_counter()
     with tempfile.TemporaryDirectory(prefix="selectkit-e2e-") as folder:
         small, floor_label = bench_small(folder, repeats=1 if args.quick else 3)
@@ -415,7 +416,9 @@ def main(argv=None):
     print(f"  import-only floor (pandas, pyarrow.parquet, selectkit): {memory_info['floor_mb']:,.0f} MB; peaks: "
           f"DataFrame {memory_info['frame_peak']:,.0f} MB, Parquet path {memory_info['file_peak']:,.0f} MB; "
           f"same best model from both: {'yes' if memory_info['same'] else 'NO'}")
-    print(f"\nwhole benchmark: {total:.0f} s")
+    load_after = os.getloadavg()
+    print(f"\nwhole benchmark: {total:.0f} s; load average (1 min) {load_before[0]:.1f} at the start, "
+          f"{load_after[0]:.1f} at the end, on {os.cpu_count()} cores (above the core count: other work shared them)")
     if not memory_info["same"]:
         raise SystemExit("the DataFrame and the Parquet path gave different best models")
 

@@ -41,5 +41,21 @@ __all__ = [
 
 
 # The search methods live in the subpackage ``selectkit.searches`` (not
-# ``selectkit.search``, which is the facade function below).
-from .api import Result, load, search  # noqa: E402
+# ``selectkit.search``, which is the facade function).  The facade is imported on first use
+# (PEP 562), so that ``import selectkit`` and commands that need no data (``--version``,
+# ``job status``) do not load pandas and numpy first.
+_FACADE = ("search", "load", "Result")
+
+
+def __getattr__(name):
+    if name in _FACADE:
+        from . import api
+
+        value = getattr(api, name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module 'selectkit' has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_FACADE))

@@ -230,6 +230,12 @@ def _search_and_write(setup, *, out, workers=1, backend="loky", scheduler=None, 
     from . import api
 
     show = not quiet and sys.stderr.isatty()
+    if not quiet:
+        from .kernels import compiled_on_disk
+
+        if not compiled_on_disk():
+            print("first run: compiling the search kernels once (about a minute); later runs load them from the "
+                  "cache", file=sys.stderr, flush=True)
     # with a time budget each search is planned just before it runs (to get what is left): no total up front
     total = None if setup.deadline is not None else len(api.unit_keys(setup))
     bar = tqdm(total=total, desc="searching", unit="unit", file=sys.stderr, disable=not show, leave=False)

@@ -417,3 +417,33 @@ def test_diagnosis_repr_is_a_few_lines_and_table_holds_the_detail(stackloss):
     for check in diag.checks:  # every check is named in the summary by its level, or counted as fine
         assert check.name in text or check.level == "fine"
     assert f"fine: {sum(c.level == 'fine' for c in diag.checks)}" in text
+
+
+@pytest.mark.parametrize("weighted", [False, True])
+def test_reset_and_breusch_pagan_from_the_basis_equal_statsmodels_on_a_larger_design(weighted):
+    # RESET and Breusch-Pagan are computed by projecting on the fitted design's orthonormal basis (no new QR
+    # of the augmented design); statsmodels' linear_reset and het_breuschpagan refit from scratch.
+    rng = np.random.default_rng(8)
+    n = 3000
+    X = np.column_stack([rng.uniform(1, 10, n), rng.normal(size=n), rng.exponential(size=n)])
+    y = 1 + np.log(X[:, 0]) + 0.5 * X[:, 1] + rng.normal(0, 0.5 + 0.1 * X[:, 0], n)
+    w = rng.uniform(0.5, 2.0, n) if weighted else None
+    cands = make_candidates(X, y, weights=w) if weighted else make_candidates(X, y)
+    diag = diagnose(cands, (0, 1, 2))
+    root = np.sqrt(w) if weighted else np.ones(n)
+    exog = sm.add_constant(X) * root[:, None]
+    ref = sm.OLS(y * root, exog).fit()
+    if weighted:  # the weighted fit's RESET: WLS with ŷ², ŷ³ of the response's own scale added, F test
+        plain = sm.WLS(y, sm.add_constant(X), weights=w).fit()
+        z = (plain.fittedvalues - plain.fittedvalues.mean()) / plain.fittedvalues.std()
+        wider = sm.WLS(y, np.column_stack([sm.add_constant(X), z ** 2, z ** 3]), weights=w).fit()
+        f_value = float(wider.compare_f_test(plain)[0])
+    else:
+        f_value = float(np.squeeze(linear_reset(ref, power=3, test_type="fitted", use_f=True).fvalue))
+    assert diag.check("reset").statistic == pytest.approx(f_value, rel=1e-7)
+    if weighted:  # het_breuschpagan wants a constant column; the whitened design has √w instead
+        e2 = np.asarray(ref.resid) ** 2
+        lm = n * (1.0 - sm.OLS(e2, exog).fit().ssr / np.sum((e2 - e2.mean()) ** 2))
+    else:
+        lm, _, _, _ = het_breuschpagan(ref.resid, exog)
+    assert diag.check("breusch_pagan").statistic == pytest.approx(lm, rel=1e-7)

@@ -141,3 +141,22 @@ def test_rows_far_off_the_fit_are_named_by_the_bonferroni_outlier_test():
     assert "Bonferroni outlier test" in check.verdict
     assert diag.check("cooks_distance").level == "fine"
     assert f"{abs(table[order[0], 0]):.3g}" in check.verdict  # the largest |t| as statsmodels has it
+
+
+def test_the_expected_count_at_many_rows_matches_the_exact_sum():
+    # Above 20,000 rows the Beta shares are interpolated between 2049 exact values (the bound's quantiles);
+    # the sum must match the exact one (scipy's Beta survival function on every row) to far less than its
+    # own standard deviation.
+    from selectkit import diagnostics
+
+    rng = np.random.default_rng(5)
+    n, k = 60_000, 5
+    design = np.column_stack([np.ones(n), rng.normal(size=(n, 2)), rng.exponential(size=(n, 2))])
+    q, _ = np.linalg.qr(design)
+    h = np.sum(q ** 2, axis=1)
+    mean, sd = _expected_above_cooks(h, n, k, 4 / n)
+    bound = np.clip(4 / n * k * (1 - h) / (h * (n - k)), 0, 1)
+    exact = stats.beta.sf(bound, 0.5, (n - k - 1) / 2)
+    assert n > diagnostics._EXACT_SHARES
+    assert abs(mean - exact.sum()) < 1e-2 * np.sqrt(np.sum(exact * (1 - exact)))  # measured: 0.003 SD
+    assert sd == pytest.approx(np.sqrt(np.sum(exact * (1 - exact))), rel=1e-4)
