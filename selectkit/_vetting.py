@@ -198,11 +198,13 @@ def added_column_t(design, y, probes, weights=None):
     scale[~(scale > 0)] = 1.0
     if not (np.all(np.isfinite(design)) and np.all(np.isfinite(probes)) and np.all(np.isfinite(y))):
         return np.full(probes.shape[1], np.nan)
-    try:
-        u, sv, _ = np.linalg.svd(design / scale, full_matrices=False)
-    except np.linalg.LinAlgError:  # pragma: no cover - finite input converges in practice
-        return np.full(probes.shape[1], np.nan)
-    basis = u[:, sv > sv.max() * max(design.shape) * np.finfo(float).eps]
+    from scipy.linalg import qr
+
+    # A pivoted QR reveals the rank as the SVD does (the columns whose pivot falls below the same
+    # relative tolerance are left out) at a fraction of its cost on many rows.
+    q, r, _ = qr(design / scale, mode="economic", pivoting=True, check_finite=False)
+    pivots = np.abs(np.diag(r))
+    basis = q[:, pivots > (pivots[0] if pivots.size else 0.0) * max(design.shape) * np.finfo(float).eps]
     e = y - basis @ (basis.T @ y)
     r = probes - basis @ (basis.T @ probes)
     rr = np.einsum("ij,ij->j", r, r)

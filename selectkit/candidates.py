@@ -1049,6 +1049,11 @@ def build_candidates(
     forced = set(dataset.forced)
     builder = _Builder(dataset.n)
     numeric, categorical = set(dataset.numeric), set(dataset.categorical)
+    if dataset.n > tf.PARAMETER_SAMPLE_ROWS and any(form in ("boxcox", "boxtidwell", "yeojohnson")
+                                                    for form, _ in plan):
+        builder.notes.append(f"data-chosen powers (Box-Cox, Yeo-Johnson, Box-Tidwell) estimated on a seeded sample "
+                             f"of {tf.PARAMETER_SAMPLE_ROWS:,} of the {dataset.n:,} rows (the same rows on every "
+                             f"run); the searches and every fit use all rows")
     straight = {}
     if curvature_test and ("identity", None) in plan and len(plan) > 1:
         straight = _straight_families(dataset, y, weights, shift_map, builder.notes)
