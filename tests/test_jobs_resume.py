@@ -298,3 +298,41 @@ def test_real_search_stopped_by_a_signal_then_resumed(tmp_path_factory):
     resumed = _run(spec.with_settings(), resume=True, progress=False, engine=TablesEngine())
     assert resumed.complete and resumed.units_resumed == 2
     assert resumed.outputs["shortlist_csv"].read_bytes() == straight.outputs["shortlist_csv"].read_bytes()
+
+
+# --------------------------------------------------------------------------- finishing is checkpointed
+
+
+class _NoFinish(TablesEngine):
+    """Fails if the ranking stage is computed again: a resumed finish must come from the run store."""
+
+    def finish(self, *args, **kwargs):
+        raise AssertionError("the ranking stage was computed again")
+
+
+def test_a_job_killed_after_its_ranking_stage_resumes_without_computing_it_again(tmp_path):
+    from selectkit.jobs.store import RunStore
+
+    write_positive_table(tmp_path / "bays.csv")
+    (tmp_path / "job.toml").write_text(REAL_JOB.replace("folds = 3", "folds = 3\nresamples = 4"))
+    first = _run(load_job(tmp_path / "job.toml"), resume=True, progress=False, engine=TablesEngine())
+    assert first.complete
+    shortlist = first.outputs["shortlist_csv"].read_bytes()
+    first.outputs["shortlist_csv"].unlink()  # as if killed while the outputs were written
+
+    again = _run(load_job(tmp_path / "job.toml"), resume=True, progress=False, engine=_NoFinish())
+    assert again.complete and again.outputs["shortlist_csv"].read_bytes() == shortlist
+    assert again.result.stability is not None and again.result.stability.n_boot == 4  # kept with the ranking
+    with RunStore.open_read_only(first.store) as store:
+        assert any("taken from the run store" in message for _, _, message in store.log_lines())
+
+
+def test_a_changed_ranking_setting_computes_the_ranking_stage_again(tmp_path):
+    write_positive_table(tmp_path / "bays.csv")
+    (tmp_path / "job.toml").write_text(REAL_JOB)
+    assert _run(load_job(tmp_path / "job.toml"), resume=True, progress=False, engine=TablesEngine()).complete
+    (tmp_path / "job.toml").write_text(REAL_JOB.replace("shortlist_size = 3", "shortlist_size = 2"))
+    with pytest.raises(AssertionError, match="computed again"):  # other settings: the kept stage does not apply
+        _run(load_job(tmp_path / "job.toml"), resume=True, progress=False, engine=_NoFinish())
+    again = _run(load_job(tmp_path / "job.toml"), resume=True, progress=False, engine=TablesEngine())
+    assert len(again.result.shortlist) <= 2

@@ -136,6 +136,22 @@ class _ApiEngine:
     def write(self, result, folder) -> dict:
         return dict(result.write(folder))
 
+    def keep(self, result) -> dict | None:
+        """What the run store keeps of a finished ranking stage (data only); None for a result it cannot keep."""
+        from .. import api
+
+        if not isinstance(result, api.Result):
+            return None
+        return {"ranked": result._ranked, "stability": result.stability, "honest": result.honest}
+
+    def restore(self, setup, founds, kept):
+        """A Result from the kept ranking stage and the pooled results."""
+        from .. import api
+
+        result = api.Result(setup=setup, founds=founds, ranked=kept["ranked"], stability=kept["stability"])
+        result.honest = kept["honest"]
+        return result
+
     def shortlist_rows(self, result) -> list[dict]:
         return json.loads(result.shortlist.to_json(orient="records", double_precision=15))
 
@@ -432,7 +448,9 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
             store.log(f"pooling the finished units failed: {type(pooling_error).__name__}: {pooling_error}",
                       level="warning")
         elif any(len(f) for f in founds):
-            result = engine.finish(setup, founds, deadline=deadline, **run_options)
+            result = _finish_checkpointed(engine, store, spec, setup, founds, complete=complete,
+                                          deadline=deadline, run_options=run_options)
+            store.log("writing the shortlist and the report")
             outputs = engine.write(result, store.path.parent)
             store.record_shortlist(engine.shortlist_rows(result))
             cut = _budget_notes(result)
@@ -464,6 +482,34 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
     store.log(f"run ended ({stopped_by}): {units_done} of {len(keys)} units, {models:,} models evaluated, "
               f"{format_seconds(seconds)}")
     return outcome
+
+
+def _finish_checkpointed(engine, store, spec, setup, founds, *, complete, deadline, run_options):
+    """Rank, check and (with the settings asking for them) resample: once per set of pooled results.
+
+    When every unit has finished, the ranking stage's result — the shortlist,
+    the bootstrap stability and the honest error, the costly part of finishing —
+    is kept in the run store beside the hash of the pooled results and the
+    settings it was computed from; a run that stops after it (a kill while the
+    report is written) resumes from it instead of computing it again.  A stage
+    cut short by the time budget is not kept: the next run finishes it.
+    """
+    basis = store.pooled_basis(spec.fingerprint()) if complete else None
+    restore, keep = getattr(engine, "restore", None), getattr(engine, "keep", None)
+    if basis is not None and restore is not None:
+        kept = store.finished("ranking", basis)
+        if kept is not None:
+            store.log("ranking, stability and honest error taken from the run store (an earlier run finished "
+                      "them from the same pooled results and settings)")
+            return restore(setup, founds, kept)
+    store.log("ranking and checking the best models"
+              + ("; then the bootstrap resamples and the honest error, if asked for" if complete else ""))
+    began = time.monotonic()
+    result = engine.finish(setup, founds, deadline=deadline, **run_options)
+    value = keep(result) if basis is not None and keep is not None and not _budget_notes(result) else None
+    if value is not None:
+        store.record_finished("ranking", basis, value, seconds=time.monotonic() - began)
+    return result
 
 
 def _record_failure(store: RunStore, err: BaseException, *, after_units: bool = False) -> None:

@@ -43,6 +43,7 @@ SCHEMA_VERSION = 2
 _PICKLED_SCHEMA = 1
 _UNIT_FORMAT = ("selectkit-unit", 1)
 _FOUND_FORMAT = ("selectkit-found", 1)
+_FINISH_FORMAT = ("selectkit-finish", 1)
 _TABLES = ("about", "units", "pooled", "shortlist", "log")
 
 _SCHEMA = """
@@ -67,6 +68,13 @@ CREATE TABLE IF NOT EXISTS pooled (
     found BLOB NOT NULL
 );
 CREATE TABLE IF NOT EXISTS shortlist (position INTEGER PRIMARY KEY, row TEXT NOT NULL);
+CREATE TABLE IF NOT EXISTS finishing (
+    stage TEXT PRIMARY KEY,
+    basis TEXT NOT NULL,
+    result BLOB NOT NULL,
+    checksum TEXT NOT NULL,
+    seconds REAL
+);
 CREATE TABLE IF NOT EXISTS log (
     id INTEGER PRIMARY KEY AUTOINCREMENT,
     at REAL NOT NULL,
@@ -74,6 +82,9 @@ CREATE TABLE IF NOT EXISTS log (
     message TEXT NOT NULL
 );
 """
+
+
+_FINISHING_TABLE = _SCHEMA[_SCHEMA.index("CREATE TABLE IF NOT EXISTS finishing"):].split(";")[0]
 
 
 # --------------------------------------------------------------------------- helpers
@@ -443,6 +454,8 @@ class RunStore:
         with self._transaction():
             for table in ("units", "pooled", "shortlist", "log"):
                 self._db.execute(f"DELETE FROM {table}")
+            self._db.execute(_FINISHING_TABLE)
+            self._db.execute("DELETE FROM finishing")
             self._db.execute("DELETE FROM about WHERE name != 'schema_version'")
             self._db.execute("INSERT OR REPLACE INTO about VALUES ('created_at', ?)", (json.dumps(time.time()),))
 
@@ -476,6 +489,37 @@ class RunStore:
         rows = self._db.execute(
             "SELECT method, models, evaluated, exact, stopped_by FROM pooled ORDER BY position").fetchall()
         return [dict(method=m, models=n, evaluated=e, exact=bool(x), stopped_by=s) for m, n, e, x, s in rows]
+
+    # ------------------------------------------------------------------ finishing
+    def pooled_basis(self, settings_fingerprint: str) -> str:
+        """SHA-256 of the pooled results and the settings: what a finishing stage was computed from."""
+        digest = hashlib.sha256(settings_fingerprint.encode("utf-8"))
+        for (blob,) in self._db.execute("SELECT found FROM pooled ORDER BY position").fetchall():
+            digest.update(bytes(blob))
+        return digest.hexdigest()
+
+    def record_finished(self, stage: str, basis: str, value, *, seconds: float | None = None) -> None:
+        """Keep a finishing stage's result (ranking, stability, honest error), data only, with its basis."""
+        blob = dumps(value, _FINISH_FORMAT)
+        with self._transaction():
+            self._db.execute(_FINISHING_TABLE)
+            self._db.execute("INSERT OR REPLACE INTO finishing VALUES (?, ?, ?, ?, ?)",
+                             (stage, basis, blob, unit_checksum(stage, blob), seconds))
+
+    def finished(self, stage: str, basis: str):
+        """The stored result of a finishing stage computed from ``basis``; None when there is none (or it
+        was computed from other pooled results or settings, or fails its checksum)."""
+        try:
+            row = self._db.execute("SELECT basis, result, checksum FROM finishing WHERE stage = ?",
+                                   (stage,)).fetchone()
+        except sqlite3.OperationalError:  # a store made before finishing was checkpointed
+            return None
+        if row is None or row[0] != basis or unit_checksum(stage, row[1]) != row[2]:
+            return None
+        try:
+            return loads(row[1], _FINISH_FORMAT)
+        except _datafile.RefusedData:
+            return None
 
     def record_shortlist(self, rows: list[dict]) -> None:
         """Replace the stored shortlist (one JSON object per model, best first)."""
