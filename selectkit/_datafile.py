@@ -63,7 +63,7 @@ def _record_types() -> dict:
     Imported when first needed (this bottom-level module imports no stage at
     load time).  Only these are ever rebuilt; a name not here is refused.
     """
-    from . import _budget, candidates, data, moments, rank
+    from . import _budget, candidates, data, inference, moments, rank
     from .api import MethodRun, SearchSetup
     from .searches import _found, crossval, exhaustive, screen, stepwise
 
@@ -72,7 +72,7 @@ def _record_types() -> dict:
         data.Note, data.IntakeReport, data.Dataset, moments.Moments, rank.ModelFit, rank.Shortlist,
         rank.Stability, crossval.FoldScheme, crossval.Fold, crossval.CrossvalOptions, crossval.NestedResult,
         exhaustive.ExhaustiveOptions, stepwise.StepwiseOptions, screen.ScreenOptions, screen.ScreenResult,
-        _budget.Deadline, MethodRun, SearchSetup,
+        _budget.Deadline, MethodRun, SearchSetup, inference.SplitInference,
     ]
     return {cls.__name__: cls for cls in classes}
 

@@ -597,6 +597,13 @@ def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: st
             deadline=deadline,
         )
     result = Result(setup=setup, founds=tuple(founds), ranked=shortlist, stability=stability)
+    if s.get("split_fraction", 0) and shortlist.subsets:
+        from .inference import split_inference
+
+        result.split = split_inference(setup.candidates, _SearchRunner(tuple(setup.runs), deadline),
+                                       fraction=s["split_fraction"], seed=s["seed"], criterion=shortlist.criterion,
+                                       convention=s["parameter_count"], time_ordered=s["time_ordered"],
+                                       best_on_all_rows=shortlist.subsets[0])
     if s.get("honest_folds", 0) >= 2:
         result.honest_error(folds=s["honest_folds"], n_jobs=n_jobs, backend=backend, scheduler=scheduler,
                             deadline=deadline)
@@ -754,6 +761,8 @@ class Result:
         self._ranked = ranked
         self.stability = stability
         self.honest = None
+        #: SplitInference (selectkit.inference) when ``split_fraction`` asked for honest p-values, else None
+        self.split = None
         self._checks: dict[int, Any] = {}
         self._models: dict[int, Any] = {}
 
@@ -947,7 +956,7 @@ class Result:
         diagnoses = self.diagnoses()  # first: a model that cannot be checked adds a note to the shortlist
         return dict(settings=self.settings, candidates=self.candidates, founds=self.founds,
                     shortlist=self._ranked, diagnoses=diagnoses, stability=self.stability,
-                    honest=self.honest)
+                    honest=self.honest, split=self.split)
 
     def write(self, folder) -> dict:
         """Write the shortlist (CSV, JSON) and the HTML report into ``folder``; return their paths."""
@@ -1012,6 +1021,7 @@ class Result:
             "ranked": self._ranked,
             "stability": self.stability,
             "honest": self.honest,
+            "split": self.split,
         }
         atomic_write_bytes(path, _datafile.dumps(payload, kind=_SAVE_FORMAT, version=_SAVE_VERSION))
         return path
@@ -1052,4 +1062,5 @@ def load(path) -> Result:
     result = Result(setup=payload["setup"], founds=payload["founds"], ranked=payload["ranked"],
                     stability=payload["stability"])
     result.honest = payload["honest"]
+    result.split = payload.get("split")
     return result

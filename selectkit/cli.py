@@ -141,7 +141,7 @@ _TABLE_SETTINGS = ("response", "predictors", "always_include", "leave_out", "row
                    "interactions", "response_form", "prefer", "twin_limit", "vif_limit", "curvature_test")
 _SEARCH_SETTINGS = _TABLE_SETTINGS + ("methods", "method_options", "exact_limit", "criterion", "aim",
                                       "parameter_count", "shortlist_size", "keep_within", "folds", "resamples",
-                                      "honest_folds", "seed", "workers", "backend", "scheduler",
+                                      "honest_folds", "split_fraction", "seed", "workers", "backend", "scheduler",
                                       "scheduler_timeout", "time_budget", "detailed_answers", "output")
 _RUN_SETTINGS = ("workers", "backend", "scheduler", "scheduler_timeout")
 

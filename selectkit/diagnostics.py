@@ -250,6 +250,13 @@ class Diagnosis:
         How rows are named: ``"by <identifier column>"`` when intake set an
         identifier column aside, otherwise ``"data rows of the file, counting
         from 1"`` (or ``"rows of the table, counting from 1"`` for a DataFrame).
+    robust_se : ndarray, shape (k,)
+        Heteroscedasticity-consistent standard errors of the coefficients
+        (intercept first), HC3 of MacKinnon & White (1985):
+        cov = (XᵀX)⁻¹ Xᵀ diag(eᵢ²/(1 − hᵢᵢ)²) X (XᵀX)⁻¹, on the √w scale with
+        row weights — equal to statsmodels' ``cov_type="HC3"``.  They stay
+        valid when the spread of the errors changes; the report shows them
+        beside the ordinary ones when the constant-variance check is not fine.
     """
 
     subset: tuple[int, ...]
@@ -270,6 +277,7 @@ class Diagnosis:
     condition_number: float
     flagged_rows: pd.DataFrame
     rows_named: str = "rows, counting from 1"
+    robust_se: np.ndarray | None = None
 
     def check(self, name: str) -> Check:
         """The check called ``name``; raises listing the names when unknown."""
@@ -322,6 +330,21 @@ class Diagnosis:
 
 
 # --------------------------------------------------------------------------- helpers
+
+
+def _hc3(basis, cov_root, resid, hat):
+    """HC3 standard errors (MacKinnon & White 1985) from the fit's factors.
+
+    With B the covariance root ((XᵀX)⁻¹ = BBᵀ) and Q = XB the orthonormal basis
+    of the design, (XᵀX)⁻¹Xᵀ = BQᵀ, so the sandwich is
+    B (Qᵀ diag(uᵢ) Q) Bᵀ with uᵢ = eᵢ²/(1 − hᵢᵢ)²: one O(n·k²) product, no
+    n × n matrix.  A row with hᵢᵢ = 1 makes it infinite.
+    """
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        u = resid ** 2 / (1.0 - hat) ** 2
+        meat = basis.T @ (basis * u[:, None])
+        cov = cov_root @ meat @ cov_root.T
+    return np.sqrt(np.maximum(np.diag(cov), 0.0))
 
 
 def _p(value: float) -> str:
@@ -588,11 +611,13 @@ def _breusch_pagan(design, resid, fitted, alpha, basis=None):
             verdict = (f"{head}: the spread of the errors changes with the terms, but slightly (f² = "
                        f"{effect:.2g} of the squared residuals on the terms, below Cohen's small effect "
                        f"{EFFECT_F2_SMALL:g})" + (", growing with the fitted value." if grows else "."))
+        verdict += (" The coefficient table shows heteroscedasticity-robust (HC3) standard errors beside the "
+                    "ordinary ones; read the intervals from those.")
         remedy = ("A response transform (log or Box-Cox) often steadies a spread that grows with the fitted "
-                  "value; otherwise use row weights or heteroscedasticity-consistent standard errors."
+                  "value; otherwise use row weights, or the robust (HC3) standard errors shown."
                   if grows else
-                  "Look at the scale-location plot; use row weights for the term the spread follows, or "
-                  "heteroscedasticity-consistent standard errors.")
+                  "Look at the spread figure; use row weights for the term the spread follows, or the robust "
+                  "(HC3) standard errors shown.")
     return _check("breusch_pagan", "constant variance", float(lm), p, level, verdict,
                   _REFERENCES["breusch_pagan"], remedy)
 
@@ -1043,6 +1068,7 @@ def diagnose(candidates, subset, *, time_ordered=False, alpha=0.05) -> Diagnosis
             f"{RANK_TOLERANCE:g} of its length); the model ({', '.join(labels)}) cannot be checked — drop "
             "that term or one it depends on")
     rss = float(resid @ resid)
+    robust_se = _hc3(fit.basis, fit.cov_root, resid, hat)
     studentized, cooks = _influence(resid, hat, n, k, rss)
     per_column, term_vif, condition = _vif_tables(x, labels, owners)
     rows_named, namer = _row_namer(candidates, n)
@@ -1081,4 +1107,5 @@ def diagnose(candidates, subset, *, time_ordered=False, alpha=0.05) -> Diagnosis
         condition_number=condition,
         flagged_rows=flagged,
         rows_named=rows_named,
+        robust_se=robust_se,
     )

@@ -659,6 +659,10 @@ SETTINGS: tuple[Setting, ...] = (
     _S("folds", "ranking", FOLDS, 5, "folds for the cross-validated error", metavar="K"),
     _S("resamples", "ranking", _whole(0, meaning="0 (skip) or a positive number of resamples"), 0,
        "bootstrap resamples for the stability of the selection (0: skip)", metavar="B"),
+    _S("split_fraction", "ranking", _number(0.0, strictly=False, high=0.9,
+                                            meaning="0 (skip) or a share of the rows below 0.9, e.g. 0.5"), 0.0,
+       "honest p-values by sample splitting: choose the model on this share of the rows, estimate it on the "
+       "rest (0: skip)", metavar="SHARE"),
     _S("honest_folds", "ranking", _whole(2, also=0, meaning="0 (skip) or at least 2 outer folds"), 0,
        "outer folds for the honest error of the whole search (0: skip)", metavar="K"),
     # [run]

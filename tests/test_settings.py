@@ -52,6 +52,7 @@ EXAMPLES = {
     "folds": 7,
     "resamples": 20,
     "honest_folds": 3,
+    "split_fraction": 0.5,
     "seed": 12,
     "workers": 2,
     "backend": "threading",

@@ -142,7 +142,8 @@ class _ApiEngine:
 
         if not isinstance(result, api.Result):
             return None
-        return {"ranked": result._ranked, "stability": result.stability, "honest": result.honest}
+        return {"ranked": result._ranked, "stability": result.stability, "honest": result.honest,
+                "split": result.split}
 
     def restore(self, setup, founds, kept):
         """A Result from the kept ranking stage and the pooled results."""
@@ -150,6 +151,7 @@ class _ApiEngine:
 
         result = api.Result(setup=setup, founds=founds, ranked=kept["ranked"], stability=kept["stability"])
         result.honest = kept["honest"]
+        result.split = kept.get("split")
         return result
 
     def shortlist_rows(self, result) -> list[dict]:
@@ -213,7 +215,7 @@ RUN_SETTINGS = ("workers", "backend", "scheduler", "scheduler_timeout", "time_bu
 #: [ranking] settings used only after the units (ranking, bootstrap, honest error): a job may change them
 #: on resume, since the stored units do not depend on them.
 RANKING_ONLY = ("ranking.parameter_count", "ranking.shortlist_size", "ranking.keep_within", "ranking.resamples",
-                "ranking.honest_folds")
+                "ranking.honest_folds", "ranking.split_fraction")
 
 
 def resume_job(folder_or_store, *, progress=None, **run_settings) -> JobOutcome:

@@ -23,7 +23,7 @@ OUTPUT_NAMES = {
 
 
 def write_outputs(folder, *, settings, candidates, founds, shortlist, diagnoses, stability=None,
-                  honest=None) -> dict:
+                  honest=None, split=None) -> dict:
     """Write ``shortlist.csv`` (answers), ``models.csv`` (models), ``shortlist.json`` and ``report.html`` into ``folder``.
 
     Parameters
@@ -59,7 +59,8 @@ def write_outputs(folder, *, settings, candidates, founds, shortlist, diagnoses,
     founds = list(founds or ())
     diagnoses = list(diagnoses or ())
     document = tables.shortlist_document(shortlist=shortlist, candidates=candidates, settings=settings,
-                                         founds=founds, diagnoses=diagnoses, stability=stability, honest=honest)
+                                         founds=founds, diagnoses=diagnoses, stability=stability, honest=honest,
+                                         split=split)
     tables.check_document(document)
     # One set: every file is written into a staging folder first and moved in only when all are there.
     with output_set(folder) as stage:
@@ -70,6 +71,6 @@ def write_outputs(folder, *, settings, candidates, founds, shortlist, diagnoses,
         }
         paths["report_html"] = html.write_html(
             stage / OUTPUT_NAMES["report_html"], shortlist=shortlist, settings=settings, candidates=candidates,
-            founds=founds, diagnoses=diagnoses, stability=stability, honest=honest,
+            founds=founds, diagnoses=diagnoses, stability=stability, honest=honest, split=split,
         )
     return {label: folder / Path(path).name for label, path in paths.items()}

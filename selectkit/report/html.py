@@ -306,6 +306,19 @@ def _model_section(position, fit, diagnosis, row, candidates=None, *, figures=Tr
     coefficients = fit.coefficients.rename(columns={"p_value_optimistic": "p-value (optimistic)",
                                                     "std_error": "standard error", "ci_low": "95% low",
                                                     "ci_high": "95% high"})
+    robust = getattr(diagnosis, "robust_se", None) if diagnosis is not None else None
+    spread = next((c for c in diagnosis.checks if c.name == "breusch_pagan"), None) if diagnosis is not None else None
+    if robust is not None and spread is not None and spread.level not in ("fine", None, "not assessed") \
+            and len(robust) == len(coefficients):
+        # the spread of the errors changes: intervals from the HC3 standard errors (MacKinnon & White 1985)
+        from scipy import stats as _stats
+
+        q = float(_stats.t.ppf(0.975, max(fit.n - fit.k, 1)))
+        coefficients = coefficients.assign(**{
+            "robust standard error (HC3)": robust,
+            "95% low (HC3)": coefficients["estimate"].to_numpy() - q * robust,
+            "95% high (HC3)": coefficients["estimate"].to_numpy() + q * robust,
+        })
     parts.append("<h3>Coefficients</h3>" + _table(coefficients))
     parts.append('<p class="note">The intervals and p-values treat this model as chosen in advance; '
                  "because the data chose it, they are optimistic.</p>")
@@ -373,6 +386,18 @@ def _cautions_section() -> str:
 # --------------------------------------------------------------------------- page
 
 
+def _split_section(split) -> str:
+    """The model chosen on the selection rows, with its honest p-values from the estimation rows."""
+    table = split.coefficients.rename(columns={
+        "std_error": "standard error", "ci_low": "95% low", "ci_high": "95% high", "p_value": "p-value (honest)",
+        "std_error_all_rows": "standard error on all rows", "p_value_all_rows_optimistic": "p-value on all rows "
+        "(optimistic)"})
+    same = ("It is the best model of the searches on all rows." if split.same_as_all_rows else
+            "It is not the best model of the searches on all rows: with fewer rows the choice can differ.")
+    return (f"<p class=\"equation\">{_e(' + '.join(split.terms) or 'intercept only')}</p><p>{_e(same)}</p>"
+            + _table(table) + "".join(f'<p class="note">{_e(n)}</p>' for n in split.notes))
+
+
 def _honest_section(honest) -> str:
     """The honest error of the whole procedure next to the optimistic one."""
     rows = [("honest error (mean squared prediction error of the procedure)", _fmt(honest.error)),
@@ -385,7 +410,7 @@ def _honest_section(honest) -> str:
 
 
 def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnoses=(), stability=None,
-                honest=None) -> str:
+                honest=None, split=None) -> str:
     """The report as one HTML string (no script, no external resource).
 
     Parameters
@@ -399,6 +424,8 @@ def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnos
     stability : Stability, optional
     honest : NestedResult, optional
         The honest error of the whole procedure (outer cross-validation).
+    split : selectkit.inference.SplitInference, optional
+        Honest p-values by sample splitting.
 
     Returns
     -------
@@ -434,6 +461,9 @@ def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnos
     if honest is not None:
         body.append(_section("honest-error", "How well the whole procedure predicts new rows",
                              _honest_section(honest)))
+    if split is not None:
+        body.append(_section("split", "Honest p-values: chosen on some rows, estimated on the others",
+                             _split_section(split)))
     body.append(_section("cautions", "Before you rely on these models", _cautions_section()))
     nav_items = [(a, t) for a, t, _ in sections] + [(f"model-{i + 1}", f"Answer {i + 1}")
                                                     for i in range(len(shortlist.fits))]
@@ -441,6 +471,8 @@ def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnos
         nav_items.append(("stability", "Resampling"))
     if honest is not None:
         nav_items.append(("honest-error", "Honest error"))
+    if split is not None:
+        nav_items.append(("split", "Honest p-values"))
     nav_items.append(("cautions", "Cautions"))
     nav = "<nav><ol>" + "".join(f'<li><a href="#{a}">{_e(t)}</a></li>' for a, t in nav_items) + "</ol></nav>"
     best = shortlist.fits[0].equation if shortlist.fits else ""
@@ -459,8 +491,8 @@ def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnos
 
 
 def write_html(path, *, shortlist, settings=None, candidates=None, founds=(), diagnoses=(),
-               stability=None, honest=None) -> Path:
+               stability=None, honest=None, split=None) -> Path:
     """Render the report and write it atomically to ``path``; return the path."""
     text = render_html(shortlist=shortlist, settings=settings, candidates=candidates, founds=founds,
-                       diagnoses=diagnoses, stability=stability, honest=honest)
+                       diagnoses=diagnoses, stability=stability, honest=honest, split=split)
     return atomic_write_text(Path(path), text)

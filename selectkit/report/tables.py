@@ -254,7 +254,7 @@ def _stability_entry(stability) -> dict | None:
 
 
 def shortlist_document(*, shortlist, candidates=None, settings=None, founds=(), diagnoses=(),
-                       stability=None, honest=None) -> dict:
+                       stability=None, honest=None, split=None) -> dict:
     """The shortlist as a JSON-ready dict following ``schema.json`` (version 1.0).
 
     Parameters
@@ -328,6 +328,15 @@ def shortlist_document(*, shortlist, candidates=None, settings=None, founds=(), 
             "error": _clean(honest.error), "standard_error": _clean(honest.standard_error),
             "naive_error": _clean(honest.naive_error), "optimism": _clean(honest.optimism),
             "procedure": str(honest.procedure), "outer_folds": int(len(honest.folds)),
+        },
+        "split_inference": None if split is None else {
+            "fraction": float(split.fraction), "seed": int(split.seed), "time_ordered": bool(split.time_ordered),
+            "n_select": int(split.n_select), "n_estimate": int(split.n_estimate),
+            "terms": [str(t) for t in split.terms], "criterion": str(split.criterion),
+            "same_as_all_rows": bool(split.same_as_all_rows),
+            "coefficients": [{key: _clean(value) for key, value in row.items()}
+                             for row in split.coefficients.drop(columns=["term"]).to_dict(orient="records")],
+            "notes": [str(n) for n in split.notes],
         },
         "notes": list(shortlist.notes),
         "cautions": [{"title": title, "text": text} for title, text in CAUTIONS],
