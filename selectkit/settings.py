@@ -404,22 +404,34 @@ def _method_options_check(value):
     out = {}
     for method, options in value.items():
         method = str(method).lower()
-        if method == "auto":
-            raise Refusal("cannot hold settings for 'auto': give them to the method auto picks, "
-                          "exhaustive or screen")
-        if method not in METHOD_NAMES:
-            raise Refusal(f"names an unknown search method {method!r}{suggest(method, METHOD_NAMES)}; "
-                          f"choose from {', '.join(METHOD_NAMES[1:])}")
-        if not isinstance(options, Mapping):
-            raise Refusal(f"gives {method!r} {options!r}; give a table of its settings, e.g. {{'max_size': 6}}")
-        for key, item in options.items():
-            if key == "time_budget":
-                raise Refusal(f"gives {method!r} a time_budget: the run's budget is the setting time_budget "
-                              f"(one budget for the whole run); use it instead")
-            if isinstance(item, Mapping):
-                raise Refusal(f"gives {method!r} {key} as a table; give a plain value or a list")
+        problem = method_options_problem(method, options)
+        if problem is not None:
+            key, reason = problem
+            raise Refusal(f"for {method!r}{' ' + key if key else ''}: {reason}")
         out[method] = dict(options)
     return out
+
+
+def method_options_problem(method: str, options, *, where: str | None = None):
+    """What is wrong with the settings ``options`` of search ``method``: None, or ``(key or None, reason)``.
+
+    The one rule for ``method_options`` in Python, at the command line and in a
+    job file's ``[search.METHOD]`` tables.
+    """
+    if method == "auto":
+        return None, "cannot hold settings: give them to the method auto picks, exhaustive or screen"
+    if method not in METHOD_NAMES:
+        return None, (f"unknown search method{suggest(method, METHOD_NAMES)}; "
+                      f"choose from {', '.join(METHOD_NAMES[1:])}")
+    if not isinstance(options, Mapping):
+        return None, f"give a table of its settings, e.g. max_size = 6 (got {options!r})"
+    for key, item in options.items():
+        if key == "time_budget":
+            return key, (f"the run has one time budget, {spell('time_budget', where=where)} (checked between "
+                         f"work units, so that every stored unit is whole); move it there")
+        if isinstance(item, Mapping):
+            return key, "must be a plain value or a list, not a table"
+    return None
 
 
 def _method_options_parse(text):

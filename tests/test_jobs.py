@@ -306,7 +306,7 @@ def test_run_settings_do_not_change_the_fingerprint(job_folder):
     (("max_size = 3", "time_budget = 60"), ["[search.exhaustive] time_budget", "[run] time_budget"]),
     (('[search.exhaustive]', '[search.exhaustve]'), ["[search.exhaustve]", "did you mean 'exhaustive'"]),
     (('methods = ["exhaustive", "stepwise"]\nexact_limit = 30\n[search.exhaustive]',
-      'methods = ["auto"]\nexact_limit = 30\n[search.auto]'), ["[search.auto] cannot hold settings"]),
+      'methods = ["auto"]\nexact_limit = 30\n[search.auto]'), ["[search.auto]: cannot hold settings"]),
     (('workers = 2', 'workers = "two"'), ["[run] workers", "whole number"]),
     (('workers = 2', 'workers = 0'), ["[run] workers", "positive number of worker processes"]),
     (('time_budget = "1h30m"', 'time_budget = -60'), ["time_budget", "positive"]),

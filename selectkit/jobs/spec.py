@@ -310,18 +310,10 @@ def parse_job(text: str, *, base=".", name: str = "job", source=None, check_tabl
             else:
                 raise JobFileError(_unknown_key_message(section, key, list(keys)))
     for method, table in method_options.items():
-        if method == "auto":
-            raise JobFileError("[search.auto] cannot hold settings: give them to the method auto picks, "
-                               "[search.exhaustive] or [search.screen]")
-        if method not in METHOD_NAMES:
-            raise JobFileError(f"[search.{method}]: unknown search method{suggest(method, METHOD_NAMES)}; "
-                               f"choose from {', '.join(METHOD_NAMES[1:])}")
-        for key, value in table.items():
-            if key == "time_budget":
-                raise JobFileError(f"[search.{method}] time_budget: a job's budget is [run] time_budget (checked "
-                                   f"between work units, so that every stored unit is whole); move it there")
-            if isinstance(value, dict):
-                raise JobFileError(f"[search.{method}] {key} must be a plain value or a list, not a table")
+        problem = _settings.method_options_problem(method, table, where=JOB)
+        if problem is not None:
+            key, reason = problem
+            raise JobFileError(f"[search.{method}]{' ' + key if key else ''}: {reason}")
     if method_options:
         if "method_options" in given:
             raise JobFileError("[search] method_options and [search.METHOD] tables both give method settings; "
