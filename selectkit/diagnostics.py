@@ -332,6 +332,62 @@ class Diagnosis:
 # --------------------------------------------------------------------------- helpers
 
 
+def _bend_pointer(candidates, subset, design, y, root) -> str:
+    """The numeric term along which the mean bends most, and the forms of its variable the search did not try.
+
+    For each numeric one-column term of the model, the curvature probe of its
+    source variable — x·log x for a positive x (the Box-Tidwell test of power
+    1; Box & Tidwell 1962), x² otherwise — is added to this model's design and
+    its t statistic taken (:func:`selectkit._vetting.added_column_t`); the
+    largest |t| names the term whose component-plus-residual panel to read.
+    Empty when no term can be probed.
+    """
+    from ._vetting import _probe, added_column_t
+
+    frame = getattr(getattr(candidates, "dataset", None), "frame", None)
+    n = design.shape[0]
+    names, probes = [], []
+    for index in subset:
+        term = candidates.terms[index]
+        if term.kind != "numeric" or len(term.columns) != 1 or not term.source:
+            continue
+        source = term.source[0]
+        if frame is not None and source in frame.columns and len(frame) == n \
+                and pd.api.types.is_numeric_dtype(frame[source]):
+            x = frame[source].to_numpy(dtype=float)
+        else:
+            x = np.asarray(candidates.matrix[:, term.columns[0]], dtype=float)
+        if not np.all(np.isfinite(x)) or np.ptp(x) <= 0:
+            continue
+        probe = _probe(x, bool(np.min(x) > 0))
+        names.append((term.name, source))
+        probes.append(probe if root is None else probe * root)
+    if not probes:
+        return ""
+    t = added_column_t(design, y, np.column_stack(probes))
+    if not np.any(np.isfinite(t)):
+        return ""
+    j = int(np.nanargmax(np.abs(t)))
+    term, source = names[j]
+    offered = sorted({c.name for c in candidates.terms if c.family == source})
+    refused = [r for r in candidates.refused if r.family == source]
+    untried = "; ".join(f"{r.form} ({r.reason.split(';')[0].split(' — ')[0]})" for r in refused[:4])
+    text = (f"The bend is largest along {source} (its curvature probe added to this model: t = {t[j]:.2g}); read "
+            f"its panel in the figure of forms, where the fitted {term} leaves the points. Forms of {source} "
+            f"in the search: {', '.join(offered)}.")
+    if untried:
+        text += f" Refused for the data: {untried}."
+    from .candidates import DEFAULT_FORMS
+    from .settings import spell
+
+    used = {c.transform for c in candidates.terms if c.family == source} | {r.form for r in refused}
+    asked = [f for f in DEFAULT_FORMS if f not in used]
+    if asked:
+        text += (f" Not offered in this run: {', '.join(asked)} — offer them with "
+                 f"{spell('forms', ['identity', *asked])}.")
+    return text
+
+
 def _hc3(basis, cov_root, resid, hat):
     """HC3 standard errors (MacKinnon & White 1985) from the fit's factors.
 
@@ -460,7 +516,7 @@ def _reset(design, y, fitted, rss, alpha, basis=None, root=None):
     return _check("reset", "linearity", float(f), p, level, verdict, _REFERENCES["reset"],
                   None if level == FINE else
                   "Try a transformed form of a term (log, square root, reciprocal) or a missing term; "
-                  "the residuals-against-term plots show which term bends.")
+                  "the panels of each term (component plus residual) show which term bends.")
 
 
 def _shape(resid):
@@ -1086,6 +1142,14 @@ def diagnose(candidates, subset, *, time_ordered=False, alpha=0.05) -> Diagnosis
         leverage_check,
         cooks_check,
     )
+    if checks[0].level not in (FINE, None, NOT_ASSESSED):  # the mean bends: say along which term, and what next
+        pointer = _bend_pointer(candidates, subset, design_w, y_w, None if candidates.weights is None else root)
+        if pointer:
+            import dataclasses
+
+            reset = checks[0]
+            checks = (dataclasses.replace(reset, remedy=f"{reset.remedy} {pointer}" if reset.remedy else pointer),
+                      ) + checks[1:]
     numeric_columns = {label: x[:, j] for j, label in enumerate(labels)
                        if len(np.unique(x[:, j])) > 2}
     return Diagnosis(

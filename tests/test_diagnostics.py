@@ -447,3 +447,25 @@ def test_reset_and_breusch_pagan_from_the_basis_equal_statsmodels_on_a_larger_de
     else:
         lm, _, _, _ = het_breuschpagan(ref.resid, exog)
     assert diag.check("breusch_pagan").statistic == pytest.approx(lm, rel=1e-7)
+
+
+def test_a_bend_names_the_term_along_which_the_mean_bends_and_the_forms_not_tried():
+    # Invented bays: the yield follows log(light) and co2 straight; with the raw forms only, RESET fails and
+    # the pointer must name light (not co2), where the curvature probe's t is largest.
+    import pandas as pd
+
+    import selectkit
+
+    rng = np.random.default_rng(11)
+    n = 400
+    frame = pd.DataFrame({"light": rng.uniform(1, 60, n), "co2": rng.uniform(0, 10, n)})
+    frame["yield_kg_m2"] = 2 + 3 * np.log(frame["light"]) + 0.3 * frame["co2"] + rng.normal(0, 0.3, n)
+    result = selectkit.search(frame, response="yield_kg_m2", forms=("identity",), shortlist_size=1, seed=0)
+    assert set(result.terms(0)) == {"light", "co2"}
+    reset = result.checks(0).check("reset")
+    assert reset.level == "a problem"
+    assert "The bend is largest along light" in reset.remedy and "Forms of light in the search: light." in reset.remedy
+    assert "Not offered in this run: log" in reset.remedy
+    # with the log form offered the search takes it and the mean no longer bends: no pointer needed
+    fixed = selectkit.search(frame, response="yield_kg_m2", forms=("identity", "log"), shortlist_size=1, seed=0)
+    assert "log(light)" in fixed.terms(0) and fixed.checks(0).check("reset").level == "fine"
