@@ -874,7 +874,7 @@ class Result:
 
         A check of the response's scale, not a decision: when the 95 % interval
         excludes the λ the search used (1: no transform), consider searching
-        again with ``response_transform`` set to the suggested λ — models on
+        again with ``response_form`` set to the suggested λ — models on
         different response scales are compared only with the log-Jacobian
         added, which selectkit does.
 
@@ -956,7 +956,32 @@ class Result:
         diagnoses = self.diagnoses()  # first: a model that cannot be checked adds a note to the shortlist
         return dict(settings=self.settings, candidates=self.candidates, founds=self.founds,
                     shortlist=self._ranked, diagnoses=diagnoses, stability=self.stability,
-                    honest=self.honest, split=self.split)
+                    honest=self.honest, split=self.split, scales=self._response_scales(diagnoses))
+
+    def _response_scales(self, diagnoses) -> dict:
+        """Box-Cox profiles of the response for the detailed answers whose errors are skewed (normality a
+        problem, skewness beyond ±0.5) and whose untransformed response is positive: the next step offered."""
+        from .errors import SelectkitError
+
+        if self.candidates.response_transform.transform != "identity":
+            return {}
+        y = self.candidates.dataset.y if self.candidates.dataset is not None else self.candidates.y
+        if not np.all(np.asarray(y, dtype=float) > 0):
+            return {}
+        detailed = self.settings.get("detailed_answers", 3)
+        out = {}
+        for i, d in enumerate(diagnoses[: len(diagnoses) if detailed is None else int(detailed)]):
+            if d is None:
+                continue
+            skewed = [c for c in d.checks if c.aspect == "normality" and c.level == "a problem"]
+            resid = np.asarray(d.studentized, dtype=float)
+            skew = float(np.mean(resid ** 3) / max(np.mean(resid ** 2), 1e-300) ** 1.5) if resid.size else 0.0
+            if skewed and abs(skew) > 0.5:
+                try:
+                    out[i] = self.response_boxcox(i)
+                except (SelectkitError, np.linalg.LinAlgError, ValueError):
+                    continue
+        return out
 
     def write(self, folder) -> dict:
         """Write the shortlist (CSV, JSON) and the HTML report into ``folder``; return their paths."""

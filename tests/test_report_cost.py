@@ -98,3 +98,19 @@ def test_a_first_run_says_it_compiles_before_it_starts(tmp_path, monkeypatch, ca
     assert "first run: compiling the search kernels" in capsys.readouterr().err
     monkeypatch.undo()
     assert selectkit.kernels.compiled_on_disk() is True  # this run (and the suite) left them on disk
+
+
+def test_skewed_errors_offer_the_response_scale_with_its_box_cox_interval(tmp_path):
+    # Invented bays whose yield is log-normal around a straight mean in light: on the raw scale the errors
+    # are right-skewed; the report must offer the Box-Cox profile and the log scale (λ̂ near 0).
+    rng = np.random.default_rng(2)
+    n = 300
+    frame = pd.DataFrame({"light": rng.uniform(1, 10, n)})
+    frame["yield_kg_m2"] = np.exp(0.5 + 0.25 * frame["light"] + rng.normal(0, 0.6, n))
+    result = selectkit.search(frame, response="yield_kg_m2", forms=("identity",), shortlist_size=1, seed=0)
+    assert any(c.aspect == "normality" and c.level == "a problem" for c in result.checks(0).checks)
+    page = result.write(tmp_path)["report_html"].read_text(encoding="utf-8")
+    assert "Does the response want another scale?" in page
+    profile = result.response_boxcox(0)
+    assert profile.interval[1] < 1.0 and abs(profile.lambda_hat) < 0.3  # the raw scale is out, log nearly in
+    assert "response_form=&#x27;boxcox:" in page or "response_form=&#x27;log&#x27;" in page

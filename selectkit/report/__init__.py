@@ -23,7 +23,7 @@ OUTPUT_NAMES = {
 
 
 def write_outputs(folder, *, settings, candidates, founds, shortlist, diagnoses, stability=None,
-                  honest=None, split=None) -> dict:
+                  honest=None, split=None, scales=None) -> dict:
     """Write ``shortlist.csv`` (answers), ``models.csv`` (models), ``shortlist.json`` and ``report.html`` into ``folder``.
 
     Parameters
@@ -71,6 +71,6 @@ def write_outputs(folder, *, settings, candidates, founds, shortlist, diagnoses,
         }
         paths["report_html"] = html.write_html(
             stage / OUTPUT_NAMES["report_html"], shortlist=shortlist, settings=settings, candidates=candidates,
-            founds=founds, diagnoses=diagnoses, stability=stability, honest=honest, split=split,
+            founds=founds, diagnoses=diagnoses, stability=stability, honest=honest, split=split, scales=scales,
         )
     return {label: folder / Path(path).name for label, path in paths.items()}

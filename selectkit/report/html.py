@@ -293,7 +293,26 @@ def _checks_table(diagnosis) -> str:
             f"<th>source</th></tr></thead><tbody>{''.join(rows)}</tbody></table></div>")
 
 
-def _model_section(position, fit, diagnosis, row, candidates=None, *, figures=True) -> str:
+def _scale_part(scale) -> str:
+    """The response's Box-Cox profile offered when the errors are skewed (Box & Cox 1964)."""
+    from ..settings import spell
+
+    low, high = scale.interval
+    form = None
+    if scale.suggested is not None and scale.suggested != 1:
+        form = {0.0: "log", 0.5: "sqrt"}.get(float(scale.suggested), f"boxcox:{scale.suggested:g}")
+    elif scale.suggested is None and not low <= 1.0 <= high:  # no simple power inside: λ̂ itself
+        form = f"boxcox:{scale.lambda_hat:.2g}"
+    advice = (f"Search again with the response on that scale ({_e(spell('response_form', form))}); "
+              "models on another scale are compared with the log-Jacobian added, as selectkit does."
+              if form else "No interpretable power is clearly better than the scale used.")
+    return ("<h3>Does the response want another scale?</h3>"
+            f"<p>The errors are skewed. Box-Cox profile of the response given these terms: λ̂ = "
+            f"{_e(_fmt(scale.lambda_hat))}, 95% interval {_e(_fmt(low))} to {_e(_fmt(high))}. "
+            f"{_e(scale.verdict)} {advice}</p><p class=\"note\">{_e(scale.caution)} ({_e(scale.reference)})</p>")
+
+
+def _model_section(position, fit, diagnosis, row, candidates=None, *, figures=True, scale=None) -> str:
     parts = [f'<p class="equation">{_e(fit.equation)}</p>',
              f"<p>n = {fit.n} rows, k = {fit.k} coefficients, residual standard error {_e(_fmt(fit.sigma))}; "
              f"Δ = {_e(_fmt(row['delta_from_best']))}, model weight {_e(_fmt(row['model_weight']))}, "
@@ -361,6 +380,8 @@ def _model_section(position, fit, diagnosis, row, candidates=None, *, figures=Tr
                          + '<p class="note">GVIF: generalised variance inflation of a term\'s coefficients '
                            "together; scaled GVIF, its root of order the number of coefficients, is the VIF itself "
                            "for a one-column term and reads on the same scale (Fox &amp; Monette 1992).</p>")
+    if scale is not None:
+        parts.append(_scale_part(scale))
     if diagnosis is None:
         parts.append('<p class="note">The assumption checks of this model were not run.</p>')
     return _section(f"model-{position}", f"Answer {position}: {' + '.join(fit.terms) or 'intercept only'}",
@@ -410,7 +431,7 @@ def _honest_section(honest) -> str:
 
 
 def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnoses=(), stability=None,
-                honest=None, split=None) -> str:
+                honest=None, split=None, scales=None) -> str:
     """The report as one HTML string (no script, no external resource).
 
     Parameters
@@ -426,6 +447,10 @@ def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnos
         The honest error of the whole procedure (outer cross-validation).
     split : selectkit.inference.SplitInference, optional
         Honest p-values by sample splitting.
+    scales : dict, optional
+        Position → :class:`selectkit.response.ResponseBoxCox` for the answers
+        whose errors are skewed: the response's Box-Cox profile, offered as the
+        next step.
 
     Returns
     -------
@@ -455,7 +480,7 @@ def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnos
     for i, fit in enumerate(shortlist.fits):
         row = shortlist.table.iloc[i]
         body.append(_model_section(i + 1, fit, diagnoses[i] if i < len(diagnoses) else None, row,
-                                   candidates, figures=i < detailed))
+                                   candidates, figures=i < detailed, scale=(scales or {}).get(i)))
     if stability is not None:
         body.append(_section("stability", "Does the choice survive resampling?", _stability_section(stability)))
     if honest is not None:
@@ -491,8 +516,8 @@ def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnos
 
 
 def write_html(path, *, shortlist, settings=None, candidates=None, founds=(), diagnoses=(),
-               stability=None, honest=None, split=None) -> Path:
+               stability=None, honest=None, split=None, scales=None) -> Path:
     """Render the report and write it atomically to ``path``; return the path."""
     text = render_html(shortlist=shortlist, settings=settings, candidates=candidates, founds=founds,
-                       diagnoses=diagnoses, stability=stability, honest=honest, split=split)
+                       diagnoses=diagnoses, stability=stability, honest=honest, split=split, scales=scales)
     return atomic_write_text(Path(path), text)

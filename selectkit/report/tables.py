@@ -254,8 +254,8 @@ def _stability_entry(stability) -> dict | None:
 
 
 def shortlist_document(*, shortlist, candidates=None, settings=None, founds=(), diagnoses=(),
-                       stability=None, honest=None, split=None) -> dict:
-    """The shortlist as a JSON-ready dict following ``schema.json`` (version 1.0).
+                       stability=None, honest=None, split=None, scales=None) -> dict:
+    """The shortlist as a JSON-ready dict following ``schema.json`` (:data:`SCHEMA_VERSION`).
 
     Parameters
     ----------
@@ -268,6 +268,12 @@ def shortlist_document(*, shortlist, candidates=None, settings=None, founds=(), 
     diagnoses : sequence of Diagnosis
         Aligned with the shortlisted models (may be shorter).
     stability : Stability, optional
+    honest : NestedResult, optional
+    split : SplitInference, optional
+        Written as ``split_inference``.
+    scales : dict, optional
+        The response's Box-Cox profiles the report offers; not part of the
+        document (``Result.response_boxcox(i)`` gives them).
 
     Returns
     -------
