@@ -271,7 +271,7 @@ class CandidateSet:
                 continue
             values = [_numeric_for_new_data(frame, c, numeric_cache) for c in term.source]
             column = _term_values(term, values, new_data=True)
-            out[:, term.columns[0]] = column
+            out[:, list(term.columns)] = column.reshape(n, len(term.columns))
         return out
 
     # ------------------------------------------------------------ response
@@ -313,7 +313,7 @@ class CandidateSet:
                 "term": t.name,
                 "family": t.family,
                 "form": t.transform,
-                "parameters": ", ".join(f"{k}={tf.format_number(v)}" for k, v in t.params),
+                "parameters": ", ".join(f"{k}={_parameter_text(v)}" for k, v in t.params),
                 "columns": t.width,
                 "requires": ", ".join(t.requires),
                 "forced": bool(t.forced),
@@ -387,8 +387,15 @@ def _dummies_for_new_data(series, term):
     )
 
 
+def _parameter_text(value) -> str:
+    """A term parameter as the candidate table shows it: a number, or a spline's knots in brackets."""
+    if isinstance(value, (tuple, list)):
+        return "[" + " ".join(tf.format_number(v) for v in value) + "]"
+    return tf.format_number(value)
+
+
 def _term_values(term, values, *, new_data=False):
-    """The column of a single-column term from its source values (the one code path)."""
+    """The column(s) of a term from its source values (the one code path): one, or a spline's block."""
     if term.transform == "product":
         with np.errstate(over="ignore", invalid="ignore"):
             column = values[0] * values[1]
@@ -693,6 +700,19 @@ def _numeric_family(builder, col, x, y, weights, plan, shift_info, forced, near_
             transform, params = "yeojohnson", None
         elif form == "boxtidwell":
             transform, params = "boxtidwell", None
+        elif form in tf.SPLINE_FORMS:
+            transform = "spline"
+            knots = tf.spline_knots(x, tf.SPLINE_FORMS[form])
+            label = f"spline({col}, {tf.SPLINE_FORMS[form]} knots)"
+            if knots is None:
+                builder.refuse(col, form, f"{col} has too few distinct values for {tf.SPLINE_FORMS[form]} distinct "
+                                          "knots at the usual quantiles; no spline built", name=label)
+                continue
+            if x.shape[0] < 10 * tf.SPLINE_FORMS[form]:
+                builder.refuse(col, form, f"{x.shape[0]} rows are too few for a {tf.SPLINE_FORMS[form]}-knot "
+                                          f"spline (common practice asks about 10 rows per knot)", name=label)
+                continue
+            params = (("knots", knots),)
         else:  # pragma: no cover - forms are checked before
             raise OptionError(f"unknown form {form!r}")
 
@@ -702,8 +722,11 @@ def _numeric_family(builder, col, x, y, weights, plan, shift_info, forced, near_
             label = _would_be_name(transform, col, q, shift_params)
             builder.refuse(col, form, _with_fix(problem, col, x, c, transform, q), name=label)
             continue
-        if straight is not None and transform != "identity":
+        # A spline is not gated: the gate's probe (x·log x or x²) sees a bend of one sign, not an S or a
+        # levelling off, and every one of the spline's k − 1 columns is charged by the criteria anyway.
+        if straight is not None and transform not in ("identity", "spline"):
             label = (f"{transform}({col})" if transform in ("boxcox", "yeojohnson")
+                     else tf.term_name("spline", col, params) if transform == "spline"
                      else _would_be_name(transform, col, q, shift_params))
             builder.refuse(col, form, straight, name=label)
             continue
@@ -766,6 +789,12 @@ def _numeric_family(builder, col, x, y, weights, plan, shift_info, forced, near_
 
         name = tf.term_name(transform, col, params)
         values = tf.apply(transform, x, params)
+        if transform == "spline":  # one block of k − 1 columns, entering and leaving the models as one term
+            builder.add(name=name, family=col, kind="numeric", transform=transform, source=(col,),
+                        params=params, values=values, forced=forced,
+                        column_names=[f"{name} [linear]"] + [f"{name} [bend {j}]" for j in
+                                                             range(1, values.shape[1])])
+            continue
         problem = _check_column(values, name)
         if problem is None and name in builder.names:
             problem = f"{name} is already a candidate under the same name"

@@ -54,7 +54,8 @@ ALL = frozenset((PYTHON, CLI, JOB))
 SECTIONS = ("data", "forms", "search", "ranking", "run")
 
 METHOD_NAMES = ("auto", "exhaustive", "forward", "backward", "stepwise", "crossval", "screen")
-FORM_NAMES = ("identity", "log", "sqrt", "reciprocal", "square", "boxcox", "yeojohnson", "boxtidwell")
+FORM_NAMES = ("identity", "log", "sqrt", "reciprocal", "square", "boxcox", "yeojohnson", "boxtidwell", "spline3",
+              "spline4", "spline5")
 AIM_NAMES = ("explain", "predict")
 PARAMETER_COUNTS = ("sigma-counted", "coefficients-only")
 BACKEND_NAMES = ("loky", "threading", "multiprocessing", "sequential", "dask")
@@ -626,7 +627,8 @@ SETTINGS: tuple[Setting, ...] = (
        "rows are in time order: folds are blocks and independence is checked by lag"),
     # [forms]: the candidate forms
     _S("forms", "forms", _optional(_listed_choices(FORM_NAMES, "form", empty="")), None,
-       "forms offered for each numeric predictor (default: identity, log, sqrt, reciprocal, square, boxcox, boxtidwell)",
+       "forms offered for each numeric predictor (default: identity, log, sqrt, reciprocal, square, boxcox, "
+       "boxtidwell; spline3, spline4, spline5 add restricted cubic splines of 3-5 knots)",
        metavar="FORM,FORM"),
     _S("fractional_polynomials", "forms", FLAG, False,
        "also offer the fractional-polynomial powers -2, -1, -0.5, 0.5, 2, 3 (Royston & Altman 1994)"),

@@ -482,6 +482,7 @@ class TermComponent:
     partial : ndarray, shape (n,)
         eᵢ + bⱼ·fⱼ(xᵢ), the raw residual plus the contribution.
     coefficient : float
+        bⱼ; 1 for a spline, whose part is the sum of its columns times their coefficients.
     on_source_scale : bool
     """
 
@@ -520,18 +521,23 @@ def term_components(diagnosis, candidates):
     else:
         fit = _least_squares(X, y)
     resid = y - X @ fit.coef
-    position = {term: 1 + i for i, (term, _, _, _) in enumerate(entries)}  # design column 0: intercept
+    position: dict[str, list] = {}  # design column 0: intercept
+    for i, (term, _, _, _) in enumerate(entries):
+        position.setdefault(term, []).append(1 + i)
     dataset = getattr(candidates, "dataset", None)
     frame = getattr(dataset, "frame", None)
     components, skipped = [], []
     for index in subset:
         term = candidates.terms[index]
-        if term.kind != "numeric" or len(term.columns) != 1:
+        if term.kind != "numeric" or (len(term.columns) != 1 and term.transform != "spline"):
             skipped.append(term.name)
             continue
-        column = position[term.name]
-        b = float(fit.coef[column])
-        f = X[:, column]
+        columns = position[term.name]
+        if len(columns) == 1:
+            b = float(fit.coef[columns[0]])
+            f = X[:, columns[0]]
+        else:  # a spline's block: its part is the sum of its columns times their coefficients
+            b, f = 1.0, X[:, columns] @ fit.coef[columns]
         source = term.source[0] if term.source else term.name
         x, on_source = f, False
         if frame is not None and source in frame.columns and len(frame) == len(y):
@@ -553,8 +559,8 @@ def term_forms(diagnosis, candidates, *, columns=3):
     bⱼ·fⱼ(x) is drawn as a line over the points and a smoother of the points
     (binned means, :func:`_smooth_line`) beside it: where the
     smoother leaves the line, the data follow another form of x than the one
-    fitted.  Categorical blocks and interactions have no single curve and are
-    not drawn.  Without the candidates' dataset (or for a source that is not
+    fitted (a spline's fitted part is drawn the same way).  Categorical
+    blocks and interactions have no single curve and are not drawn.  Without the candidates' dataset (or for a source that is not
     a numeric column of it) x is the term's own column.
 
     References
