@@ -88,3 +88,26 @@ def test_a_spline_model_saves_loads_and_predicts_new_rows(tmp_path):
     model = SubsetRegressor(methods=("exhaustive",), forms=("identity", "spline4")).fit(X, y)
     fitted = sm.OLS(y.to_numpy(), sm.add_constant(model.transform(X))).fit()  # an independent refit
     np.testing.assert_allclose(model.predict(X.head(5)), fitted.fittedvalues[:5], rtol=1e-9)
+
+
+def test_the_band_of_a_fitted_part_is_its_standard_error_from_statsmodels():
+    from selectkit.report import plots
+
+    frame = _s_shaped(n=300, seed=1)
+    result = selectkit.search(frame, response="yield_kg_m2", forms=["identity", "spline4"], seed=0,
+                              shortlist_size=1)
+    components, _ = plots.term_components(result.checks(0), result.candidates)
+    design = result.candidates.transform(frame)
+    subset = [j for j, t in enumerate(result.candidates.terms) if t.name in result.terms(0)]
+    cols = [c for j in subset for c in result.candidates.terms[j].columns]
+    ref = sm.OLS(frame["yield_kg_m2"].to_numpy(), sm.add_constant(design[:, cols])).fit()
+    cov = np.asarray(ref.cov_params())
+    start = 1
+    for j in subset:
+        width = len(result.candidates.terms[j].columns)
+        block = slice(start, start + width)
+        own = design[:, cols][:, block.start - 1:block.stop - 1]
+        expected = np.sqrt(np.einsum("ij,jk,ik->i", own, cov[block, block], own))
+        part = [c for c in components if c.term == result.candidates.terms[j].name][0]
+        np.testing.assert_allclose(part.band, expected, rtol=1e-8)
+        start += width

@@ -484,6 +484,10 @@ class TermComponent:
     coefficient : float
         bⱼ; 1 for a spline, whose part is the sum of its columns times their coefficients.
     on_source_scale : bool
+    band : ndarray, shape (n,), optional
+        Standard error of the fitted part at each row, √(xⱼᵀ Σⱼ xⱼ) with Σⱼ the
+        estimated covariance of the term's coefficients (σ̂²(XᵀX)⁻¹ restricted
+        to them): the pointwise band drawn as ±2 of it.
     """
 
     term: str
@@ -493,6 +497,7 @@ class TermComponent:
     partial: np.ndarray
     coefficient: float
     on_source_scale: bool
+    band: np.ndarray | None = None
 
 
 def term_components(diagnosis, candidates):
@@ -521,6 +526,9 @@ def term_components(diagnosis, candidates):
     else:
         fit = _least_squares(X, y)
     resid = y - X @ fit.coef
+    dof = X.shape[0] - X.shape[1]
+    wresid = resid if candidates.weights is None else resid * root
+    sigma2 = float(wresid @ wresid) / dof if dof > 0 else np.nan
     position: dict[str, list] = {}  # design column 0: intercept
     for i, (term, _, _, _) in enumerate(entries):
         position.setdefault(term, []).append(1 + i)
@@ -544,8 +552,12 @@ def term_components(diagnosis, candidates):
             values = frame[source]
             if pd.api.types.is_numeric_dtype(values):
                 x, on_source = values.to_numpy(dtype=float), True
+        own = X[:, columns]
+        cov = (fit.cov_root @ fit.cov_root.T)[np.ix_(columns, columns)] * sigma2
+        band = np.sqrt(np.maximum(np.einsum("ij,jk,ik->i", own, cov, own), 0.0))
         components.append(TermComponent(term=term.name, source=str(source), x=x, component=b * f,
-                                        partial=resid + b * f, coefficient=b, on_source_scale=on_source))
+                                        partial=resid + b * f, coefficient=b, on_source_scale=on_source,
+                                        band=band))
     return components, skipped
 
 
@@ -591,6 +603,10 @@ def term_forms(diagnosis, candidates, *, columns=3):
         order = np.argsort(part.x, kind="stable")
         line = order[_thin(order.size, MAX_POINTS)]
         ax.plot(part.x[line], part.component[line], color=_INK, linewidth=1.8, label="fitted form")
+        if part.band is not None and np.all(np.isfinite(part.band[line])):
+            ax.fill_between(part.x[line], part.component[line] - 2 * part.band[line],
+                            part.component[line] + 2 * part.band[line], color=_INK, alpha=0.15, linewidth=0,
+                            label="±2 standard errors")
         before = len(ax.get_lines())
         _smooth_line(ax, part.x, part.partial)
         for smooth in ax.get_lines()[before:]:
