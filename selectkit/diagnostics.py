@@ -49,6 +49,7 @@ from .errors import OptionError, SearchError
 __all__ = [
     "Check",
     "Diagnosis",
+    "WeightedOffer",
     "diagnose",
     "LEVELS",
     "FINE",
@@ -216,6 +217,39 @@ def _check(name, aspect, statistic, pvalue, level, verdict, reference, remedy=No
 
 
 @dataclass(frozen=True, eq=False)
+class WeightedOffer:
+    """A weighted fit offered when the spread of the errors follows one term.
+
+    The variance is modelled as σ²ᵢ ∝ xᵢ^γ (multiplicative heteroscedasticity;
+    Harvey 1976, Econometrica 44(3), 461-465 — quoted from memory): γ̂ is the
+    slope of log eᵢ² on log xᵢ, and the model is refitted by weighted least
+    squares with weights xᵢ^−γ̂ (times the row weights, if any).
+
+    Attributes
+    ----------
+    source : str
+        The variable the spread follows (the largest R² of log e² on log x among
+        the model's positive numeric terms).
+    power : float
+        γ̂.
+    r_squared : float
+        R² of log e² on log x.
+    coefficients : DataFrame
+        ``coefficient``, ``estimate``, ``std_error`` of the weighted fit.
+    breusch_pagan : float
+        Its studentised Breusch-Pagan LM, and ``pvalue`` its p-value.
+    pvalue : float
+    """
+
+    source: str
+    power: float
+    r_squared: float
+    coefficients: pd.DataFrame
+    breusch_pagan: float
+    pvalue: float
+
+
+@dataclass(frozen=True, eq=False)
 class Diagnosis:
     """The checks of one model and the data behind its residual plots.
 
@@ -250,6 +284,10 @@ class Diagnosis:
         How rows are named: ``"by <identifier column>"`` when intake set an
         identifier column aside, otherwise ``"data rows of the file, counting
         from 1"`` (or ``"rows of the table, counting from 1"`` for a DataFrame).
+    weighted_offer : WeightedOffer or None
+        When the constant-variance check is not fine and the spread follows
+        one positive numeric term: the weighted fit that term's power of the
+        variance suggests, with its own Breusch-Pagan test, for comparison.
     robust_se : ndarray, shape (k,)
         Heteroscedasticity-consistent standard errors of the coefficients
         (intercept first), HC3 of MacKinnon & White (1985):
@@ -278,6 +316,7 @@ class Diagnosis:
     flagged_rows: pd.DataFrame
     rows_named: str = "rows, counting from 1"
     robust_se: np.ndarray | None = None
+    weighted_offer: "WeightedOffer | None" = None
 
     def check(self, name: str) -> Check:
         """The check called ``name``; raises listing the names when unknown."""
@@ -386,6 +425,54 @@ def _bend_pointer(candidates, subset, design, y, root) -> str:
         text += (f" Not offered in this run: {', '.join(asked)} — offer them with "
                  f"{spell('forms', ['identity', *asked])}.")
     return text
+
+
+def _weighted_offer(candidates, subset, design, y, resid, labels):
+    """The :class:`WeightedOffer` for the positive numeric term the squared residuals follow most, or None."""
+    from .rank import _least_squares
+
+    frame = getattr(getattr(candidates, "dataset", None), "frame", None)
+    n = design.shape[0]
+    base = np.ones(n) if candidates.weights is None else np.asarray(candidates.weights, dtype=float)
+    log_e2 = np.log(np.maximum(resid ** 2, np.finfo(float).tiny))
+    best = None
+    for index in subset:
+        term = candidates.terms[index]
+        if term.kind != "numeric" or not term.source:
+            continue
+        source = term.source[0]
+        if frame is None or source not in frame.columns or len(frame) != n or \
+                not pd.api.types.is_numeric_dtype(frame[source]):
+            continue
+        xs = frame[source].to_numpy(dtype=float)
+        if not (np.all(np.isfinite(xs)) and np.min(xs) > 0 and np.ptp(xs) > 0):
+            continue
+        lx = np.log(xs)
+        slope, intercept = np.polyfit(lx, log_e2, 1)
+        fitted = intercept + slope * lx
+        r2 = 1.0 - float(np.sum((log_e2 - fitted) ** 2)) / float(np.sum((log_e2 - log_e2.mean()) ** 2))
+        if best is None or r2 > best[2]:
+            best = (source, float(slope), r2, xs)
+    if best is None or not best[2] > 0:
+        return None
+    source, power, r2, xs = best
+    w = base * xs ** (-power)
+    root = np.sqrt(w / np.mean(w))
+    fit = _least_squares(design * root[:, None], y * root)
+    if fit.dependent >= 0:
+        return None
+    e = fit.residuals
+    k = design.shape[1]
+    scale = float(e @ e) / (n - k)
+    se = np.sqrt(np.diag(fit.cov_root @ fit.cov_root.T) * scale)
+    table = pd.DataFrame({"coefficient": ["intercept"] + list(labels), "estimate": fit.coef, "std_error": se})
+    e2 = e ** 2
+    aux = e2 - fit.basis @ (fit.basis.T @ e2)
+    tss = float(np.sum((e2 - e2.mean()) ** 2))
+    lm = n * (1.0 - float(aux @ aux) / tss) if tss > 0 else float("nan")
+    p = float(stats.chi2.sf(lm, k - 1)) if np.isfinite(lm) else float("nan")
+    return WeightedOffer(source=source, power=power, r_squared=r2, coefficients=table, breusch_pagan=float(lm),
+                         pvalue=p)
 
 
 def _hc3(basis, cov_root, resid, hat):
@@ -1150,6 +1237,9 @@ def diagnose(candidates, subset, *, time_ordered=False, alpha=0.05) -> Diagnosis
             reset = checks[0]
             checks = (dataclasses.replace(reset, remedy=f"{reset.remedy} {pointer}" if reset.remedy else pointer),
                       ) + checks[1:]
+    offer = None
+    if checks[3].level not in (FINE, None, NOT_ASSESSED):
+        offer = _weighted_offer(candidates, subset, design, y, resid, labels)
     numeric_columns = {label: x[:, j] for j, label in enumerate(labels)
                        if len(np.unique(x[:, j])) > 2}
     return Diagnosis(
@@ -1172,4 +1262,5 @@ def diagnose(candidates, subset, *, time_ordered=False, alpha=0.05) -> Diagnosis
         flagged_rows=flagged,
         rows_named=rows_named,
         robust_se=robust_se,
+        weighted_offer=offer,
     )

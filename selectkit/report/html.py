@@ -293,6 +293,23 @@ def _checks_table(diagnosis) -> str:
             f"<th>source</th></tr></thead><tbody>{''.join(rows)}</tbody></table></div>")
 
 
+def _weighted_part(offer, diagnosis) -> str:
+    """The weighted fit offered when the spread follows one term (Harvey 1976), beside the ordinary one."""
+    from ..settings import spell
+
+    before = diagnosis.check("breusch_pagan")
+    return ("<h3>A weighted fit for the changing spread</h3>"
+            f"<p>The squared residuals follow {_e(offer.source)}: the slope of log e² on log {_e(offer.source)} is "
+            f"γ̂ = {_e(_fmt(offer.power))} (R² = {_e(_fmt(offer.r_squared))}), as if the variance grew as "
+            f"{_e(offer.source)}^γ (Harvey 1976). Refitted with weights {_e(offer.source)}^−{_e(_fmt(offer.power))}: "
+            f"Breusch-Pagan LM = {_e(_fmt(offer.breusch_pagan))}, p = {_e(_fmt(offer.pvalue))} "
+            f"(ordinary fit: LM = {_e(_fmt(before.statistic))}). To search with these weights, add the column "
+            f"{_e(offer.source)}^−{_e(_fmt(offer.power))} to the table and give {_e(spell('row_weights', 'COL'))}."
+            "</p>" + _table(offer.coefficients, headers={"std_error": "standard error"})
+            + '<p class="note">The weights were estimated from these residuals, so this fit is a comparison, not '
+              "a proof; the robust (HC3) standard errors above need no model of the variance.</p>")
+
+
 def _scale_part(scale) -> str:
     """The response's Box-Cox profile offered when the errors are skewed (Box & Cox 1964)."""
     from ..settings import spell
@@ -380,6 +397,9 @@ def _model_section(position, fit, diagnosis, row, candidates=None, *, figures=Tr
                          + '<p class="note">GVIF: generalised variance inflation of a term\'s coefficients '
                            "together; scaled GVIF, its root of order the number of coefficients, is the VIF itself "
                            "for a one-column term and reads on the same scale (Fox &amp; Monette 1992).</p>")
+    offer = getattr(diagnosis, "weighted_offer", None) if diagnosis is not None else None
+    if offer is not None:
+        parts.append(_weighted_part(offer, diagnosis))
     if scale is not None:
         parts.append(_scale_part(scale))
     if diagnosis is None:

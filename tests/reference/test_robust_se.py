@@ -59,3 +59,26 @@ def test_no_robust_column_when_the_spread_is_constant(tmp_path):
     result = selectkit.search(frame, response="yield_kg_m2", forms=("identity",), shortlist_size=1, seed=0)
     assert result.checks(0).check("breusch_pagan").level == "fine"
     assert "robust standard error (HC3)" not in result.write(tmp_path)["report_html"].read_text(encoding="utf-8")
+
+
+def test_a_weighted_fit_is_offered_when_the_spread_follows_one_term(tmp_path):
+    # Invented bays whose error spread grows with light: the offer names light, estimates the power of the
+    # variance (Harvey 1976: slope of log e² on log light), and its weighted fit equals statsmodels WLS.
+    rng = np.random.default_rng(3)
+    n = 400
+    frame = pd.DataFrame({"light": rng.uniform(1, 10, n), "co2": rng.normal(size=n)})
+    frame["yield_kg_m2"] = 1 + frame["light"] + 0.5 * frame["co2"] + rng.normal(0, 1, n) * 0.3 * frame["light"]
+    result = selectkit.search(frame, response="yield_kg_m2", forms=("identity",), shortlist_size=1, seed=0)
+    d = result.checks(0)
+    offer = d.weighted_offer
+    assert d.check("breusch_pagan").level == "a problem" and offer.source == "light" and offer.power > 0.5
+    resid = frame["yield_kg_m2"] - sm.OLS(frame["yield_kg_m2"], sm.add_constant(frame[list(result.terms(0))])).fit().fittedvalues
+    slope = np.polyfit(np.log(frame["light"]), np.log(resid ** 2), 1)[0]
+    assert offer.power == pytest.approx(slope, rel=1e-9)
+    ref = sm.WLS(frame["yield_kg_m2"], sm.add_constant(frame[list(result.terms(0))]),
+                 weights=frame["light"] ** -offer.power).fit()
+    np.testing.assert_allclose(offer.coefficients["estimate"], ref.params, rtol=1e-9)
+    np.testing.assert_allclose(offer.coefficients["std_error"], ref.bse, rtol=1e-9)
+    assert offer.breusch_pagan < d.check("breusch_pagan").statistic  # weighting steadies the spread
+    page = result.write(tmp_path)["report_html"].read_text(encoding="utf-8")
+    assert "A weighted fit for the changing spread" in page
