@@ -27,9 +27,9 @@ import pandas as pd
 
 from . import __version__
 from ._io import atomic_write_bytes
-from .criteria import RENAMED_CONVENTIONS
 from .errors import OptionError, SelectkitError
 from .parallel import check_n_jobs, dask_session, run_units
+from .settings import RENAMED_VALUES
 
 __all__ = [
     "METHODS",
@@ -48,8 +48,8 @@ __all__ = [
 #: Search methods by name.  "auto" runs an exact search when the terms fit
 #: (≤ ``exact_limit``) and the screening pipeline otherwise.
 METHODS = ("auto", "exhaustive", "forward", "backward", "stepwise", "crossval", "screen")
-#: Former names of methods and conventions, refused with the new spelling.
-_RENAMED = {"both": "stepwise", **RENAMED_CONVENTIONS}
+#: Former names of values, refused with the new spelling.
+_RENAMED = RENAMED_VALUES
 AIMS = ("explain", "predict")
 _EXACT_LIMIT = 40
 _SAVE_FORMAT = "selectkit-result"
@@ -295,7 +295,7 @@ def _settings_record(s: Mapping, time_budget) -> dict:
 
     out = {}
     for key, value in s.items():
-        if key not in ("time_budget", "detailed_answers") and not BY_NAME[key].changes_result:
+        if not BY_NAME[key].recorded:
             continue  # where the run ran (workers, backend, scheduler) does not change what it found
         if key == "time_budget":
             value = time_budget
@@ -603,7 +603,7 @@ def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: st
         result.split = split_inference(setup.candidates, _SearchRunner(tuple(setup.runs), deadline),
                                        fraction=s["split_fraction"], seed=s["seed"], criterion=shortlist.criterion,
                                        convention=s["parameter_count"], time_ordered=s["time_ordered"],
-                                       best_on_all_rows=shortlist.subsets[0])
+                                       best_on_all_rows=shortlist.subsets[0], moments=setup.moments)
     if s.get("honest_folds", 0) >= 2:
         result.honest_error(folds=s["honest_folds"], n_jobs=n_jobs, backend=backend, scheduler=scheduler,
                             deadline=deadline)
@@ -973,10 +973,11 @@ class Result:
         for i, d in enumerate(diagnoses[: len(diagnoses) if detailed is None else int(detailed)]):
             if d is None:
                 continue
+            from .diagnostics import _shape
+
             skewed = [c for c in d.checks if c.aspect == "normality" and c.level == "a problem"]
-            resid = np.asarray(d.studentized, dtype=float)
-            skew = float(np.mean(resid ** 3) / max(np.mean(resid ** 2), 1e-300) ** 1.5) if resid.size else 0.0
-            if skewed and abs(skew) > 0.5:
+            shape = _shape(np.asarray(d.residuals, dtype=float))
+            if skewed and shape is not None and abs(shape[0]) > 0.5:  # |g₁| > 0.5: the normality rule's own cut
                 try:
                     out[i] = self.response_boxcox(i)
                 except (SelectkitError, np.linalg.LinAlgError, ValueError):

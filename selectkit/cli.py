@@ -243,7 +243,8 @@ def _search_and_write(setup, *, out, workers=1, backend="loky", scheduler=None, 
                              on_unit=lambda key, result: bar.update(1))
     bar.close()
     extra = [what for what, wanted in (("bootstrap resamples", setup.settings["resamples"]),
-                                       ("outer folds for the honest error", setup.settings["honest_folds"]))
+                                       ("outer folds for the honest error", setup.settings["honest_folds"]),
+                                       ("the searches on a split of the rows", setup.settings["split_fraction"]))
              if wanted]
     if show:
         print("ranking and checking the best models" + (f"; then {' and '.join(extra)}" if extra else ""),

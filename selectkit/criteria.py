@@ -47,6 +47,7 @@ from __future__ import annotations
 import numpy as np
 
 from .errors import OptionError
+from .settings import RENAMED_VALUES
 
 __all__ = [
     "CONVENTIONS",
@@ -68,8 +69,8 @@ __all__ = [
 
 #: How many parameters a model of ``k`` coefficients counts: ``k + 1`` (σ² counted, the default) or ``k``.
 CONVENTIONS = ("sigma-counted", "coefficients-only")
-#: Former names of the conventions, refused with the new spelling.
-RENAMED_CONVENTIONS = {"selectkit": "sigma-counted", "statsmodels": "coefficients-only"}
+#: Former names of the conventions, refused with the new spelling (from selectkit.settings.RENAMED_VALUES).
+RENAMED_CONVENTIONS = {old: new for old, new in RENAMED_VALUES.items() if new in CONVENTIONS}
 
 #: Criteria that can rank models; the value says whether lower is better.
 LOWER_IS_BETTER = {

@@ -517,7 +517,8 @@ def _classify(series: pd.Series, name: str, notes: list[Note], decimal: str | No
     dtype = series.dtype
     if _is_date_like(series):
         raise InputError(f"column '{name}' holds dates or time spans (type {dtype}); convert it to a number "
-                         f"(e.g. days since the first planting) or leave it out ({spell('leave_out', [name])})", column=name)
+                         f"(e.g. days since the first planting) or leave it out ({spell('leave_out', [name])})",
+                         column=name)
     if pd.api.types.is_complex_dtype(dtype):
         raise InputError(f"column '{name}' holds complex numbers; leave it out ({spell('leave_out', [name])})",
                          column=name)
@@ -799,7 +800,8 @@ def _rows_to_keep(missing_masks, n_read: int, missing: str, notes: list[Note]):
     listing = ", ".join(f"'{name}' ({_plural(c, 'row')})" for name, c in counts)
     if missing == "refuse":
         raise InputError(f"missing values in {listing}; {_plural(dropped_rows.size, 'row')} of {n_read} have at "
-                         f"least one — give {spell('incomplete_rows', 'drop')} to drop those rows, or fill the values in first",
+                         f"least one — give {spell('incomplete_rows', 'drop')} to drop those rows, or fill the "
+                         f"values in first",
                          column=counts[0][0], counts=dict(counts), n_rows=int(dropped_rows.size))
     if not keep.any():
         raise InputError(f"every one of the {n_read} rows has a missing value (in {listing}); no rows are left "

@@ -462,17 +462,26 @@ def _weighted_offer(candidates, subset, design, y, resid, labels):
     if fit.dependent >= 0:
         return None
     e = fit.residuals
-    k = design.shape[1]
-    scale = float(e @ e) / (n - k)
+    scale = float(e @ e) / (n - design.shape[1])
     se = np.sqrt(np.diag(fit.cov_root @ fit.cov_root.T) * scale)
     table = pd.DataFrame({"coefficient": ["intercept"] + list(labels), "estimate": fit.coef, "std_error": se})
-    e2 = e ** 2
-    aux = e2 - fit.basis @ (fit.basis.T @ e2)
-    tss = float(np.sum((e2 - e2.mean()) ** 2))
-    lm = n * (1.0 - float(aux @ aux) / tss) if tss > 0 else float("nan")
-    p = float(stats.chi2.sf(lm, k - 1)) if np.isfinite(lm) else float("nan")
-    return WeightedOffer(source=source, power=power, r_squared=r2, coefficients=table, breusch_pagan=float(lm),
-                         pvalue=p)
+    check = _breusch_pagan(design * root[:, None], e, fit.fitted, 0.05, fit.basis)  # the same test, refitted
+    return WeightedOffer(source=source, power=power, r_squared=r2, coefficients=table,
+                         breusch_pagan=float("nan") if check.statistic is None else check.statistic,
+                         pvalue=float("nan") if check.pvalue is None else check.pvalue)
+
+
+def robust_intervals(estimate, robust_se, df_resid, level=0.95) -> dict:
+    """t intervals from the HC3 standard errors: ``{"robust standard error (HC3)", "95% low (HC3)", ...}``.
+
+    The interval is estimate ± t_{(1+level)/2, n−k}·se_HC3, the t reference of
+    statsmodels' robust tables with ``use_t=True``.
+    """
+    estimate, robust_se = np.asarray(estimate, dtype=float), np.asarray(robust_se, dtype=float)
+    q = float(stats.t.ppf(0.5 + level / 2.0, max(int(df_resid), 1)))
+    percent = f"{100 * level:g}%"
+    return {"robust standard error (HC3)": robust_se, f"{percent} low (HC3)": estimate - q * robust_se,
+            f"{percent} high (HC3)": estimate + q * robust_se}
 
 
 def _hc3(basis, cov_root, resid, hat):
@@ -492,26 +501,6 @@ def _hc3(basis, cov_root, resid, hat):
 
 def _p(value: float) -> str:
     return "p < 0.0001" if value < 1e-4 else f"p = {value:.4f}"
-
-
-def _ols(design, y):
-    """QR least squares on the column-scaled design: coefficients, fitted, residuals, hat diagonal, rank.
-
-    The first column (the intercept, √w under weights) is projected out of the
-    others, which are scaled to unit length before the QR and the rank test
-    (see :func:`selectkit.rank._least_squares`, the one home of this fit):
-    the raw design's scale — an offset of 10⁹, a column in 10⁻³ beside one in
-    10⁹ — never decides the rank.
-    """
-    from .rank import _least_squares
-
-    fit = _least_squares(design, y)
-    return fit.coef, fit.fitted, fit.residuals, fit.hat, fit.rank
-
-
-def _rss(design, y):
-    _, _, resid, _, _ = _ols(design, y)
-    return float(resid @ resid)
 
 
 def _model_arrays(candidates, subset):
@@ -557,7 +546,7 @@ def _rss_with(basis, extra, resid, rss):
     return max(float(rss - gained @ gained), 0.0)
 
 
-def _reset(design, y, fitted, rss, alpha, basis=None, root=None):
+def _reset(design, y, fitted, rss, alpha, basis, root=None):
     """Ramsey's RESET: F test of adding ŷ² and ŷ³ (powers of the standardised fitted values).
 
     With row weights (``root`` = √w; ``design``, ``y`` and ``fitted`` then on
@@ -582,10 +571,7 @@ def _reset(design, y, fitted, rss, alpha, basis=None, root=None):
     own = fitted if root is None else fitted / root
     z = (own - own.mean()) / own.std()
     added = np.column_stack([z ** 2, z ** 3]) * (1.0 if root is None else root[:, None])
-    if basis is not None:
-        rss_aug = _rss_with(basis, added, y - fitted, rss)
-    else:
-        rss_aug = _rss(np.column_stack([design, added]), y)
+    rss_aug = _rss_with(basis, added, y - fitted, rss)
     dfd = n - k - 2
     f = ((rss - rss_aug) / 2.0) / (rss_aug / dfd)
     p = float(stats.f.sf(f, 2, dfd))
@@ -714,7 +700,7 @@ def _normality_check(name, label, statistic, p, alpha, n, shape, outliers=((), "
                   remedy, names, rest)
 
 
-def _breusch_pagan(design, resid, fitted, alpha, basis=None):
+def _breusch_pagan(design, resid, fitted, alpha, basis):
     """Koenker's studentised Breusch-Pagan: LM = n·R² of e² on the design; χ²(k − 1).
 
     The size of a change in spread is Cohen's f² = R²/(1 − R²) of that
@@ -727,11 +713,8 @@ def _breusch_pagan(design, resid, fitted, alpha, basis=None):
                      "Not assessed: an intercept-only model has no term the variance could follow.",
                      _REFERENCES["breusch_pagan"])
     e2 = resid ** 2
-    if basis is not None:  # e² on the design: the residual of its projection on the design's basis
-        aux = e2 - basis @ (basis.T @ e2)
-        rss_aux = float(aux @ aux)
-    else:
-        rss_aux = _rss(design, e2)
+    aux = e2 - basis @ (basis.T @ e2)  # e² on the design: the residual of its projection on the design's basis
+    rss_aux = float(aux @ aux)
     tss_aux = float(np.sum((e2 - e2.mean()) ** 2))
     if tss_aux <= 0:
         return Check("breusch_pagan", "constant variance", None, None, None,

@@ -83,7 +83,7 @@ def split_rows(n: int, fraction: float, seed: int, *, time_ordered: bool = False
 
 
 def split_inference(candidates, runner, *, fraction=0.5, seed=0, criterion="bic", convention="sigma-counted",
-                    time_ordered=False, best_on_all_rows=None) -> SplitInference:
+                    time_ordered=False, best_on_all_rows=None, moments=None) -> SplitInference:
     """Choose a model on ``fraction`` of the rows with ``runner``; estimate it on the rest.
 
     Parameters
@@ -101,6 +101,8 @@ def split_inference(candidates, runner, *, fraction=0.5, seed=0, criterion="bic"
         Select on the first rows, estimate on the later ones (no shuffle).
     best_on_all_rows : tuple of int, optional
         The best model of the searches on all rows, to say whether the split chose it.
+    moments : Moments, optional
+        Those of all rows (the run's own), for the comparison fit; made when not given.
 
     Returns
     -------
@@ -115,6 +117,7 @@ def split_inference(candidates, runner, *, fraction=0.5, seed=0, criterion="bic"
     from .moments import moments_of
     from .rank import _best_of, _call_runner, _resample, _term_names, fit_model
 
+    full_moments = moments
     n = int(candidates.matrix.shape[0])
     if not 0.0 < float(fraction) < 1.0:
         raise OptionError(f"the split fraction must lie strictly between 0 and 1 (got {fraction!r}); 0.5 is usual")
@@ -131,7 +134,8 @@ def split_inference(candidates, runner, *, fraction=0.5, seed=0, criterion="bic"
     subset = tuple(found.subsets[best])
     estimator = _resample(candidates, estimate_rows)
     held_out = fit_model(estimator, subset, moments=moments_of(estimator))
-    everything = fit_model(candidates, subset, moments=moments_of(candidates))
+    everything = fit_model(candidates, subset, moments=full_moments if full_moments is not None
+                           else moments_of(candidates))
     table = held_out.coefficients.rename(columns={"p_value_optimistic": "p_value"})
     table["std_error_all_rows"] = everything.coefficients["std_error"].to_numpy()
     table["p_value_all_rows_optimistic"] = everything.coefficients["p_value_optimistic"].to_numpy()

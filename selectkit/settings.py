@@ -575,6 +575,10 @@ class Setting:
     changes_result : bool
         Whether a different value may change the shortlist (a job store refuses
         to resume when one of them changed).
+    recorded : bool
+        Whether the value is recorded with a result (report, JSON, saved
+        file).  Off for where a run ran (workers, backend, scheduler), so that
+        the same search on 1 or N workers writes the same files.
     metavar : str
         The placeholder in ``--help``.
     short : str or None
@@ -589,6 +593,7 @@ class Setting:
     surfaces: frozenset = ALL
     changes_result: bool = True
     metavar: str = "VALUE"
+    recorded: bool = True
     short: str | None = None
 
     @property
@@ -683,14 +688,15 @@ SETTINGS: tuple[Setting, ...] = (
     _S("seed", "run", _whole(0, meaning="0 or more (seeds of numpy's SeedSequence are non-negative)"), 0,
        "seed of every random draw (folds, bootstrap)", metavar="N"),
     _S("workers", "run", _whole(1, also=-1, meaning="a positive number of worker processes, or -1 for every core"),
-       1, "worker processes (-1: every core); the result does not depend on it", changes_result=False,
+       1, "worker processes (-1: every core); the result does not depend on it", changes_result=False, recorded=False,
        metavar="N"),
     _S("backend", "run", _choice(BACKEND_NAMES), "loky",
-       "joblib backend: " + ", ".join(BACKEND_NAMES), changes_result=False, metavar="NAME"),
+       "joblib backend: " + ", ".join(BACKEND_NAMES), changes_result=False, recorded=False, metavar="NAME"),
     _S("scheduler", "run", ADDRESS, None, "Dask scheduler address, with backend dask", changes_result=False,
+       recorded=False,
        metavar="ADDRESS"),
     _S("scheduler_timeout", "run", _POSITIVE, 10.0,
-       "seconds to wait for the Dask scheduler to answer before any work", changes_result=False,
+       "seconds to wait for the Dask scheduler to answer before any work", changes_result=False, recorded=False,
        metavar="SECONDS"),
     _S("time_budget", "run", DURATION, None,
        "wall-clock budget of the whole run: seconds, or text such as 8h, 90m (default: no limit)",

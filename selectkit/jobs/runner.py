@@ -257,8 +257,7 @@ def _with_run_settings(spec: JobSpec, run_settings: dict) -> JobSpec:
         if value is None and key in ("scheduler", "time_budget"):
             changes[key] = None
             continue
-        changes[key] = settings.check_value(key, value, where=settings.CLI if settings.surface() == settings.CLI
-                                            else settings.PYTHON)
+        changes[key] = settings.check_value(key, value)  # named as the caller's surface writes it
     spec = spec.with_settings(**changes)
     if spec.scheduler is not None and spec.backend != "dask":
         raise OptionError(f"a scheduler address needs {settings.spell('backend', 'dask')} "

@@ -46,6 +46,16 @@ _FOUND_FORMAT = ("selectkit-found", 1)
 _FINISH_FORMAT = ("selectkit-finish", 1)
 _TABLES = ("about", "units", "pooled", "shortlist", "log")
 
+#: Finishing stages kept for a resume (ranking, stability, honest error); also made on opening a store
+#: that predates them.
+_FINISHING_TABLE = """CREATE TABLE IF NOT EXISTS finishing (
+    stage TEXT PRIMARY KEY,
+    basis TEXT NOT NULL,
+    result BLOB NOT NULL,
+    checksum TEXT NOT NULL,
+    seconds REAL
+)"""
+
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS about (name TEXT PRIMARY KEY, value TEXT NOT NULL);
 CREATE TABLE IF NOT EXISTS units (
@@ -68,23 +78,15 @@ CREATE TABLE IF NOT EXISTS pooled (
     found BLOB NOT NULL
 );
 CREATE TABLE IF NOT EXISTS shortlist (position INTEGER PRIMARY KEY, row TEXT NOT NULL);
-CREATE TABLE IF NOT EXISTS finishing (
-    stage TEXT PRIMARY KEY,
-    basis TEXT NOT NULL,
-    result BLOB NOT NULL,
-    checksum TEXT NOT NULL,
-    seconds REAL
-);
 CREATE TABLE IF NOT EXISTS log (
     id INTEGER PRIMARY KEY AUTOINCREMENT,
     at REAL NOT NULL,
     level TEXT NOT NULL,
     message TEXT NOT NULL
 );
-"""
+""" + _FINISHING_TABLE + ";\n"
 
 
-_FINISHING_TABLE = _SCHEMA[_SCHEMA.index("CREATE TABLE IF NOT EXISTS finishing"):].split(";")[0]
 
 
 # --------------------------------------------------------------------------- helpers

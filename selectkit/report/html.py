@@ -347,14 +347,9 @@ def _model_section(position, fit, diagnosis, row, candidates=None, *, figures=Tr
     if robust is not None and spread is not None and spread.level not in ("fine", None, "not assessed") \
             and len(robust) == len(coefficients):
         # the spread of the errors changes: intervals from the HC3 standard errors (MacKinnon & White 1985)
-        from scipy import stats as _stats
+        from ..diagnostics import robust_intervals
 
-        q = float(_stats.t.ppf(0.975, max(fit.n - fit.k, 1)))
-        coefficients = coefficients.assign(**{
-            "robust standard error (HC3)": robust,
-            "95% low (HC3)": coefficients["estimate"].to_numpy() - q * robust,
-            "95% high (HC3)": coefficients["estimate"].to_numpy() + q * robust,
-        })
+        coefficients = coefficients.assign(**robust_intervals(coefficients["estimate"], robust, fit.n - fit.k))
     parts.append("<h3>Coefficients</h3>" + _table(coefficients))
     parts.append('<p class="note">The intervals and p-values treat this model as chosen in advance; '
                  "because the data chose it, they are optimistic.</p>")

@@ -12,6 +12,7 @@ import dataclasses
 import difflib
 
 from ..errors import OptionError
+from ..settings import RENAMED_VALUES
 
 __all__ = ["MODULES", "RENAMED_METHODS", "make_options", "stepwise_criterion"]
 
@@ -23,8 +24,8 @@ MODULES = {
     "crossval": "selectkit.searches.crossval",
     "screen": "selectkit.searches.screen",
 }
-#: Former method names, refused with the new spelling.
-RENAMED_METHODS = {"both": "stepwise"}
+#: Former method names, refused with the new spelling (from the one list, selectkit.settings.RENAMED_VALUES).
+RENAMED_METHODS = {old: new for old, new in RENAMED_VALUES.items() if new in MODULES}
 
 
 def stepwise_criterion(criterion, aim):
