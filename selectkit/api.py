@@ -29,7 +29,7 @@ from . import __version__
 from ._io import atomic_write_bytes
 from .errors import OptionError, SelectkitError
 from .parallel import check_n_jobs, dask_session, run_units
-from .settings import RENAMED_VALUES
+from .settings import AIM_NAMES, METHOD_NAMES, RENAMED_VALUES
 
 __all__ = [
     "METHODS",
@@ -47,11 +47,10 @@ __all__ = [
 
 #: Search methods by name.  "auto" runs an exact search when the terms fit
 #: (≤ ``exact_limit``) and the screening pipeline otherwise.
-METHODS = ("auto", "exhaustive", "forward", "backward", "stepwise", "crossval", "screen")
+METHODS = METHOD_NAMES
 #: Former names of values, refused with the new spelling.
 _RENAMED = RENAMED_VALUES
-AIMS = ("explain", "predict")
-_EXACT_LIMIT = 40
+AIMS = AIM_NAMES
 _SAVE_FORMAT = "selectkit-result"
 # 2: shortlists hold answers (sets of variables) first; 3: a data-only file (selectkit._datafile), no pickle
 _SAVE_VERSION = 3
@@ -311,12 +310,6 @@ def _settings_record(s: Mapping, time_budget) -> dict:
             value = {k: dict(v) if isinstance(v, dict) else v for k, v in value.items()}
         out[key] = value
     return out
-
-
-def _is_fold_scheme(folds) -> bool:
-    from .searches.crossval import FoldScheme
-
-    return isinstance(folds, FoldScheme)
 
 
 def _check_folds_fit(folds, honest_folds, n_rows: int, seed) -> None:

@@ -47,7 +47,7 @@ from __future__ import annotations
 import numpy as np
 
 from .errors import OptionError
-from .settings import RENAMED_VALUES
+from .settings import PARAMETER_COUNTS, RENAMED_VALUES
 
 __all__ = [
     "CONVENTIONS",
@@ -68,7 +68,7 @@ __all__ = [
 ]
 
 #: How many parameters a model of ``k`` coefficients counts: ``k + 1`` (σ² counted, the default) or ``k``.
-CONVENTIONS = ("sigma-counted", "coefficients-only")
+CONVENTIONS = PARAMETER_COUNTS  # the one list, in selectkit.settings
 #: Former names of the conventions, refused with the new spelling (from selectkit.settings.RENAMED_VALUES).
 RENAMED_CONVENTIONS = {old: new for old, new in RENAMED_VALUES.items() if new in CONVENTIONS}
 

@@ -41,11 +41,12 @@ from typing import Any, Callable, Sequence
 import numpy as np
 
 from .errors import OptionError
+from .settings import BACKEND_NAMES
 
 __all__ = ["BACKENDS", "WORKER_START_SECONDS", "WorkUnit", "run_units", "dask_session", "spawn_seeds",
            "check_n_jobs", "projected_seconds", "worth_workers"]
 
-BACKENDS = ("loky", "threading", "multiprocessing", "sequential", "dask")
+BACKENDS = BACKEND_NAMES  # the one list, in selectkit.settings
 #: Backends that start worker processes, and so pay a start-up cost.
 PROCESS_BACKENDS = ("loky", "multiprocessing")
 #: Seconds to start a cold pool of process workers ready to run a unit (spawn, import of the

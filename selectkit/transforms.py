@@ -50,6 +50,7 @@ import numpy as np
 from scipy import optimize, stats
 
 from .errors import OptionError
+from .settings import FORM_NAMES
 
 __all__ = [
     "FORMS",
@@ -83,11 +84,11 @@ __all__ = [
 ]
 
 #: Forms the candidate generator can be asked for by name.
+FORMS = FORM_NAMES  # the one list, in selectkit.settings
 #: Restricted cubic spline forms by number of knots (off by default: each adds a block of k − 1 columns).
-SPLINE_FORMS = {"spline3": 3, "spline4": 4, "spline5": 5}
-FORMS = ("identity", "log", "sqrt", "reciprocal", "square", "boxcox", "yeojohnson", "boxtidwell") + tuple(SPLINE_FORMS)
+SPLINE_FORMS = {name: int(name[len("spline"):]) for name in FORMS if name.startswith("spline")}
 #: Every transform a term can carry (``power`` comes from fractional polynomials).
-TRANSFORMS = FORMS[:8] + ("spline", "power", "product")
+TRANSFORMS = tuple(f for f in FORMS if f not in SPLINE_FORMS) + ("spline", "power", "product")
 #: Knots of a restricted cubic spline at these quantiles of x, by number of knots — the placements
 #: recommended in common practice (Harrell, *Regression Modeling Strategies*, 2nd ed. 2015, sec. 2.4.6;
 #: quoted from memory).
