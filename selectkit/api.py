@@ -185,10 +185,51 @@ def prepare_candidates(data, **settings):
     return _intake_and_candidates(data, _settings.resolve(settings, allowed=names), check_folds=False)
 
 
+def _build_options(s) -> dict:
+    options: dict[str, Any] = dict(
+        fractional_polynomials=s["fractional_polynomials"],
+        shifts=dict(s["shifts"]),
+        interactions=s["interactions"] if isinstance(s["interactions"], bool) else list(s["interactions"]),
+        response_transform=_response_transform(s["response_form"]),
+        prefer=tuple(s["prefer"]),
+        twin_limit=s["twin_limit"],
+        vif_limit=s["vif_limit"],
+        curvature_test=s["curvature_test"],
+    )
+    if s["forms"] is not None:
+        options["forms"] = tuple(s["forms"])
+    return options
+
+
+def _in_parts(data, s):
+    """Intake, candidates and moments of a table read in parts, or None when it is read whole."""
+    from . import parts as _parts
+
+    if not _parts.wants_parts(data, s["read_in_parts"]):
+        return None
+    if s["decimal_mark"] is not None:
+        raise OptionError(f"{_settings_spell('decimal_mark')} applies to one CSV file read whole; the parts of a "
+                          f"table are read with the mark each file shows — leave it out")
+    from . import settings as _settings
+
+    full = {x.name: x.default for x in _settings.SETTINGS if not x.required}
+    full.update(s)
+    return _parts.prepare_in_parts(data, full, build_options=_build_options(s), check_folds=True)
+
+
+def _settings_spell(name, value=None):
+    from . import settings as _settings
+
+    return _settings.spell(name) if value is None else _settings.spell(name, value)
+
+
 def _intake_and_candidates(data, s, *, check_folds):
     from . import candidates as _candidates
     from . import data as _data
 
+    parted = _in_parts(data, s)
+    if parted is not None:
+        return parted[0], parted[1]
     dataset = _data.prepare(
         data,
         response=s["response"],
@@ -202,19 +243,7 @@ def _intake_and_candidates(data, s, *, check_folds):
     )
     if check_folds:
         _check_folds_fit(s["folds"], s["honest_folds"], dataset.n, s["seed"])
-    build_options: dict[str, Any] = dict(
-        fractional_polynomials=s["fractional_polynomials"],
-        shifts=dict(s["shifts"]),
-        interactions=s["interactions"] if isinstance(s["interactions"], bool) else list(s["interactions"]),
-        response_transform=_response_transform(s["response_form"]),
-        prefer=tuple(s["prefer"]),
-        twin_limit=s["twin_limit"],
-        vif_limit=s["vif_limit"],
-        curvature_test=s["curvature_test"],
-    )
-    if s["forms"] is not None:
-        build_options["forms"] = tuple(s["forms"])
-    cands = _candidates.build_candidates(dataset, **build_options)
+    cands = _candidates.build_candidates(dataset, **_build_options(s))
     return dataset, cands
 
 
@@ -247,8 +276,12 @@ def prepare_search(data, **settings) -> SearchSetup:
                               f"the methods ({', '.join(methods)}); add it to {_settings.spell('methods')} or drop "
                               f"its settings")
 
-    dataset, cands = _intake_and_candidates(data, s, check_folds=True)
-    moments = moments_of(cands)
+    parted = _in_parts(data, s)
+    if parted is not None:
+        dataset, cands, moments = parted
+    else:
+        dataset, cands = _intake_and_candidates(data, s, check_folds=True)
+        moments = moments_of(cands)
 
     n_terms = len(cands.terms)
     resolved = []
@@ -263,9 +296,16 @@ def prepare_search(data, **settings) -> SearchSetup:
         for name in resolved
     )
     settings = {"selectkit_version": __version__,
-                "data": data if isinstance(data, (str, os.PathLike)) else "<DataFrame>"}
+                "data": data if isinstance(data, (str, os.PathLike)) else
+                ("<DataFrame>" if cands.parts is None or cands.parts.table.frame is not None else
+                 "<Dask DataFrame>")}
     settings.update(_settings_record(s, time_budget))
-    settings.update({"methods_run": [r.name for r in runs], "n_rows": dataset.n, "n_terms": n_terms})
+    settings.update({"methods_run": [r.name for r in runs], "n_rows": int(moments.n), "n_terms": n_terms})
+    if cands.parts is not None:
+        info = cands.parts
+        settings["read_in_parts_record"] = {"description": info.description, "files": list(info.files),
+                                            "parts": info.n_parts, "rows_read": info.n_rows,
+                                            "rows_used": info.n_used, "sample_rows": info.sample_rows}
     if isinstance(settings["data"], os.PathLike):
         settings["data"] = os.fspath(settings["data"])
     return SearchSetup(dataset=dataset, candidates=cands, moments=moments, runs=runs, settings=settings,
@@ -573,8 +613,14 @@ def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: st
     shortlist = _rank(scores)
     if scores is not None and not press_ranks:
         shown = set(shortlist.subsets) | set(shortlist.model_subsets)
-        scores["press"] = [press(setup.candidates, sub) if sub in shown and np.isfinite(rss) else np.nan
-                           for sub, rss in zip(scores["subset"], scores["rss"])]
+        if setup.candidates.parts is not None:  # one pass over the parts for every shown model
+            wanted = {sub: [c for i in sub for c in setup.candidates.terms[i].columns]
+                      for sub, rss in zip(scores["subset"], scores["rss"]) if sub in shown and np.isfinite(rss)}
+            found = setup.candidates.parts.press(setup.moments, wanted)
+            scores["press"] = [found.get(sub, np.nan) for sub in scores["subset"]]
+        else:
+            scores["press"] = [press(setup.candidates, sub) if sub in shown and np.isfinite(rss) else np.nan
+                               for sub, rss in zip(scores["subset"], scores["rss"])]
         shortlist = _rank(scores)  # same order (PRESS does not rank): now with PRESS shown
     deadline = setup.deadline if deadline is None else deadline
     stability = None

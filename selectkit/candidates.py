@@ -167,6 +167,9 @@ class CandidateSet:
         The intake result the candidates were built from.
     y_original : ndarray or None
         The response on its original scale (to apply another response transform).
+    parts : selectkit.parts.PartsInfo or None
+        For a table read in parts: the rows here are the checks' sample, and
+        this holds the fold moments and how to reread the parts.
     """
 
     matrix: np.ndarray
@@ -180,6 +183,7 @@ class CandidateSet:
     notes: tuple[str, ...] = ()
     dataset: object = None
     y_original: np.ndarray | None = None
+    parts: object = None
 
     # ------------------------------------------------------------ structure
 

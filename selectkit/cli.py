@@ -137,8 +137,9 @@ def _given(args, names) -> dict:
 
 #: Settings of each command (in --help order).
 _TABLE_SETTINGS = ("response", "predictors", "always_include", "leave_out", "row_weights", "incomplete_rows",
-                   "keep_id_columns", "decimal_mark", "time_ordered", "forms", "fractional_polynomials", "shifts",
-                   "interactions", "response_form", "prefer", "twin_limit", "vif_limit", "curvature_test")
+                   "keep_id_columns", "decimal_mark", "read_in_parts", "check_sample_rows", "time_ordered", "forms",
+                   "fractional_polynomials", "shifts", "interactions", "response_form", "prefer", "twin_limit",
+                   "vif_limit", "curvature_test")
 _SEARCH_SETTINGS = _TABLE_SETTINGS + ("methods", "method_options", "exact_limit", "criterion", "aim",
                                       "parameter_count", "shortlist_size", "keep_within", "folds", "resamples",
                                       "honest_folds", "split_fraction", "seed", "workers", "backend", "scheduler",

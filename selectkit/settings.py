@@ -628,6 +628,11 @@ SETTINGS: tuple[Setting, ...] = (
     _S("keep_id_columns", "data", NAMES, (), "identifier-like columns to keep as predictors", metavar="COL,COL"),
     _S("decimal_mark", "data", _optional(_choice((".", ","), aliases={"point": ".", "comma": ","})), None,
        "decimal mark of a CSV file: '.' or ',' (default: decided from its numbers)", metavar=".|,"),
+    _S("read_in_parts", "data", _choice(("auto", "yes", "no")), "auto",
+       "read the table part by part, never whole: auto does so for folders, globs, Dask DataFrames and tables "
+       "of a million rows or more", metavar="auto|yes|no"),
+    _S("check_sample_rows", "data", _whole(1000, meaning="at least 1000 rows"), 50_000,
+       "rows of the seeded sample that a table read in parts is checked and drawn on", metavar="N"),
     _S("time_ordered", "data", FLAG, False,
        "rows are in time order: folds are blocks and independence is checked by lag"),
     # [forms]: the candidate forms

@@ -31,6 +31,8 @@ EXAMPLES = {
     "incomplete_rows": "drop",
     "keep_id_columns": ("bay",),
     "decimal_mark": ",",
+    "read_in_parts": "yes",
+    "check_sample_rows": 20000,
     "time_ordered": True,
     "forms": ("identity", "log"),
     "fractional_polynomials": True,

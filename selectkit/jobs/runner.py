@@ -284,7 +284,9 @@ def _run(spec: JobSpec, *, resume: bool, progress, engine) -> JobOutcome:
     folder = Path(spec.output)
     store_path = folder / STORE_NAME
     # Every setting that can be judged before any work is judged here, before the lock and the store.
-    if not spec.table.is_file():
+    from ..parts import table_exists
+
+    if not table_exists(spec.table):
         raise JobFileError(f"the data file {str(spec.table)!r} of job {spec.name!r} does not exist; "
                            f"put it back or fix [data] table in the job file")
     _check_output(folder)

@@ -344,7 +344,9 @@ def parse_job(text: str, *, base=".", name: str = "job", source=None, check_tabl
             )
 
     table_path = (base / table_entry).resolve()
-    if check_table and not table_path.is_file():
+    from ..parts import table_exists
+
+    if check_table and not table_exists(table_path):
         raise JobFileError(
             f"[data] table: the data file {str(table_path)!r} does not exist (paths are relative to the job "
             f"file's folder {str(base)!r}); fix the path"

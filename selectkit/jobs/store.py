@@ -144,13 +144,26 @@ def move_aside(store_path) -> Path:
 
 
 def data_fingerprint(path) -> dict:
-    """SHA-256 of a file's bytes and its size: ``{"sha256": ..., "size": ...}``."""
+    """SHA-256 of a file's bytes and its size: ``{"sha256": ..., "size": ...}``.
+
+    For a table in several files (a folder or a glob), the digest runs over
+    each file's name relative to the table and its bytes, in name order, and
+    the size is their total: adding, removing, renaming or changing a file
+    changes it.
+    """
+    from ..parts import _files_of, is_parted_source
+
     digest = hashlib.sha256()
     size = 0
-    with open(path, "rb") as handle:
-        for block in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(block)
-            size += len(block)
+    files = _files_of(os.fspath(path)) if is_parted_source(path) else [os.fspath(path)]
+    root = os.fspath(path) if os.path.isdir(os.fspath(path)) else os.path.dirname(files[0])
+    for name in files:
+        if len(files) > 1 or name != os.fspath(path):
+            digest.update(os.path.relpath(name, root).encode("utf-8") + b"\0")
+        with open(name, "rb") as handle:
+            for block in iter(lambda: handle.read(1 << 20), b""):
+                digest.update(block)
+                size += len(block)
     return {"sha256": digest.hexdigest(), "size": size}
 
 

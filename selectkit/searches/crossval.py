@@ -231,6 +231,20 @@ def _fold_moments(candidates, moments, folds):
     return pairs
 
 
+def folds_and_moments(candidates, moments, folds, seed):
+    """The folds of a scheme and their (train, test) moments.
+
+    For a table read in parts (``candidates.parts``) the test moments were
+    formed in the moments pass (the fold of a row from a seeded hash of its
+    position); otherwise from the rows held here.
+    """
+    parts = getattr(candidates, "parts", None)
+    if parts is not None:
+        return parts.fold_pairs(moments, folds, seed)
+    fold_list = make_folds(folds, int(candidates.y.shape[0]), seed)
+    return fold_list, _fold_moments(candidates, moments, fold_list)
+
+
 def _se_by_repeat(errors: np.ndarray, repeats: np.ndarray) -> float:
     per = []
     for r in np.unique(repeats):
@@ -324,10 +338,16 @@ def score_subsets(candidates, subsets, *, folds=5, seed=0, moments=None, holdout
         bad = [i for i in s if not 0 <= i < n_terms]
         if bad:
             raise InputError(f"subset {s} names term index {bad[0]}; the candidates hold {n_terms} terms (0..{n_terms - 1})")
-    fold_list = make_folds(folds, n, seed)
-    pairs = _fold_moments(candidates, moments, fold_list)
+    fold_list, pairs = folds_and_moments(candidates, moments, folds, seed)
     repeats = np.array([f.repeat for f in fold_list])
     hold_pair = None
+    parts = getattr(candidates, "parts", None)
+    parted_press = {}
+    if parts is not None:  # PRESS of a table in parts: one pass over its parts for every model asked
+        wanted = [s for s in subsets if press_for is None or s in press_for]
+        parted_press = parts.press(moments, {s: _columns(candidates, s) for s in wanted}) if wanted else {}
+    if holdout is not None and parts is not None:
+        raise OptionError("a held-out part needs the rows in memory; a table read in parts has its CV errors")
     if holdout is not None:
         rows = _holdout_rows(holdout, n, seed)
         test = _rows_moments(candidates, rows)
@@ -357,8 +377,8 @@ def score_subsets(candidates, subsets, *, folds=5, seed=0, moments=None, holdout
                 pass
         records.append({
             "subset": s, "k": 1 + len(cols), "rss": rss,
-            "press": press(candidates, s) if np.isfinite(rss) and (press_for is None or s in press_for)
-            else float("nan"),
+            "press": float("nan") if not (np.isfinite(rss) and (press_for is None or s in press_for))
+            else parted_press.get(s, float("nan")) if parts is not None else press(candidates, s),
             "cv_mse": float("nan") if bad else float(errors.mean()),
             "cv_se": float("nan") if bad else _se_by_repeat(errors, repeats),
             "n_folds": len(fold_list), "holdout_mse": hold,
@@ -494,10 +514,10 @@ def plan(candidates, moments, options: CrossvalOptions) -> list[WorkUnit]:
     _check_size(candidates, options)
     if moments is None:
         moments = moments_of(candidates)
-    fold_list = make_folds(options.folds, int(candidates.y.shape[0]), options.seed)
+    fold_list, pairs = folds_and_moments(candidates, moments, options.folds, options.seed)
     light = _terms_only(candidates)
     units = [WorkUnit("crossval/all-rows", ("all", light, moments, None, options))]
-    for fold, (train, test) in zip(fold_list, _fold_moments(candidates, moments, fold_list)):
+    for fold, (train, test) in zip(fold_list, pairs):
         units.append(WorkUnit(f"crossval/fold-r{fold.repeat:02d}-{fold.index:03d}",
                               ("fold", light, train, test, options, fold.repeat)))
     return units

@@ -1,0 +1,277 @@
+"""Tables read in parts: folders, globs, Dask DataFrames and large frames (selectkit.parts).
+
+The reference for every number here is the same search on the table held in
+memory (whose pieces are checked against statsmodels elsewhere), or an
+independent computation written out in the test: a brute-force
+leave-one-out loop for PRESS, numpy least squares on each fold's rows for
+the CV error.
+"""
+
+from __future__ import annotations
+
+import os
+
+import numpy as np
+import pandas as pd
+import pytest
+
+import selectkit
+import selectkit.api
+from selectkit import parts
+from selectkit.errors import DataFileError, InputError, OptionError
+
+RESPONSE = "yield_kg"
+
+
+def _table(n, seed=1):
+    rng = np.random.default_rng(seed)
+    frame = pd.DataFrame({"light": rng.uniform(5, 30, n), "co2": rng.uniform(400, 1000, n),
+                          "heat": rng.gamma(3, 2, n), "drift": rng.normal(size=n),
+                          "house": rng.choice(["north", "south", "east"], n, p=[0.5, 0.3, 0.2])})
+    frame[RESPONSE] = (5 + 3 * np.log(frame.light) + 0.01 * frame.co2 + (frame.house == "south") * 1.0
+                       + rng.normal(0, 1, n))
+    return frame
+
+
+def _write_parts(frame, folder, count):
+    os.makedirs(folder, exist_ok=True)
+    for i, rows in enumerate(np.array_split(np.arange(len(frame)), count)):
+        frame.iloc[rows].to_parquet(os.path.join(folder, f"part-{i:02d}.parquet"), index=False)
+    return str(folder)
+
+
+@pytest.fixture(scope="module")
+def small(tmp_path_factory):
+    frame = _table(3000)
+    folder = _write_parts(frame, tmp_path_factory.mktemp("parts") / "bays", 4)
+    return frame, folder
+
+
+@pytest.fixture(scope="module")
+def pair(small):
+    frame, folder = small
+    return selectkit.search(frame, response=RESPONSE), selectkit.search(folder, response=RESPONSE)
+
+
+def test_a_folder_gives_the_shortlist_of_the_table_in_memory(pair):
+    whole, parted = pair
+    a, b = whole.shortlist, parted.shortlist
+    assert list(a.terms) == list(b.terms)
+    np.testing.assert_allclose(b.rss.to_numpy(), a.rss.to_numpy(), rtol=1e-10)
+    np.testing.assert_allclose(b.bic.to_numpy(), a.bic.to_numpy(), rtol=1e-10)
+    # PRESS in memory is one QR per model; in parts it is one pass from the all-row moments fit
+    np.testing.assert_allclose(b.press.to_numpy(), a.press.to_numpy(), rtol=1e-8)
+    assert parted.candidates.parts is not None and parted.candidates.parts.n_parts == 4
+    assert parted.settings["n_rows"] == 3000
+
+
+def test_press_of_a_table_in_parts_equals_a_leave_one_out_loop(pair, small):
+    frame, _ = small
+    parted = pair[1]
+    top = parted.shortlist.iloc[0]
+    X = parted.candidates.transform(frame)[:, [c for i in parted._subset(0) for c in parted.candidates.terms[i].columns]]
+    A = np.column_stack([np.ones(len(frame)), X])
+    y = frame[RESPONSE].to_numpy()
+    loo = 0.0
+    for i in range(0, len(frame)):  # brute force: refit without row i, predict it
+        keep = np.arange(len(frame)) != i
+        beta = np.linalg.lstsq(A[keep], y[keep], rcond=None)[0]
+        loo += float((y[i] - A[i] @ beta) ** 2)
+    assert top["press"] == pytest.approx(loo, rel=1e-8)
+
+
+def test_cv_errors_of_a_table_in_parts_are_those_of_its_hashed_folds(pair, small):
+    frame, _ = small
+    parted = pair[1]
+    labels = parts.fold_labels(np.arange(len(frame)), _scheme(5), len(frame), parts._repeat_keys(0, 1)[0])
+    assert set(np.bincount(labels)) and len(np.bincount(labels)) == 5
+    cols = [c for i in parted._subset(0) for c in parted.candidates.terms[i].columns]
+    A = np.column_stack([np.ones(len(frame)), parted.candidates.transform(frame)[:, cols]])
+    y = frame[RESPONSE].to_numpy()
+    errors = []
+    for j in range(5):  # numpy least squares on each fold's training rows, error on its test rows
+        test = labels == j
+        beta = np.linalg.lstsq(A[~test], y[~test], rcond=None)[0]
+        errors.append(float(np.mean((y[test] - A[test] @ beta) ** 2)))
+    assert parted.shortlist.iloc[0]["cv_mse"] == pytest.approx(np.mean(errors), rel=1e-9)
+
+
+def _scheme(k):
+    from selectkit.searches.crossval import shuffled_folds
+
+    return shuffled_folds(k)
+
+
+def test_fold_of_a_row_depends_only_on_its_position_and_the_seed():
+    scheme = _scheme(5)
+    key = parts._repeat_keys(7, 1)[0]
+    whole = parts.fold_labels(np.arange(10_000), scheme, 10_000, key)
+    pieces = np.concatenate([parts.fold_labels(np.arange(a, min(a + 999, 10_000)), scheme, 10_000, key)
+                             for a in range(0, 10_000, 999)])
+    np.testing.assert_array_equal(whole, pieces)
+    counts = np.bincount(whole, minlength=5)
+    assert np.all(np.abs(counts - 2000) < 4 * np.sqrt(2000 * 0.8))  # binomial sizes about n/K
+    other = parts.fold_labels(np.arange(10_000), scheme, 10_000, parts._repeat_keys(8, 1)[0])
+    assert np.mean(other == whole) < 0.4  # another seed, other folds (about 1/5 agree by chance)
+
+
+def test_blocked_folds_are_the_contiguous_blocks_of_memory():
+    from selectkit.searches.crossval import blocked_folds, make_folds
+
+    n = 1003
+    labels = parts.fold_labels(np.arange(n), blocked_folds(4), n, 0)
+    for fold in make_folds(blocked_folds(4), n):
+        assert np.all(labels[fold.test_rows] == fold.index)
+
+
+@pytest.mark.slow
+def test_a_dask_cluster_gives_the_same_shortlist_as_memory(small, pair):
+    """Issue: the same table searched locally and on a cluster, to 1e-8 (LocalCluster, 2 worker processes)."""
+    distributed = pytest.importorskip("distributed")
+    dd = pytest.importorskip("dask.dataframe")
+    _, folder = small
+    whole = pair[0]
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as cluster:
+        with distributed.Client(cluster):
+            from_frame = selectkit.search(dd.read_parquet(folder), response=RESPONSE)
+            from_folder = selectkit.search(folder, response=RESPONSE, backend="dask",
+                                           scheduler=cluster.scheduler_address)
+    for result in (from_frame, from_folder):
+        assert list(result.shortlist.terms) == list(whole.shortlist.terms)
+        np.testing.assert_allclose(result.shortlist.rss.to_numpy(), whole.shortlist.rss.to_numpy(), rtol=1e-8)
+        np.testing.assert_allclose(result.shortlist.press.to_numpy(), whole.shortlist.press.to_numpy(), rtol=1e-8)
+    # the local run in parts and the cluster run merge the same parts in the same order: equal CV errors too
+    np.testing.assert_allclose(from_folder.shortlist.cv_mse.to_numpy(), pair[1].shortlist.cv_mse.to_numpy(),
+                               rtol=1e-12)
+
+
+def test_a_glob_and_a_single_parquet_file_read_in_parts(small, tmp_path, monkeypatch):
+    frame, folder = small
+    monkeypatch.setattr(parts, "PART_ROWS", 1000)  # row groups of 700 rows, gathered into parts of ≥ 1000
+    by_glob = selectkit.search(os.path.join(folder, "part-0[0-2].parquet"), response=RESPONSE)
+    assert by_glob.settings["n_rows"] == sum(len(r) for r in np.array_split(np.arange(3000), 4)[:3])
+    path = tmp_path / "one.parquet"
+    frame.to_parquet(path, index=False, row_group_size=700)
+    one = selectkit.search(str(path), response=RESPONSE, read_in_parts="yes")
+    assert one.candidates.parts.n_parts == 3  # 700+700, 700+700, 200
+    assert list(one.shortlist.terms) == list(pair_terms(frame))
+
+
+def pair_terms(frame):
+    return selectkit.search(frame, response=RESPONSE).shortlist.terms
+
+
+def test_a_sampled_table_checks_on_the_sample_and_ranks_on_every_row(tmp_path):
+    frame = _table(24_000, seed=3)
+    folder = _write_parts(frame, tmp_path / "big", 3)
+    result = selectkit.search(folder, response=RESPONSE, check_sample_rows=4000)
+    assert result.settings["n_rows"] == 24_000
+    assert result.candidates.y.shape[0] == 4000
+    assert result.checks(0).n == 4000
+    assert result.terms(0) == ("log(light)", "co2", "house")
+    whole = selectkit.search(frame, response=RESPONSE)
+    # same candidate columns (no fitted power among the top model's), so the same rss on every row
+    assert result.shortlist.iloc[0]["rss"] == pytest.approx(whole.shortlist.iloc[0]["rss"], rel=1e-10)
+    notes = " ".join(n.message for n in result.dataset.report.notes)
+    assert "seeded sample of 4000 rows" in notes
+
+
+def test_a_zero_in_one_part_outside_the_sample_still_rules_out_the_log(tmp_path):
+    frame = _table(12_000, seed=4)
+    frame.loc[11_500, "heat"] = 0.0  # one row, in the last part
+    folder = _write_parts(frame, tmp_path / "zero", 3)
+    parted = selectkit.api.prepare_candidates(folder, response=RESPONSE, check_sample_rows=1000, curvature_test=False)
+    whole = selectkit.api.prepare_candidates(frame, response=RESPONSE, curvature_test=False)
+    names = {t.name for t in parted[1].terms}
+    assert "log(heat)" not in names
+    # the same forms of heat as on every row in memory (their fitted powers come from the sample)
+    assert {t.transform for t in parted[1].terms if "heat" in t.source} == \
+        {t.transform for t in whole[1].terms if "heat" in t.source}
+
+
+def test_the_reference_level_is_the_most_frequent_over_every_row(tmp_path):
+    rng = np.random.default_rng(5)
+    frame = _table(20_000, seed=5)
+    frame["house"] = rng.choice(["east", "north", "south"], 20_000, p=[0.334, 0.333, 0.333])
+    folder = _write_parts(frame, tmp_path / "levels", 2)
+    full_reference = frame["house"].value_counts().idxmax()
+    for rows in (1000, 2000, 5000):
+        dataset, _ = selectkit.api.prepare_candidates(folder, response=RESPONSE, check_sample_rows=rows)
+        assert dataset.frame["house"].cat.categories[0] == full_reference
+
+
+def _bad_folder(tmp_path, frame, name):
+    return _write_parts(frame, tmp_path / name, 3)
+
+
+def test_an_infinite_value_is_named_by_part_and_row(tmp_path):
+    frame = _table(900)
+    frame.loc[650, "co2"] = np.inf
+    folder = _bad_folder(tmp_path, frame, "inf")
+    with pytest.raises(InputError, match=r"'co2' \(1 rows\).*part-02\.parquet.*row 51 of that part \(row 651 of"):
+        selectkit.search(folder, response=RESPONSE)
+
+
+def test_missing_values_are_refused_or_dropped_as_asked(tmp_path):
+    frame = _table(900)
+    frame.loc[[10, 700], "light"] = np.nan
+    folder = _bad_folder(tmp_path, frame, "holes")
+    with pytest.raises(InputError, match=r"missing values in 'light' \(2 rows\).*holes/part-00\.parquet', row 11 of that part"):
+        selectkit.search(folder, response=RESPONSE)
+    dropped = selectkit.search(folder, response=RESPONSE, incomplete_rows="drop")
+    whole = selectkit.search(frame, response=RESPONSE, incomplete_rows="drop")
+    assert dropped.settings["n_rows"] == 898 == whole.settings["n_rows"]
+    np.testing.assert_allclose(dropped.shortlist.rss.to_numpy(), whole.shortlist.rss.to_numpy(), rtol=1e-10)
+
+
+def test_parts_with_other_columns_are_refused_naming_the_part(tmp_path):
+    frame = _table(900)
+    folder = _bad_folder(tmp_path, frame, "columns")
+    frame.iloc[:10].drop(columns=["drift"]).to_parquet(os.path.join(folder, "part-03.parquet"), index=False)
+    with pytest.raises(InputError, match=r"part-03\.parquet.* lacks 'drift'"):
+        selectkit.search(folder, response=RESPONSE)
+
+
+def test_what_a_table_in_parts_cannot_do_is_refused_with_the_fix(small, tmp_path):
+    _, folder = small
+    with pytest.raises(OptionError, match="read_in_parts='no'"):
+        selectkit.search(folder, response=RESPONSE, resamples=10)
+    with pytest.raises(OptionError, match="several parts"):
+        selectkit.search(folder, response=RESPONSE, read_in_parts="no")
+    with pytest.raises(DataFileError, match="holds no .parquet or .csv"):
+        selectkit.search(str(tmp_path), response=RESPONSE)
+    with pytest.raises(DataFileError, match="no file matches"):
+        selectkit.search(str(tmp_path / "*.parquet"), response=RESPONSE)
+
+
+def test_csv_parts_read_each_file_with_the_csv_intake(small, tmp_path):
+    frame, _ = small
+    folder = tmp_path / "csv"
+    folder.mkdir()
+    for i, rows in enumerate(np.array_split(np.arange(len(frame)), 3)):
+        frame.iloc[rows].to_csv(folder / f"bays-{i}.csv", index=False)
+    result = selectkit.search(str(folder / "bays-*.csv"), response=RESPONSE)
+    whole = selectkit.search(frame, response=RESPONSE)
+    assert list(result.shortlist.terms) == list(whole.shortlist.terms)
+    np.testing.assert_allclose(result.shortlist.rss.to_numpy(), whole.shortlist.rss.to_numpy(), rtol=1e-9)
+
+
+def test_the_command_line_reads_a_folder(small, tmp_path, capsys):
+    from selectkit import cli
+
+    _, folder = small
+    code = cli.main(["search", folder, "--response", RESPONSE, "--output", str(tmp_path / "out"), "--quiet"])
+    assert code == 0
+    shortlist = pd.read_csv(tmp_path / "out" / "shortlist.csv")
+    assert len(shortlist) > 0
+
+
+def test_a_data_fingerprint_of_a_folder_changes_with_any_file(small, tmp_path):
+    from selectkit.jobs.store import data_fingerprint
+
+    frame, _ = small
+    folder = _write_parts(frame, tmp_path / "fp", 2)
+    first = data_fingerprint(folder)
+    assert first == data_fingerprint(folder)
+    frame.iloc[:5].to_parquet(os.path.join(folder, "part-09.parquet"), index=False)
+    assert data_fingerprint(folder) != first
