@@ -256,9 +256,14 @@ class CandidateSet:
             categorical value is a level not seen when the candidates were built,
             or a value lies outside a form's domain (log of a zero...).
         """
+        return self._transform(frame, range(len(self.terms)))
+
+    def _transform(self, frame, which) -> np.ndarray:
+        """:meth:`transform` of the terms ``which`` only (the other columns are zeros)."""
         if not isinstance(frame, pd.DataFrame):
             raise InputError(f"transform needs a pandas DataFrame, got {type(frame).__name__}")
-        needed = list(dict.fromkeys(s for t in self.terms for s in t.source))
+        terms = [self.terms[i] for i in which]
+        needed = list(dict.fromkeys(s for t in terms for s in t.source))
         missing = [c for c in needed if c not in frame.columns]
         if missing:
             raise InputError(
@@ -267,9 +272,9 @@ class CandidateSet:
                 column=missing[0],
             )
         n = len(frame)
-        out = np.empty((n, len(self.column_names)), dtype=np.float64)
+        out = (np.empty if len(terms) == len(self.terms) else np.zeros)((n, len(self.column_names)), dtype=np.float64)
         numeric_cache: dict[str, np.ndarray] = {}
-        for term in self.terms:
+        for term in terms:
             if term.kind == "block":
                 out[:, list(term.columns)] = _dummies_for_new_data(frame[term.family], term)
                 continue

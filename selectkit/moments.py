@@ -513,8 +513,11 @@ def moments_from_file(
     return moments_from_chunks(chunks())
 
 
-def _candidate_chunks(candidates, weights_column):
-    """frame -> (X, y[, w]) through a CandidateSet's stored forms and response transform."""
+def _candidate_chunks(candidates, weights_column, terms=None):
+    """frame -> (X, y[, w]) through a CandidateSet's stored forms and response transform.
+
+    With ``terms`` (indices), only those terms' columns are built; the others are left as zeros.
+    """
     from .transforms import transform_response
 
     response = candidates.response
@@ -530,7 +533,8 @@ def _candidate_chunks(candidates, weights_column):
                     "pass the file the candidates came from",
                     column=name,
                 )
-        X = np.asarray(candidates.transform(frame), dtype=np.float64)
+        X = np.asarray(candidates.transform(frame) if terms is None else candidates._transform(frame, terms),
+                       dtype=np.float64)
         y = frame[response].to_numpy(dtype=np.float64, na_value=np.nan)
         if kind != "identity":
             bad = int(np.count_nonzero(~(y > 0)))

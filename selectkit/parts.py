@@ -83,6 +83,7 @@ class Part:
     row_groups: tuple = ()
     start: int = 0
     stop: int = 0
+    rows: int | None = None  # known before reading (Parquet metadata, a DataFrame's slice), else None
 
 
 @dataclass
@@ -186,10 +187,10 @@ def _parquet_parts(path: str, label: str) -> list:
         rows += meta.row_group(g).num_rows
         if rows >= PART_ROWS or g == meta.num_row_groups - 1:
             name = label if len(group) == meta.num_row_groups else f"{label} (rows {first + 1}-{first + rows})"
-            parts.append(Part(name, "parquet", path, tuple(group)))
+            parts.append(Part(name, "parquet", path, tuple(group), rows=rows))
             first += rows
             group, rows = [], 0
-    return parts or [Part(label, "parquet", path, ())]
+    return parts or [Part(label, "parquet", path, (), rows=0)]
 
 
 def table_exists(path) -> bool:
@@ -260,7 +261,7 @@ def open_parts(data) -> PartedTable:
         if n == 0:
             raise InputError(f"the DataFrame has {data.shape[1]} columns but no data rows; pass a table with rows")
         parts = [Part(f"rows {a + 1}-{min(a + PART_ROWS, n)} of the DataFrame", "frame", start=a,
-                      stop=min(a + PART_ROWS, n)) for a in range(0, n, PART_ROWS)]
+                      stop=min(a + PART_ROWS, n), rows=min(a + PART_ROWS, n) - a) for a in range(0, n, PART_ROWS)]
         return PartedTable(parts, "a DataFrame", frame=data)
     path = os.fspath(data)
     if not any(ch in path for ch in "*?[") and not os.path.exists(path):
@@ -280,8 +281,13 @@ def open_parts(data) -> PartedTable:
 
 
 # ------------------------------------------------------------------------ pass 1: survey
-def _survey(frame):
-    """Counts of one part: rows, and per column its missing and infinite values, range and levels."""
+def _survey(frame, offset=None, take=None):
+    """Counts of one part: rows, and per column its missing and infinite values, range and levels.
+
+    With ``take`` (table positions in this part, which starts at ``offset``)
+    the part also returns those rows and the rows of its own extremes and
+    first levels, so that the sample needs no pass of its own.
+    """
     import pandas as pd
 
     out = {"n": len(frame), "columns": list(frame.columns), "cols": {}}
@@ -315,6 +321,15 @@ def _survey(frame):
                 levels = {v: (c, first[v]) for v, c in counts.items()}
             info["levels"] = None if counts is None else levels
         out["cols"][name] = info
+    if take is not None:
+        local = set()
+        for info in out["cols"].values():
+            if "argmin" in info:
+                local.update((info["argmin"], info["argmax"]))
+            if info.get("levels"):
+                local.update(first for _, first in info["levels"].values())
+        rows = np.union1d(np.asarray(take, dtype=np.int64) - offset, np.fromiter(local, np.int64, len(local)))
+        out["rows"] = _take(frame, rows + offset, offset)
     return out
 
 
@@ -414,13 +429,19 @@ def _take(frame, positions, offset):
     return rows
 
 
+def _random_positions(n_total: int, size: int, seed: int) -> np.ndarray:
+    """The seeded sample of the checks: ``size`` table positions without replacement, sorted (all when fewer)."""
+    if n_total <= size:
+        return np.arange(n_total, dtype=np.int64)
+    rng = np.random.default_rng(np.random.SeedSequence([int(seed), 0x5EED]))
+    return np.sort(rng.choice(n_total, size=size, replace=False)).astype(np.int64)
+
+
 def _sample_positions(n_total: int, size: int, seed: int, merged) -> tuple[np.ndarray, np.ndarray]:
     """(random rows, every row to read): the seeded sample, plus the rows of each extreme and first level."""
+    random = _random_positions(n_total, size, seed)
     if n_total <= size:
-        random = np.arange(n_total, dtype=np.int64)
         return random, random
-    rng = np.random.default_rng(np.random.SeedSequence([int(seed), 0x5EED]))
-    random = np.sort(rng.choice(n_total, size=size, replace=False)).astype(np.int64)
     extra = set()
     for col in merged.values():
         if col.argmin >= 0:
@@ -480,43 +501,73 @@ def _part_moments(frame, offset, light, pool, weights, schemes, n_total):
         w = out[2] if len(out) == 3 else None
         where = positions[a:a + SLICE_ROWS]
         first = int(where[0]) if len(where) else offset
-        total = total + _chunk_moments(X, y, w, first, None)
         for s, (scheme, key) in enumerate(schemes):
             labels = fold_labels(where, scheme, n_total, key)
+            pieces = []
             for j in range(scheme.k):
                 rows = labels == j
-                if rows.any():
-                    folds[s][j] = folds[s][j] + _chunk_moments(X[rows], y[rows], None if w is None else w[rows],
-                                                               first, None)
+                pieces.append(_chunk_moments(X[rows], y[rows], None if w is None else w[rows], first, None))
+                folds[s][j] = folds[s][j] + pieces[-1]
+            if s == 0:  # the folds of one repetition partition the rows: their sum is the slice's moments
+                piece = pieces[0]
+                for other in pieces[1:]:
+                    piece = piece + other
+                total = total + piece
+        if not schemes:
+            total = total + _chunk_moments(X, y, w, first, None)
     return total, folds, int((~keep).sum())
 
 
-def _part_press(frame, offset, light, pool, weights, models):
-    """Σ w (e/(1−h))² and Σ w e² of each model over one part's rows (all-row fits)."""
+def _part_press(frame, offset, light, pool, weights, plan):
+    """Σ w (e/(1−h))² and Σ w e² of each model over one part's rows (all-row fits), all models at once.
+
+    ``plan`` holds the columns any model uses (``used``), their all-row means,
+    the response mean and Σw, and per model its coefficients spread over
+    ``used`` (zeros elsewhere, the columns of a matrix ``B``) and a factor
+    ``L`` of its inverse centred cross-products, ``L Lᵀ = C⁻¹``, the factors
+    side by side in one matrix (zero rows outside the model; block ``m``
+    starts at column ``starts[m]``).  Then for the centred columns ``D``, the
+    residuals of every model are ``ỹ − D B`` and a model's leverages are
+    ``w (1/Σw + ‖(D L)ᵢ‖²)`` over its block: two matrix products per slice
+    (measured 2-5× faster than a product per model at 19 models of 10 columns).
+    """
     from .moments import _candidate_chunks
 
+    used, means, ybar, weight_sum, B, L, starts = plan
     keep = np.ones(len(frame), dtype=bool)
     for c in pool:
         keep &= ~frame[c].isna().to_numpy()
     frame = frame.loc[keep].reset_index(drop=True) if not keep.all() else frame
-    chunk = _candidate_chunks(light, weights)
-    press = np.zeros(len(models))
-    rss = np.zeros(len(models))
-    exact = np.zeros(len(models), dtype=bool)
+    chunk = _candidate_chunks(light, weights, terms=plan_terms(light, used))
+    models = B.shape[1]
+    press = np.zeros(models)
+    rss = np.zeros(models)
+    exact = np.zeros(models, dtype=bool)
     for a in range(0, len(frame), SLICE_ROWS):
         out = chunk(frame.iloc[a:a + SLICE_ROWS])
-        X, y = out[0], out[1]
-        w = out[2] if len(out) == 3 else np.ones(len(y))
-        for i, (cols, xbar, ybar, beta, inverse, weight_sum) in enumerate(models):
-            d = X[:, cols] - xbar
-            e = (y - ybar) - d @ beta
-            h = w * (1.0 / weight_sum + np.einsum("ij,jk,ik->i", d, inverse, d))
-            exact[i] |= bool(np.any(h >= 1.0 - 1e-12))
-            with np.errstate(divide="ignore"):
-                loo = e / (1.0 - h)
-            press[i] += float(np.sum(w * loo * loo))
-            rss[i] += float(np.sum(w * e * e))
+        D = out[0][:, used] - means
+        w = out[2] if len(out) == 3 else None
+        E = (out[1] - ybar)[:, None] - D @ B
+        Q = D @ L
+        Q *= Q
+        h = np.add.reduceat(Q, starts, axis=1)
+        h = (1.0 / weight_sum + h) if w is None else w[:, None] * (1.0 / weight_sum + h)
+        exact |= np.any(h >= 1.0 - 1e-12, axis=0)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            loo = E / (1.0 - h)
+        if w is None:
+            press += np.einsum("ij,ij->j", loo, loo)
+            rss += np.einsum("ij,ij->j", E, E)
+        else:
+            press += np.einsum("i,ij,ij->j", w, loo, loo)
+            rss += np.einsum("i,ij,ij->j", w, E, E)
     return press, rss, exact
+
+
+def plan_terms(light, used) -> tuple:
+    """Indices of the terms that hold the columns ``used`` (only those are built in the residual pass)."""
+    wanted = set(int(c) for c in used)
+    return tuple(i for i, term in enumerate(light.terms) if wanted & set(term.columns))
 
 
 # ------------------------------------------------------------------------ what a run keeps
@@ -580,28 +631,40 @@ class PartsInfo:
         return out_folds, pairs
 
     def press(self, moments, columns_of: dict) -> dict:
-        """PRESS of each model (``subset → columns``) from one pass over the parts."""
+        """PRESS of each model (``subset → columns``) from one pass over the parts (Allen 1974)."""
         from .rank import moment_fit
 
-        models, keys, out = [], [], {}
+        fits, out = {}, {}
         for subset, cols in columns_of.items():
             try:
-                fit = moment_fit(moments, cols)
+                fits[subset] = (list(cols), moment_fit(moments, list(cols)))
             except Exception:  # noqa: BLE001 - a rank-deficient model gets NaN, as in memory
                 out[subset] = float("nan")
-                continue
-            # the lower-right block of (AᵀWA)⁻¹ for A = [1, X] is the inverse of the centred cross-products
-            inverse = np.asarray(fit.cov_unscaled, dtype=float)[1:, 1:]
-            models.append((list(cols), moments.mean[cols], float(moments.mean[-1]),
-                           np.asarray(fit.coef[1:], dtype=float), inverse, float(moments.weight_sum)))
-            keys.append(subset)
-        if not models:
+        if not fits:
             return out
         if self.table is None:
             raise OptionError("PRESS of a table read in parts needs a second pass over its parts, which a loaded "
                               "result no longer has; search again to get it")
+        used = sorted({c for cols, _ in fits.values() for c in cols})
+        where = {c: i for i, c in enumerate(used)}
+        keys = list(fits)
+        B = np.zeros((len(used), len(keys)))
+        blocks, starts, first = [], [], 0
+        for m, key in enumerate(keys):
+            cols, fit = fits[key]
+            rows = [where[c] for c in cols]
+            B[rows, m] = np.asarray(fit.coef[1:], dtype=float)
+            block = np.zeros((len(used), max(len(cols), 1)))
+            if cols:
+                # the lower-right block of (AᵀWA)⁻¹ for A = [1, X] is the inverse of the centred cross-products
+                block[rows, :] = np.linalg.cholesky(np.asarray(fit.cov_unscaled, dtype=float)[1:, 1:])
+            blocks.append(block)
+            starts.append(first)
+            first += block.shape[1]
+        plan = (np.asarray(used, dtype=np.int64), moments.mean[used], float(moments.mean[-1]),
+                float(moments.weight_sum), B, np.hstack(blocks), np.asarray(starts, dtype=np.int64))
         with _client(self) as client:
-            results = self.table.run(_part_press, lambda i: (0, self.light, self.pool, self.weights, models),
+            results = self.table.run(_part_press, lambda i: (0, self.light, self.pool, self.weights, plan),
                                      client=client)
         press = sum(r[0] for r in results)
         exact = np.any([r[2] for r in results], axis=0)
@@ -657,13 +720,29 @@ def prepare_in_parts(data, s, *, build_options, check_folds):
     table = open_parts(data)
     info_stub = PartsInfo("", (), 0, 0, 0, 0, {}, table=table, scheduler=s["scheduler"], uses_dask=uses_dask)
     with _client(info_stub) as client:
-        surveys = table.run(_survey, lambda i: (), client=client)
-        merged, offsets = _merge_surveys(table, surveys)
-        n_total = int(offsets[-1])
-        random, wanted = _sample_positions(n_total, s["check_sample_rows"], s["seed"], merged)
-        which = np.searchsorted(offsets, wanted, side="right") - 1
-        by_part = [wanted[which == p] for p in range(len(table.parts))]
-        pieces = table.run(_take, lambda i: (by_part[i], int(offsets[i])), client=client)
+        known = [part.rows for part in table.parts]
+        if all(r is not None for r in known):  # rows known first: the survey also takes the sample
+            starts = np.concatenate([[0], np.cumsum(known)]).astype(np.int64)
+            random = _random_positions(int(starts[-1]), s["check_sample_rows"], s["seed"])
+            which = np.searchsorted(starts, random, side="right") - 1
+            surveys = table.run(_survey, lambda i: (int(starts[i]), random[which == i]), client=client)
+            merged, offsets = _merge_surveys(table, surveys)
+            n_total = int(offsets[-1])
+            if not np.array_equal(offsets, starts):
+                raise DataFileError(f"the parts of {table.description} hold other row counts than their metadata "
+                                    f"says; check that no file is being written")
+            wanted = _sample_positions(n_total, s["check_sample_rows"], s["seed"], merged)[1]
+            pieces = [sv["rows"].loc[sv["rows"].index.isin(wanted)] for sv in surveys]
+        else:
+            surveys = table.run(_survey, lambda i: (), client=client)
+            merged, offsets = _merge_surveys(table, surveys)
+            n_total = int(offsets[-1])
+            random, wanted = _sample_positions(n_total, s["check_sample_rows"], s["seed"], merged)
+            which = np.searchsorted(offsets, wanted, side="right") - 1
+            by_part = [wanted[which == p] for p in range(len(table.parts))]
+            pieces = table.run(_take, lambda i: (by_part[i], int(offsets[i])), client=client)
+        for sv in surveys:
+            sv.pop("rows", None)
         sample = pd.concat([p for p in pieces if len(p)], axis=0)
         positions = sample.index.to_numpy(dtype=np.int64)
         sample = sample.reset_index(drop=True)
