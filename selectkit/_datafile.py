@@ -63,7 +63,7 @@ def _record_types() -> dict:
     Imported when first needed (this bottom-level module imports no stage at
     load time).  Only these are ever rebuilt; a name not here is refused.
     """
-    from . import _budget, candidates, data, inference, moments, rank
+    from . import _budget, candidates, data, inference, moments, parts, rank
     from .api import MethodRun, SearchSetup
     from .searches import _found, crossval, exhaustive, screen, stepwise
 
@@ -72,7 +72,7 @@ def _record_types() -> dict:
         data.Note, data.IntakeReport, data.Dataset, moments.Moments, rank.ModelFit, rank.Shortlist,
         rank.Stability, crossval.FoldScheme, crossval.Fold, crossval.CrossvalOptions, crossval.NestedResult,
         exhaustive.ExhaustiveOptions, stepwise.StepwiseOptions, screen.ScreenOptions, screen.ScreenResult,
-        _budget.Deadline, MethodRun, SearchSetup, inference.SplitInference,
+        _budget.Deadline, MethodRun, SearchSetup, inference.SplitInference, parts.PartsInfo,
     ]
     return {cls.__name__: cls for cls in classes}
 
@@ -152,6 +152,8 @@ class _Encoder:
             item = getattr(value, f.name)
             if name == "SearchSetup" and f.name == "deadline":
                 item = None  # a run's clock means nothing once it is saved
+            if name == "PartsInfo" and f.name == "table":
+                item = None  # how to reread the parts is this run's, not the file's
             fields[f.name] = self.value(item)
         return {"$": "record", "type": name, "fields": fields}
 

@@ -49,6 +49,8 @@ from __future__ import annotations
 import glob as _glob
 import os
 from collections import Counter
+from contextlib import contextmanager
+from contextvars import ContextVar
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
@@ -96,21 +98,93 @@ class PartedTable:
     frame: object = None  # the pandas DataFrame that "frame" parts slice
     dask_frame: object = None
 
-    def run(self, task, args_of, *, client=None) -> list:
-        """``task(frame_of_part, *args_of(i))`` for every part, results in part order."""
+    def run(self, task, args_of, *, client=None, stage=None, basis_of=None) -> list:
+        """``task(frame_of_part, *args_of(i))`` for every part, results in part order.
+
+        With ``stage`` and ``basis_of`` and a keeper installed (:func:`kept_in`,
+        as a job's run store does), a part whose result is kept under
+        ``(f"{stage}/{i}", basis_of(i))`` is not read again, and every other
+        part's result is kept as soon as it arrives.
+        """
+        keeper = _KEEPER.get() if stage is not None else None
+        results: list = [None] * len(self.parts)
+        todo = list(range(len(self.parts)))
+        if keeper is not None:
+            bases = {i: basis_of(i) for i in todo}
+            for i in list(todo):
+                kept = keeper.get(f"{stage}/{i:05d}", bases[i])
+                if kept is not None:
+                    results[i] = kept
+                    todo.remove(i)
+
+        def arrived(i, value):
+            results[i] = value
+            if keeper is not None:
+                keeper.put(f"{stage}/{i:05d}", bases[i], value)
+
+        if not todo:
+            return results
+        if self.dask_frame is None and client is None:
+            for i in todo:
+                part = self.parts[i]
+                arrived(i, _on_frame(task, part.label, _load(part, self.frame), args_of(i)))
+            return results
+        import dask
+
         if self.dask_frame is not None:
-            import dask
-
             pieces = self.dask_frame.to_delayed()
-            tasks = [dask.delayed(_on_frame)(task, self.parts[i].label, piece, args_of(i))
-                     for i, piece in enumerate(pieces)]
-            return list(dask.compute(*tasks, scheduler=client) if client is not None else dask.compute(*tasks))
-        if client is not None:
-            import dask
+            tasks = [dask.delayed(_on_frame)(task, self.parts[i].label, pieces[i], args_of(i)) for i in todo]
+            client = client if client is not None else _current_client()
+        else:
+            tasks = [dask.delayed(_on_part)(task, self.parts[i], args_of(i)) for i in todo]
+        if client is None:  # a Dask DataFrame on dask's local scheduler
+            for i, value in zip(todo, dask.compute(*tasks)):
+                arrived(i, value)
+            return results
+        from distributed import as_completed
 
-            tasks = [dask.delayed(_on_part)(task, part, args_of(i)) for i, part in enumerate(self.parts)]
-            return list(dask.compute(*tasks, scheduler=client))
-        return [_on_frame(task, part.label, _load(part, self.frame), args_of(i)) for i, part in enumerate(self.parts)]
+        futures = client.compute(tasks)
+        where = {f.key: i for f, i in zip(futures, todo)}
+        for future, value in as_completed(futures, with_results=True):
+            arrived(where[future.key], value)
+        return results
+
+
+def _current_client():
+    try:
+        import distributed
+
+        return distributed.default_client()
+    except (ImportError, ValueError):
+        return None
+
+
+_KEEPER: ContextVar = ContextVar("selectkit_parts_keeper", default=None)
+
+
+@contextmanager
+def kept_in(keeper):
+    """Keep the per-part results of the passes with ``keeper`` (``get(stage, basis)``, ``put(stage, basis,
+    value)``) while the block runs: a job's run store, so that a killed job resumes without rereading the
+    parts it had finished."""
+    token = _KEEPER.set(keeper)
+    try:
+        yield keeper
+    finally:
+        _KEEPER.reset(token)
+
+
+def _basis(*items) -> str:
+    import hashlib
+
+    digest = hashlib.sha256()
+    for item in items:
+        if isinstance(item, np.ndarray):
+            digest.update(np.ascontiguousarray(item).tobytes())
+        else:
+            digest.update(repr(item).encode("utf-8"))
+        digest.update(b"\0")
+    return digest.hexdigest()
 
 
 def _on_part(task, part, args):
@@ -725,7 +799,8 @@ def prepare_in_parts(data, s, *, build_options, check_folds):
             starts = np.concatenate([[0], np.cumsum(known)]).astype(np.int64)
             random = _random_positions(int(starts[-1]), s["check_sample_rows"], s["seed"])
             which = np.searchsorted(starts, random, side="right") - 1
-            surveys = table.run(_survey, lambda i: (int(starts[i]), random[which == i]), client=client)
+            surveys = table.run(_survey, lambda i: (int(starts[i]), random[which == i]), client=client,
+                                stage="part-survey", basis_of=lambda i: _basis(table.parts[i], random[which == i]))
             merged, offsets = _merge_surveys(table, surveys)
             n_total = int(offsets[-1])
             if not np.array_equal(offsets, starts):
@@ -734,15 +809,15 @@ def prepare_in_parts(data, s, *, build_options, check_folds):
             wanted = _sample_positions(n_total, s["check_sample_rows"], s["seed"], merged)[1]
             pieces = [sv["rows"].loc[sv["rows"].index.isin(wanted)] for sv in surveys]
         else:
-            surveys = table.run(_survey, lambda i: (), client=client)
+            surveys = table.run(_survey, lambda i: (), client=client, stage="part-survey",
+                                basis_of=lambda i: _basis(table.parts[i]))
             merged, offsets = _merge_surveys(table, surveys)
             n_total = int(offsets[-1])
             random, wanted = _sample_positions(n_total, s["check_sample_rows"], s["seed"], merged)
             which = np.searchsorted(offsets, wanted, side="right") - 1
             by_part = [wanted[which == p] for p in range(len(table.parts))]
             pieces = table.run(_take, lambda i: (by_part[i], int(offsets[i])), client=client)
-        for sv in surveys:
-            sv.pop("rows", None)
+        surveys = [{k: v for k, v in sv.items() if k != "rows"} for sv in surveys]  # kept ones stay whole
         sample = pd.concat([p for p in pieces if len(p)], axis=0)
         positions = sample.index.to_numpy(dtype=np.int64)
         sample = sample.reset_index(drop=True)
@@ -775,8 +850,11 @@ def prepare_in_parts(data, s, *, build_options, check_folds):
         light = _terms_only(cands)
         keys = _repeat_keys(s["seed"], scheme.repeats or 1)
         schemes = [(scheme, key) for key in keys]
+        definition = _basis([(x.name, x.transform, x.params, x.columns, x.source) for x in light.terms],
+                            light.response_transform, in_use, s["row_weights"], schemes, n_total)
         outcomes = table.run(_part_moments, lambda i: (int(offsets[i]), light, in_use, s["row_weights"], schemes,
-                                                       n_total), client=client)
+                                                       n_total), client=client, stage="part-moments",
+                             basis_of=lambda i: _basis(table.parts[i], int(offsets[i]), definition))
     moments = outcomes[0][0]
     fold_tests = [list(f) for f in outcomes[0][1]]
     for total, folds, _ in outcomes[1:]:

@@ -131,7 +131,7 @@ def test_a_dask_cluster_gives_the_same_shortlist_as_memory(small, pair):
     dd = pytest.importorskip("dask.dataframe")
     _, folder = small
     whole = pair[0]
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as cluster:
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0") as cluster:
         with distributed.Client(cluster):
             from_frame = selectkit.search(dd.read_parquet(folder), response=RESPONSE)
             from_folder = selectkit.search(folder, response=RESPONSE, backend="dask",
@@ -275,3 +275,55 @@ def test_a_data_fingerprint_of_a_folder_changes_with_any_file(small, tmp_path):
     assert first == data_fingerprint(folder)
     frame.iloc[:5].to_parquet(os.path.join(folder, "part-09.parquet"), index=False)
     assert data_fingerprint(folder) != first
+
+
+def test_a_saved_result_of_a_table_in_parts_loads_with_its_record(pair, tmp_path):
+    parted = pair[1]
+    path = parted.save(tmp_path / "bays.skr")
+    loaded = selectkit.load(path)
+    assert list(loaded.shortlist.terms) == list(parted.shortlist.terms)
+    assert loaded.candidates.parts.n_parts == 4 and loaded.candidates.parts.table is None
+
+
+def _job(folder, table):
+    text = (f'[data]\ntable = "{table}"\nresponse = "{RESPONSE}"\n\n[search]\nmethods = ["exhaustive"]\n\n'
+            f'[run]\noutput = "results"\n')
+    path = folder / "bays.toml"
+    path.write_text(text)
+    return path
+
+
+def test_a_killed_job_on_a_folder_resumes_without_rereading_finished_parts(small, tmp_path, monkeypatch):
+    from selectkit.jobs import load_job, run_job
+    from selectkit.jobs.store import RunStore
+
+    frame, _ = small
+    _write_parts(frame, tmp_path / "bays", 6)
+    job = _job(tmp_path, "bays")
+    kept = {"part-moments": 0}
+    original = RunStore.record_finished
+
+    def record(self, stage, basis, value, **kw):  # the job is "killed" once three parts' moments are kept
+        original(self, stage, basis, value, **kw)
+        if stage.startswith("part-moments/"):
+            kept["part-moments"] += 1
+            if kept["part-moments"] == 3:
+                raise KeyboardInterrupt
+
+    monkeypatch.setattr(RunStore, "record_finished", record)
+    with pytest.raises(KeyboardInterrupt):
+        run_job(load_job(job))
+    monkeypatch.setattr(RunStore, "record_finished", original)
+
+    read = []
+    load = parts._load
+    monkeypatch.setattr(parts, "_load", lambda part, frame: read.append(part.label) or load(part, frame))
+    outcome = run_job(load_job(job))
+    assert outcome.complete
+    # the survey and three parts' moments came from the store: only the other three parts were read, once
+    # for their moments and once for PRESS (which every part needs), so 3 + 6 reads in all
+    assert len(read) == 3 + 6, read
+    whole = selectkit.search(frame, response=RESPONSE, methods=["exhaustive"])
+    shortlist = pd.read_csv(tmp_path / "results" / "shortlist.csv")
+    np.testing.assert_allclose(shortlist["rss"].to_numpy(), whole.shortlist.rss.to_numpy()[:len(shortlist)],
+                               rtol=1e-8)  # the CSV holds 10 significant digits

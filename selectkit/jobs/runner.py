@@ -110,6 +110,20 @@ class JobOutcome:
 
 
 # --------------------------------------------------------------------------- the api seams
+class _PartsKeeper:
+    """The run store as the keeper of a table's per-part results (:func:`selectkit.parts.kept_in`)."""
+
+    def __init__(self, store):
+        self.store = store
+
+    def get(self, stage, basis):
+        return self.store.finished(stage, basis)
+
+    def put(self, stage, basis, value):
+        self.store.record_finished(stage, basis, value)
+
+
+
 class _ApiEngine:
     """The three steps of :mod:`selectkit.api`, as the runner calls them."""
 
@@ -358,8 +372,11 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
     if recorded is not None:
         notes += _check_same_job(spec, store, fingerprint)
 
+    from ..parts import kept_in
+
     try:
-        with speaking(JOB):  # a hint names the job file's key, where the setting lives
+        # a table read in parts keeps each part's survey and moments in the store as they arrive
+        with speaking(JOB), kept_in(_PartsKeeper(store)):  # a hint names the job file's key
             setup = engine.prepare(spec)
     except OptionError as err:
         where = spec.source or spec.name
