@@ -8,6 +8,7 @@ Commands::
     selectkit job new TABLE -o job.toml               write a commented starter job file
     selectkit job run job.toml                        run (or continue) an overnight job
     selectkit job resume FOLDER                       continue an interrupted job from its run store
+    selectkit job extend FOLDER                       add the rows of files that joined a job's table
     selectkit job status FOLDER                       progress of a job, readable from another shell
 
 Bad input ends with one line on standard error and exit code 2 (no traceback
@@ -211,6 +212,15 @@ def build_parser() -> argparse.ArgumentParser:
     _add_settings(j, _RUN_SETTINGS + ("time_budget",))
     j.add_argument("--quiet", action="store_true", help="no progress bar or progress lines")
     _add_former_flags(j)
+    j = jobs.add_parser("extend", parents=[common],
+                        help="add the rows of files that joined a job's table (a folder or glob) and rank again",
+                        description="Read only the files that joined the job's table since its last run, add "
+                                    "their rows to the stored moments (the forms chosen before are kept), and run "
+                                    "the searches and the ranking again on all rows.")
+    j.add_argument("folder")
+    _add_settings(j, _RUN_SETTINGS + ("time_budget",))
+    j.add_argument("--quiet", action="store_true", help="no progress bar or progress lines")
+    _add_former_flags(j)
     j = jobs.add_parser("status", parents=[common], help="show the progress of a job (safe while it runs)")
     j.add_argument("folder")
     return parser
@@ -372,11 +382,14 @@ def _run_job(args) -> int:
     elif args.job_command == "resume":
         given = _given(args, _RUN_SETTINGS + ("time_budget",))
         outcome = jobs.resume_job(args.folder, progress=False if args.quiet else None, **given)
+    elif args.job_command == "extend":
+        given = _given(args, _RUN_SETTINGS + ("time_budget",))
+        outcome = jobs.extend_job(args.folder, progress=False if args.quiet else None, **given)
     elif args.job_command == "status":
         _show(jobs.store_status(args.folder).render())
         return 0
     else:
-        raise SelectkitError("name a job command: new, run, resume or status (see selectkit job --help)")
+        raise SelectkitError("name a job command: new, run, resume, extend or status (see selectkit job --help)")
     _show(outcome.render())
     return 0 if outcome.complete else 3
 

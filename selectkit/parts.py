@@ -60,7 +60,7 @@ from .errors import DataFileError, InputError, OptionError
 from .settings import spell
 
 __all__ = ["PART_ROWS", "AUTO_PARTS_ROWS", "LEVEL_CAP", "Part", "PartedTable", "PartsInfo", "open_parts",
-           "wants_parts", "prepare_in_parts", "fold_labels"]
+           "wants_parts", "prepare_in_parts", "fold_labels", "row_ids", "kept_in", "table_exists"]
 
 #: Rows per part when one Parquet file or a pandas DataFrame is cut into parts.
 PART_ROWS = 262_144
@@ -86,6 +86,8 @@ class Part:
     start: int = 0
     stop: int = 0
     rows: int | None = None  # known before reading (Parquet metadata, a DataFrame's slice), else None
+    ident: str = ""  # the source's own name (a file relative to the table), the same on any machine
+    first: int = 0  # the part's first row within that source
 
 
 @dataclass
@@ -98,7 +100,7 @@ class PartedTable:
     frame: object = None  # the pandas DataFrame that "frame" parts slice
     dask_frame: object = None
 
-    def run(self, task, args_of, *, client=None, stage=None, basis_of=None) -> list:
+    def run(self, task, args_of, *, client=None, stage=None, basis_of=None, only=None) -> list:
         """``task(frame_of_part, *args_of(i))`` for every part, results in part order.
 
         With ``stage`` and ``basis_of`` and a keeper installed (:func:`kept_in`,
@@ -108,11 +110,15 @@ class PartedTable:
         """
         keeper = _KEEPER.get() if stage is not None else None
         results: list = [None] * len(self.parts)
-        todo = list(range(len(self.parts)))
+        todo = list(range(len(self.parts))) if only is None else list(only)
+
+        def name(i):  # a part's own name, so that it keeps its results when other files join the table
+            return f"{stage}/{self.parts[i].ident}@{self.parts[i].first}"
+
         if keeper is not None:
             bases = {i: basis_of(i) for i in todo}
             for i in list(todo):
-                kept = keeper.get(f"{stage}/{i:05d}", bases[i])
+                kept = keeper.get(name(i), bases[i])
                 if kept is not None:
                     results[i] = kept
                     todo.remove(i)
@@ -120,15 +126,15 @@ class PartedTable:
         def arrived(i, value):
             results[i] = value
             if keeper is not None:
-                keeper.put(f"{stage}/{i:05d}", bases[i], value)
+                keeper.put(name(i), bases[i], value)
 
         if not todo:
-            return results
+            return results if only is None else [results[i] for i in only]
         if self.dask_frame is None and client is None:
             for i in todo:
                 part = self.parts[i]
                 arrived(i, _on_frame(task, part.label, _load(part, self.frame), args_of(i)))
-            return results
+            return results if only is None else [results[i] for i in only]
         import dask
 
         if self.dask_frame is not None:
@@ -140,14 +146,14 @@ class PartedTable:
         if client is None:  # a Dask DataFrame on dask's local scheduler
             for i, value in zip(todo, dask.compute(*tasks)):
                 arrived(i, value)
-            return results
+            return results if only is None else [results[i] for i in only]
         from distributed import as_completed
 
         futures = client.compute(tasks)
         where = {f.key: i for f, i in zip(futures, todo)}
         for future, value in as_completed(futures, with_results=True):
             arrived(where[future.key], value)
-        return results
+        return results if only is None else [results[i] for i in only]
 
 
 def _current_client():
@@ -247,7 +253,7 @@ def _kind_of(path: str) -> str:
                         f"or .csv files", path=path)
 
 
-def _parquet_parts(path: str, label: str) -> list:
+def _parquet_parts(path: str, label: str, ident: str) -> list:
     import pyarrow.parquet as pq
 
     try:
@@ -261,10 +267,10 @@ def _parquet_parts(path: str, label: str) -> list:
         rows += meta.row_group(g).num_rows
         if rows >= PART_ROWS or g == meta.num_row_groups - 1:
             name = label if len(group) == meta.num_row_groups else f"{label} (rows {first + 1}-{first + rows})"
-            parts.append(Part(name, "parquet", path, tuple(group), rows=rows))
+            parts.append(Part(name, "parquet", path, tuple(group), rows=rows, ident=ident, first=first))
             first += rows
             group, rows = [], 0
-    return parts or [Part(label, "parquet", path, (), rows=0)]
+    return parts or [Part(label, "parquet", path, (), rows=0, ident=ident)]
 
 
 def table_exists(path) -> bool:
@@ -328,14 +334,16 @@ def open_parts(data) -> PartedTable:
     import pandas as pd
 
     if _is_dask_frame(data):
-        parts = [Part(f"partition {i + 1} of {data.npartitions}", "dask") for i in range(data.npartitions)]
+        parts = [Part(f"partition {i + 1} of {data.npartitions}", "dask", ident=f"partition {i}")
+                 for i in range(data.npartitions)]
         return PartedTable(parts, f"a Dask DataFrame in {data.npartitions} partitions", dask_frame=data)
     if isinstance(data, pd.DataFrame):
         n = len(data)
         if n == 0:
             raise InputError(f"the DataFrame has {data.shape[1]} columns but no data rows; pass a table with rows")
         parts = [Part(f"rows {a + 1}-{min(a + PART_ROWS, n)} of the DataFrame", "frame", start=a,
-                      stop=min(a + PART_ROWS, n), rows=min(a + PART_ROWS, n) - a) for a in range(0, n, PART_ROWS)]
+                      stop=min(a + PART_ROWS, n), rows=min(a + PART_ROWS, n) - a, first=a)
+                 for a in range(0, n, PART_ROWS)]
         return PartedTable(parts, "a DataFrame", frame=data)
     path = os.fspath(data)
     if not any(ch in path for ch in "*?[") and not os.path.exists(path):
@@ -350,7 +358,9 @@ def open_parts(data) -> PartedTable:
     for f in files:
         shown = os.path.join(os.path.basename(os.path.normpath(root)), os.path.relpath(f, root)) if root else f
         label = f"file {shown!r}"
-        parts.extend(_parquet_parts(f, label) if _kind_of(f) == "parquet" else [Part(label, "csv", f)])
+        ident = os.path.relpath(f, root if root else os.path.dirname(path) or ".").replace(os.sep, "/")
+        parts.extend(_parquet_parts(f, label, ident) if _kind_of(f) == "parquet"
+                     else [Part(label, "csv", f, ident=ident)])
     return PartedTable(parts, path if len(files) == 1 else f"{path} ({len(files)} files)", files=tuple(files))
 
 
@@ -404,6 +414,7 @@ def _survey(frame, offset=None, take=None):
                 local.update(first for _, first in info["levels"].values())
         rows = np.union1d(np.asarray(take, dtype=np.int64) - offset, np.fromiter(local, np.int64, len(local)))
         out["rows"] = _take(frame, rows + offset, offset)
+        out["take"] = np.asarray(take, dtype=np.int64)
     return out
 
 
@@ -539,14 +550,28 @@ def _repeat_keys(seed: int, repeats: int) -> list[int]:
     return [int(c.generate_state(1, np.uint64)[0]) for c in spawn_seeds(seed, repeats)]
 
 
-def fold_labels(positions, scheme, n_total: int, key: int) -> np.ndarray:
-    """The fold of each row of the table, from its position alone.
+def row_ids(part, rows) -> np.ndarray:
+    """The identity of rows of a part for the fold hash: its source's name hashed, plus the row within it.
 
-    Shuffled K-fold: ``splitmix64(position + key) mod K``, where ``key``
-    comes from the repetition's child of ``SeedSequence(seed)`` (so any
-    worker, reading any part, assigns a row to the same fold; fold sizes are
-    then binomial about n/K, not equal).  Blocked (time-ordered) K-fold: the
-    contiguous blocks of ``numpy.array_split``, as in memory.
+    A row keeps its identity (and so its fold) whichever machine reads it,
+    however the table is cut into parts, and when other files join the table.
+    """
+    import hashlib
+
+    base = int.from_bytes(hashlib.sha256(part.ident.encode("utf-8")).digest()[:8], "little")
+    with np.errstate(over="ignore"):
+        return np.uint64(base) + np.uint64(part.first) + np.asarray(rows, dtype=np.uint64)
+
+
+def fold_labels(positions, scheme, n_total: int, key: int) -> np.ndarray:
+    """The fold of each row, from its identity (shuffled) or its position in the table (blocked).
+
+    Shuffled K-fold: ``splitmix64(id + key) mod K`` for the row's
+    :func:`row_ids`, where ``key`` comes from the repetition's child of
+    ``SeedSequence(seed)`` (so any worker, reading any part, assigns a row
+    to the same fold; fold sizes are then binomial about n/K, not equal).
+    Blocked (time-ordered) K-fold: ``positions`` are places in the table,
+    cut into the contiguous blocks of ``numpy.array_split``, as in memory.
     """
     positions = np.asarray(positions, dtype=np.uint64)
     if scheme.kind == "blocked":
@@ -556,16 +581,18 @@ def fold_labels(positions, scheme, n_total: int, key: int) -> np.ndarray:
         return (_splitmix(positions + np.uint64(key)) % np.uint64(scheme.k)).astype(np.int64)
 
 
-def _part_moments(frame, offset, light, pool, weights, schemes, n_total):
+def _part_moments(frame, offset, light, pool, weights, schemes, n_total, part):
     """Moments of one part's rows and of each fold's rows among them."""
     from .moments import _candidate_chunks, _chunk_moments, _empty
 
     keep = np.ones(len(frame), dtype=bool)
     for c in pool:
         keep &= ~frame[c].isna().to_numpy()
-    positions = offset + np.flatnonzero(keep)
+    local = np.flatnonzero(keep)
+    positions, ids = offset + local, row_ids(part, local)
     frame = frame.loc[keep].reset_index(drop=True) if not keep.all() else frame
     chunk = _candidate_chunks(light, weights)
+    names = tuple(light.column_names) + (light.response,)
     width = len(light.column_names) + 1
     total = _empty(width)
     folds = [[_empty(width) for _ in range(scheme.k)] for scheme, _ in schemes]
@@ -576,11 +603,11 @@ def _part_moments(frame, offset, light, pool, weights, schemes, n_total):
         where = positions[a:a + SLICE_ROWS]
         first = int(where[0]) if len(where) else offset
         for s, (scheme, key) in enumerate(schemes):
-            labels = fold_labels(where, scheme, n_total, key)
+            labels = fold_labels(where if scheme.kind == "blocked" else ids[a:a + SLICE_ROWS], scheme, n_total, key)
             pieces = []
             for j in range(scheme.k):
                 rows = labels == j
-                pieces.append(_chunk_moments(X[rows], y[rows], None if w is None else w[rows], first, None))
+                pieces.append(_chunk_moments(X[rows], y[rows], None if w is None else w[rows], first, names))
                 folds[s][j] = folds[s][j] + pieces[-1]
             if s == 0:  # the folds of one repetition partition the rows: their sum is the slice's moments
                 piece = pieces[0]
@@ -588,7 +615,7 @@ def _part_moments(frame, offset, light, pool, weights, schemes, n_total):
                     piece = piece + other
                 total = total + piece
         if not schemes:
-            total = total + _chunk_moments(X, y, w, first, None)
+            total = total + _chunk_moments(X, y, w, first, names)
     return total, folds, int((~keep).sum())
 
 
@@ -767,6 +794,13 @@ def _client(info):
 def prepare_in_parts(data, s, *, build_options, check_folds):
     """Intake, candidates and moments of a table read in parts.
 
+    Under a keeper (:func:`kept_in`, a job's run store) the candidates, the
+    checks' sample and each part's survey and moments are kept, and taken
+    back when the settings are the same: a resumed job rereads only the
+    parts it had not finished, and a job whose table gained files
+    (:func:`selectkit.jobs.extend_job`) reads only those, keeping the forms
+    chosen before, so that the moments of the old rows stay valid.
+
     Returns
     -------
     (Dataset, CandidateSet, Moments)
@@ -774,10 +808,6 @@ def prepare_in_parts(data, s, *, build_options, check_folds):
         checks and figures) and carry a :class:`PartsInfo`; the moments are
         those of every row used.
     """
-    import pandas as pd
-
-    from . import candidates as _candidates
-    from . import data as _data
     from .data import Note
     from .searches.crossval import _as_scheme, _terms_only
 
@@ -792,69 +822,40 @@ def prepare_in_parts(data, s, *, build_options, check_folds):
                           f"{spell('read_in_parts', 'no')}")
     uses_dask = s["backend"] == "dask" or s["scheduler"] is not None
     table = open_parts(data)
-    info_stub = PartsInfo("", (), 0, 0, 0, 0, {}, table=table, scheduler=s["scheduler"], uses_dask=uses_dask)
-    with _client(info_stub) as client:
-        known = [part.rows for part in table.parts]
-        if all(r is not None for r in known):  # rows known first: the survey also takes the sample
-            starts = np.concatenate([[0], np.cumsum(known)]).astype(np.int64)
-            random = _random_positions(int(starts[-1]), s["check_sample_rows"], s["seed"])
-            which = np.searchsorted(starts, random, side="right") - 1
-            surveys = table.run(_survey, lambda i: (int(starts[i]), random[which == i]), client=client,
-                                stage="part-survey", basis_of=lambda i: _basis(table.parts[i], random[which == i]))
-            merged, offsets = _merge_surveys(table, surveys)
+    keeper = _KEEPER.get()
+    setup_basis = _basis(sorted((k, repr(v)) for k, v in s.items() if k in _SETUP_SETTINGS), build_options)
+    kept = keeper.get("parts-setup", setup_basis) if keeper is not None else None
+    stub = PartsInfo("", (), 0, 0, 0, 0, {}, table=table, scheduler=s["scheduler"], uses_dask=uses_dask)
+    with _client(stub) as client:
+        if kept is None:
+            surveys, merged, offsets, dataset, cands, sample_rows = _survey_and_sample(table, s, build_options,
+                                                                                     client)
             n_total = int(offsets[-1])
-            if not np.array_equal(offsets, starts):
-                raise DataFileError(f"the parts of {table.description} hold other row counts than their metadata "
-                                    f"says; check that no file is being written")
-            wanted = _sample_positions(n_total, s["check_sample_rows"], s["seed"], merged)[1]
-            pieces = [sv["rows"].loc[sv["rows"].index.isin(wanted)] for sv in surveys]
+            if check_folds:
+                from .api import _check_folds_fit
+
+                _check_folds_fit(s["folds"], s["honest_folds"], n_total, s["seed"])
+            in_use = (s["response"],) + tuple(dataset.predictors) + ((s["row_weights"],) if s["row_weights"] else ())
+            light = _terms_only(cands)
         else:
             surveys = table.run(_survey, lambda i: (), client=client, stage="part-survey",
                                 basis_of=lambda i: _basis(table.parts[i]))
             merged, offsets = _merge_surveys(table, surveys)
             n_total = int(offsets[-1])
-            random, wanted = _sample_positions(n_total, s["check_sample_rows"], s["seed"], merged)
-            which = np.searchsorted(offsets, wanted, side="right") - 1
-            by_part = [wanted[which == p] for p in range(len(table.parts))]
-            pieces = table.run(_take, lambda i: (by_part[i], int(offsets[i])), client=client)
-        surveys = [{k: v for k, v in sv.items() if k != "rows"} for sv in surveys]  # kept ones stay whole
-        sample = pd.concat([p for p in pieces if len(p)], axis=0)
-        positions = sample.index.to_numpy(dtype=np.int64)
-        sample = sample.reset_index(drop=True)
-
-        # intake on the sample: under "refuse" first with "drop", to learn the columns in use before
-        # the exact refusals name the part and row of a missing value
-        policy = s["incomplete_rows"]
-        prepare_kwargs = dict(
-            response=s["response"], predictors=list(s["predictors"]) if s["predictors"] else None,
-            forced=list(s["always_include"]), exclude=list(s["leave_out"]), weights=s["row_weights"],
-            keep_identifiers=list(s["keep_id_columns"]))
-        try:
-            dataset = _data.prepare(sample, missing="drop", **prepare_kwargs)
-        except InputError:
+            dataset, cands, in_use = kept["dataset"], kept["candidates"], tuple(kept["in_use"])
             _exact_refusals(table, offsets, merged, response=s["response"], weights=s["row_weights"],
-                            pool=[c for c in merged if c != s["response"] and c != s["row_weights"]
-                                  and c not in s["leave_out"]], missing_policy=policy)
-            raise
-        pool = tuple(dataset.predictors)
-        _exact_refusals(table, offsets, merged, response=s["response"], weights=s["row_weights"], pool=pool,
-                        missing_policy=policy)
-        dataset = _with_full_levels(dataset, merged)
-        if check_folds:
-            from .api import _check_folds_fit
-
-            _check_folds_fit(s["folds"], s["honest_folds"], n_total, s["seed"])
-        cands = _candidates.build_candidates(dataset, **build_options)
-
-        in_use = (s["response"],) + pool + ((s["row_weights"],) if s["row_weights"] else ())
-        light = _terms_only(cands)
-        keys = _repeat_keys(s["seed"], scheme.repeats or 1)
-        schemes = [(scheme, key) for key in keys]
+                            pool=in_use[1:len(in_use) - (1 if s["row_weights"] else 0)],
+                            missing_policy=s["incomplete_rows"])
+            light = _terms_only(cands)
+        schemes = [(scheme, key) for key in _repeat_keys(s["seed"], scheme.repeats or 1)]
         definition = _basis([(x.name, x.transform, x.params, x.columns, x.source) for x in light.terms],
-                            light.response_transform, in_use, s["row_weights"], schemes, n_total)
+                            light.response_transform, in_use, s["row_weights"], schemes)
+        blocked = scheme.kind == "blocked"  # then a part's folds depend on its place in the table
         outcomes = table.run(_part_moments, lambda i: (int(offsets[i]), light, in_use, s["row_weights"], schemes,
-                                                       n_total), client=client, stage="part-moments",
-                             basis_of=lambda i: _basis(table.parts[i], int(offsets[i]), definition))
+                                                       n_total, table.parts[i]), client=client,
+                             stage="part-moments",
+                             basis_of=lambda i: _basis(table.parts[i], definition,
+                                                       (int(offsets[i]), n_total) if blocked else None))
     moments = outcomes[0][0]
     fold_tests = [list(f) for f in outcomes[0][1]]
     for total, folds, _ in outcomes[1:]:
@@ -865,35 +866,116 @@ def prepare_in_parts(data, s, *, build_options, check_folds):
     if moments.n == 0:
         raise InputError(f"every one of the {n_total} rows has a missing value in a column in use; no rows are left")
 
-    # the checks' rows: the random sample, without the rows added for the extremes and the levels
-    global_rows = positions[np.asarray(dataset.source_rows)]
-    chosen = np.flatnonzero(np.isin(global_rows, random))
-    notes = list(dataset.report.notes)
-    notes = [n for n in notes if not (n.kind == "dropped" and n.column is None and "missing value" in n.message)]
+    if kept is None:
+        notes = [n for n in dataset.report.notes
+                 if not (n.kind == "dropped" and n.column is None and "missing value" in n.message)]
+        dataset, cands = _rows_of(dataset, cands, sample_rows, tuple(notes))
+        if keeper is not None:
+            keeper.put("parts-setup", setup_basis, {"dataset": dataset, "candidates": cands, "in_use": list(in_use),
+                                                    "files": list(table.files)})
+    notes = [n for n in dataset.report.notes if not n.message.startswith(_PARTS_NOTE_START)]
     if dropped:
         notes.append(Note(None, "dropped", f"dropped {dropped} of {n_total} rows with a missing value in a column "
                                            f"in use"))
-    sampled = len(chosen) < dataset.n
-    notes.append(Note(None, "info", _parts_sentence(table, n_total, moments.n, len(chosen), sampled)))
+    sampled = dataset.n < moments.n
+    notes.append(Note(None, "info", _parts_sentence(table, n_total, moments.n, dataset.n, sampled)))
+    if kept is not None:
+        added = [f for f in table.files if f not in set(kept["files"])]
+        if added:
+            notes.append(Note(None, "info", f"{_PARTS_NOTE_START}{len(added)} file(s) joined the table since the "
+                                            f"forms were chosen and were added to the moments without rereading "
+                                            f"the others: {', '.join(map(repr, added[:10]))}"
+                                            f"{' and more' if len(added) > 10 else ''}; the forms and the checks' "
+                                            f"sample are those of the earlier files"))
     info = PartsInfo(
         description=table.description, files=table.files, n_parts=len(table.parts), n_rows=n_total,
-        n_used=int(moments.n), sample_rows=len(chosen),
+        n_used=int(moments.n), sample_rows=dataset.n,
         fold_tests={(scheme.kind, scheme.k, scheme.repeats, int(s["seed"])): fold_tests},
         table=table, light=light, pool=in_use, weights=s["row_weights"], scheduler=s["scheduler"],
         uses_dask=uses_dask)
     report = replace(dataset.report, source=table.description, n_rows_read=n_total, n_rows_used=int(moments.n),
                      notes=tuple(notes), dropped_rows=())
-    dataset = _rows_of(dataset, chosen, global_rows[chosen], report)
-    cands = _candidate_rows(cands, chosen, dataset, info)
-    return dataset, cands, moments
+    dataset = replace(dataset, report=report)
+    return dataset, replace(cands, dataset=dataset, parts=info), moments
+
+
+#: The settings the candidates and the checks' sample depend on (a kept setup is reused only when they match).
+_SETUP_SETTINGS = ("response", "predictors", "always_include", "leave_out", "row_weights", "incomplete_rows",
+                   "keep_id_columns", "check_sample_rows", "seed")
+_PARTS_NOTE_START = "the table ("
+
+
+def _survey_and_sample(table, s, build_options, client):
+    """First passes: the survey (taking the sample too when the row counts are known), the exact
+    refusals, intake and candidates on the sample; returns the sample's rows for the checks."""
+    import pandas as pd
+
+    from . import candidates as _candidates
+    from . import data as _data
+
+    known = [part.rows for part in table.parts]
+    basis_of = lambda i: _basis(table.parts[i])  # noqa: E731
+    if all(r is not None for r in known):  # rows known first: the survey also takes the sample
+        starts = np.concatenate([[0], np.cumsum(known)]).astype(np.int64)
+        random = _random_positions(int(starts[-1]), s["check_sample_rows"], s["seed"])
+        which = np.searchsorted(starts, random, side="right") - 1
+        takes = [random[which == i] for i in range(len(table.parts))]
+        surveys = table.run(_survey, lambda i: (int(starts[i]), takes[i]), client=client, stage="part-survey",
+                            basis_of=basis_of)
+        merged, offsets = _merge_surveys(table, surveys)
+        n_total = int(offsets[-1])
+        if not np.array_equal(offsets, starts):
+            raise DataFileError(f"the parts of {table.description} hold other row counts than their metadata "
+                                f"says; check that no file is being written")
+        wanted = _sample_positions(n_total, s["check_sample_rows"], s["seed"], merged)[1]
+        stale = [i for i, sv in enumerate(surveys) if "rows" not in sv or not np.array_equal(sv["take"], takes[i])]
+        retaken = dict(zip(stale, table.run(_take, lambda i: (wanted[which == i], int(starts[i])), client=client,
+                                            only=stale))) if stale else {}
+        pieces = [retaken[i] if i in retaken else sv["rows"].loc[sv["rows"].index.isin(wanted)]
+                  for i, sv in enumerate(surveys)]
+    else:
+        surveys = table.run(_survey, lambda i: (), client=client, stage="part-survey", basis_of=basis_of)
+        merged, offsets = _merge_surveys(table, surveys)
+        n_total = int(offsets[-1])
+        random, wanted = _sample_positions(n_total, s["check_sample_rows"], s["seed"], merged)
+        which = np.searchsorted(offsets, wanted, side="right") - 1
+        by_part = [wanted[which == p] for p in range(len(table.parts))]
+        pieces = table.run(_take, lambda i: (by_part[i], int(offsets[i])), client=client)
+    surveys = [{k: v for k, v in sv.items() if k not in ("rows", "take")} for sv in surveys]
+    sample = pd.concat([p for p in pieces if len(p)], axis=0)
+    positions = sample.index.to_numpy(dtype=np.int64)
+    sample = sample.reset_index(drop=True)
+
+    # intake on the sample: under "refuse" first with "drop", to learn the columns in use before
+    # the exact refusals name the part and row of a missing value
+    policy = s["incomplete_rows"]
+    prepare_kwargs = dict(
+        response=s["response"], predictors=list(s["predictors"]) if s["predictors"] else None,
+        forced=list(s["always_include"]), exclude=list(s["leave_out"]), weights=s["row_weights"],
+        keep_identifiers=list(s["keep_id_columns"]))
+    try:
+        dataset = _data.prepare(sample, missing="drop", **prepare_kwargs)
+    except InputError:
+        _exact_refusals(table, offsets, merged, response=s["response"], weights=s["row_weights"],
+                        pool=[c for c in merged if c != s["response"] and c != s["row_weights"]
+                              and c not in s["leave_out"]], missing_policy=policy)
+        raise
+    _exact_refusals(table, offsets, merged, response=s["response"], weights=s["row_weights"],
+                    pool=tuple(dataset.predictors), missing_policy=policy)
+    dataset = _with_full_levels(dataset, merged)
+    cands = _candidates.build_candidates(dataset, **build_options)
+    # the checks' rows: the random sample, without the rows added for the extremes and the levels
+    global_rows = positions[np.asarray(dataset.source_rows)]
+    chosen = np.flatnonzero(np.isin(global_rows, random))
+    return surveys, merged, offsets, dataset, cands, (chosen, global_rows[chosen])
 
 
 def _parts_sentence(table, n_total, n_used, n_sample, sampled) -> str:
     where = f"{table.description}, read in {len(table.parts)} part{'s' if len(table.parts) != 1 else ''}"
     if not sampled:
-        return (f"the table ({where}) was read part by part: {n_used} of {n_total} rows used; every row is also "
+        return (f"{_PARTS_NOTE_START}{where}) was read part by part: {n_used} of {n_total} rows used; every row is also "
                 f"in the checks and figures")
-    return (f"the table ({where}) was read part by part: coefficients, criteria, CV errors and PRESS use all "
+    return (f"{_PARTS_NOTE_START}{where}) was read part by part: coefficients, criteria, CV errors and PRESS use all "
             f"{n_used} rows used; the forms' fitted powers, the twin, VIF and curvature screens, the checks "
             f"and the figures use a seeded sample of {n_sample} rows (plus, for the forms, the rows holding each "
             f"column's extremes and each level)")
@@ -930,7 +1012,9 @@ def _with_full_levels(dataset, merged):
     return replace(dataset, frame=frame, report=replace(dataset.report, notes=tuple(notes)))
 
 
-def _rows_of(dataset, rows, source_rows, report):
+def _rows_of(dataset, cands, sample_rows, notes):
+    """The dataset and candidates on the checks' rows only (``sample_rows``: their places here and in the table)."""
+    rows, source_rows = sample_rows
     source_rows = np.asarray(source_rows, dtype=np.int64)
     source_rows.flags.writeable = False
     y = np.array(dataset.y[rows])
@@ -939,14 +1023,12 @@ def _rows_of(dataset, rows, source_rows, report):
     if dataset.weights is not None:
         w = np.array(dataset.weights[rows])
         w.flags.writeable = False
-    return replace(dataset, y=y, weights=w, frame=dataset.frame.iloc[rows].reset_index(drop=True),
-                   source_rows=source_rows, report=report,
-                   identifiers=None if dataset.identifiers is None
-                   else dataset.identifiers.iloc[rows].reset_index(drop=True))
-
-
-def _candidate_rows(cands, rows, dataset, info):
-    return replace(cands, matrix=np.ascontiguousarray(cands.matrix[rows]), y=np.array(cands.y[rows]),
-                   weights=None if cands.weights is None else np.array(cands.weights[rows]),
-                   y_original=None if cands.y_original is None else np.array(cands.y_original[rows]),
-                   dataset=dataset, parts=info)
+    dataset = replace(dataset, y=y, weights=w, frame=dataset.frame.iloc[rows].reset_index(drop=True),
+                      source_rows=source_rows, report=replace(dataset.report, notes=notes),
+                      identifiers=None if dataset.identifiers is None
+                      else dataset.identifiers.iloc[rows].reset_index(drop=True))
+    cands = replace(cands, matrix=np.ascontiguousarray(cands.matrix[rows]), y=np.array(cands.y[rows]),
+                    weights=None if cands.weights is None else np.array(cands.weights[rows]),
+                    y_original=None if cands.y_original is None else np.array(cands.y_original[rows]),
+                    dataset=dataset, parts=None)
+    return dataset, cands

@@ -81,10 +81,13 @@ def test_press_of_a_table_in_parts_equals_a_leave_one_out_loop(pair, small):
 
 
 def test_cv_errors_of_a_table_in_parts_are_those_of_its_hashed_folds(pair, small):
-    frame, _ = small
+    frame, folder = small
     parted = pair[1]
-    labels = parts.fold_labels(np.arange(len(frame)), _scheme(5), len(frame), parts._repeat_keys(0, 1)[0])
-    assert set(np.bincount(labels)) and len(np.bincount(labels)) == 5
+    key = parts._repeat_keys(0, 1)[0]  # seed 0, one repetition
+    table = parts.open_parts(folder)  # each row's identity: its file and its row there
+    labels = np.concatenate([parts.fold_labels(parts.row_ids(part, np.arange(part.rows)), _scheme(5), len(frame),
+                                               key) for part in table.parts])
+    assert len(labels) == len(frame) and len(np.bincount(labels)) == 5
     cols = [c for i in parted._subset(0) for c in parted.candidates.terms[i].columns]
     A = np.column_stack([np.ones(len(frame)), parted.candidates.transform(frame)[:, cols]])
     y = frame[RESPONSE].to_numpy()
@@ -327,3 +330,42 @@ def test_a_killed_job_on_a_folder_resumes_without_rereading_finished_parts(small
     shortlist = pd.read_csv(tmp_path / "results" / "shortlist.csv")
     np.testing.assert_allclose(shortlist["rss"].to_numpy(), whole.shortlist.rss.to_numpy()[:len(shortlist)],
                                rtol=1e-8)  # the CSV holds 10 significant digits
+
+
+def test_a_job_extended_with_new_files_reads_only_them_and_ranks_on_every_row(tmp_path, monkeypatch):
+    from selectkit import cli
+    from selectkit.jobs import extend_job, load_job, run_job
+
+    frame = _table(4000, seed=6)
+    first, later = frame.iloc[:3000], frame.iloc[3000:]
+    _write_parts(first, tmp_path / "bays", 3)
+    job = _job(tmp_path, "bays")
+    before = run_job(load_job(job))
+    assert before.complete
+    with pytest.raises(selectkit.errors.JobFileError, match="no file joined the table"):
+        extend_job(tmp_path / "results")
+    for i, rows in enumerate(np.array_split(np.arange(len(later)), 2)):
+        later.iloc[rows].to_parquet(tmp_path / "bays" / f"part-{10 + i:02d}.parquet", index=False)
+    read = []
+    load = parts._load
+    monkeypatch.setattr(parts, "_load", lambda part, frame: read.append(part.ident) or load(part, frame))
+    assert cli.main(["job", "extend", str(tmp_path / "results"), "--quiet"]) == 0
+    # survey and moments: the new files only; then every file once for PRESS
+    assert sorted(read[:4]) == ["part-10.parquet", "part-10.parquet", "part-11.parquet", "part-11.parquet"]
+    assert len(read) == 4 + 5
+    shortlist = pd.read_csv(tmp_path / "results" / "shortlist.csv")
+    assert shortlist["terms"].iloc[0] == "log(light) + co2 + house"  # the invented truth
+    # its rss on all 4000 rows, fitted by statsmodels on a design written out here (no fitted power in it)
+    import statsmodels.api as sm
+
+    design = pd.get_dummies(frame["house"], drop_first=False, dtype=float).drop(columns="north")
+    design.insert(0, "co2", frame["co2"])
+    design.insert(0, "log_light", np.log(frame["light"]))
+    fit = sm.OLS(frame[RESPONSE], sm.add_constant(design)).fit()
+    assert shortlist["rss"].iloc[0] == pytest.approx(fit.ssr, rel=1e-8)
+    report = (tmp_path / "results" / "report.html").read_text()
+    assert "part-10.parquet" in report and "joined the table" in report
+    # a file read before that changes is refused: extending only adds rows
+    first.iloc[:10].to_parquet(tmp_path / "bays" / "part-00.parquet", index=False)
+    with pytest.raises(selectkit.errors.StoreError, match="changed or went away"):
+        extend_job(tmp_path / "results")

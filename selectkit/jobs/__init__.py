@@ -13,7 +13,7 @@ run.  See ``docs/overnight-jobs.md``.
 """
 
 from .progress import JobProgress
-from .runner import JobOutcome, resume_job, run_job
+from .runner import JobOutcome, extend_job, resume_job, run_job
 from .spec import JobSpec, load_job, parse_duration, parse_job
 from .starter import starter_job
 from .status import StoreStatus, store_status
@@ -21,6 +21,7 @@ from .store import STORE_NAME, RunStore, data_fingerprint
 
 __all__ = [
     "JobSpec",
+    "extend_job",
     "load_job",
     "parse_job",
     "parse_duration",

@@ -260,6 +260,62 @@ def resume_job(folder_or_store, *, progress=None, **run_settings) -> JobOutcome:
     return _run(spec, resume=True, progress=progress, engine=_API)
 
 
+def extend_job(folder_or_store, *, progress=None, **run_settings) -> JobOutcome:
+    """Add the rows of files that joined a job's table (a folder or a glob) since its last run, and rank again.
+
+    Moments are additive: the files read before are not read again (their
+    surveys and moments are in the run store), and the forms chosen before
+    are kept, so that those moments stay valid.  Only the new files are read
+    (their values are checked against the chosen forms: a value outside a
+    form's domain, or a level not seen before, stops the run with the file
+    and the fix); the searches then run again on all rows, and the report
+    names the files that went in.
+
+    Parameters
+    ----------
+    folder_or_store, progress, **run_settings
+        As :func:`resume_job`.
+
+    Raises
+    ------
+    StoreError
+        When a file read before has changed or gone (extending only adds
+        rows), or the table is one file.
+    JobFileError
+        When no file joined the table.
+    """
+    from ..parts import is_parted_source
+
+    spec = _spec_from_store(folder_or_store)
+    if run_settings:
+        spec = _with_run_settings(spec, run_settings)
+    if not is_parted_source(spec.table):
+        raise StoreError(f"job {spec.name!r} reads one data file ({str(spec.table)!r}); extending adds the files "
+                         f"that join a table kept as a folder or a glob of files — start afresh for a new file")
+    path = find_store(folder_or_store)
+    with RunStore.create_or_open(path.parent) as store:
+        then = (store.get("data") or {}).get("files") or {}
+        if not then:
+            raise StoreError(f"the run store {str(path)!r} does not list the files of its table (it was made "
+                             f"before tables in parts were kept file by file); start afresh")
+        now = data_fingerprint(spec.table)
+        changed = [f for f, mark in then.items() if now["files"].get(f) != mark]
+        if changed:
+            gone = [f for f in changed if f not in now["files"]]
+            raise StoreError(f"{len(changed)} file(s) read before changed or went away since the last run "
+                             f"({', '.join(map(repr, changed[:5]))}{' gone' if gone else ''}); extending only "
+                             f"adds files: put them back, or start afresh (selectkit job run --fresh)")
+        added = [f for f in now["files"] if f not in then]
+        if not added:
+            raise JobFileError(f"no file joined the table of job {spec.name!r} since its last run "
+                               f"({len(then)} files); nothing to extend")
+        store.forget_searches()
+        store.set_many({"data": {"path": str(spec.table), **now}})
+        store.log(f"extending with {len(added)} new file(s): {', '.join(added[:10])}"
+                  f"{' and more' if len(added) > 10 else ''}")
+    return _run(spec, resume=True, progress=progress, engine=_API)
+
+
 def _with_run_settings(spec: JobSpec, run_settings: dict) -> JobSpec:
     from .. import settings
 

@@ -147,24 +147,31 @@ def data_fingerprint(path) -> dict:
     """SHA-256 of a file's bytes and its size: ``{"sha256": ..., "size": ...}``.
 
     For a table in several files (a folder or a glob), the digest runs over
-    each file's name relative to the table and its bytes, in name order, and
-    the size is their total: adding, removing, renaming or changing a file
-    changes it.
+    each file's path and its bytes, in name order, and the size is their
+    total: adding, removing, renaming or changing a file changes it; then
+    ``files`` also gives each file's own SHA-256 and size.
     """
     from ..parts import _files_of, is_parted_source
 
     digest = hashlib.sha256()
     size = 0
-    files = _files_of(os.fspath(path)) if is_parted_source(path) else [os.fspath(path)]
-    root = os.fspath(path) if os.path.isdir(os.fspath(path)) else os.path.dirname(files[0])
+    parted = is_parted_source(path)
+    files = _files_of(os.fspath(path)) if parted else [os.fspath(path)]
+    each = {}
     for name in files:
-        if len(files) > 1 or name != os.fspath(path):
-            digest.update(os.path.relpath(name, root).encode("utf-8") + b"\0")
+        one = hashlib.sha256()
+        if parted:
+            digest.update(name.encode("utf-8") + b"\0")
         with open(name, "rb") as handle:
             for block in iter(lambda: handle.read(1 << 20), b""):
                 digest.update(block)
+                one.update(block)
                 size += len(block)
-    return {"sha256": digest.hexdigest(), "size": size}
+        each[name] = [one.hexdigest(), os.path.getsize(name)]
+    out = {"sha256": digest.hexdigest(), "size": size}
+    if parted:
+        out["files"] = each  # each file's own SHA-256 and size: what extending a job compares
+    return out
 
 
 def find_store(folder_or_store) -> Path:
@@ -473,6 +480,15 @@ class RunStore:
             self._db.execute("DELETE FROM finishing")
             self._db.execute("DELETE FROM about WHERE name != 'schema_version'")
             self._db.execute("INSERT OR REPLACE INTO about VALUES ('created_at', ?)", (json.dumps(time.time()),))
+
+    def forget_searches(self) -> None:
+        """Forget the units, pooled results, shortlist and ranking, keeping each part's survey and moments and
+        the candidates (``part-*`` and ``parts-setup`` of the finishing table): what extending a job needs."""
+        with self._transaction():
+            for table in ("units", "pooled", "shortlist"):
+                self._db.execute(f"DELETE FROM {table}")
+            self._db.execute(_FINISHING_TABLE)
+            self._db.execute("DELETE FROM finishing WHERE stage NOT LIKE 'part-%' AND stage != 'parts-setup'")
 
     # ------------------------------------------------------------------ results
     def record_pooled(self, founds) -> None:
