@@ -31,11 +31,11 @@ Rows
    workers), ``time.perf_counter`` around the call only (imports and the
    client's connection are not counted).  For information, the workers'
    compute seconds of the search are summed by task name from the Dask task
-   stream, and those of each pass over the parts (one task per part).  Baseline, in this
-   same run, on the same files, on a cluster of its own:
+   stream, and those of each pass over the parts (one task per part).
+   Baseline, in this same run, on the same files, on a cluster of its own:
    ``dask.dataframe.read_parquet(folder).sum().compute()`` — one plain pass
-   over every value, the least a user's own Dask job on the table costs.
-   Goal: at most 2x the baseline.
+   over every value, about the floor of any Dask job that reads the whole
+   table.  Goal: at most 2x the baseline.
 2. **result.write(out_folder)**, timed on its own after the search, for
    information (no goal).
 3. **Peak memory per worker**: ``client.run(lambda:

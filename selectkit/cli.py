@@ -283,7 +283,11 @@ def _run_search(args) -> int:
     for refusal in setup.candidates.refused:
         if refusal.form == "every form":  # a whole variable left out of the search: say it here, not only in forms
             _say(f"note: {refusal.family} is not in the search: {refusal.reason}", quiet=args.quiet)
-    _say(f"read {setup.dataset.n} rows; {len(setup.candidates.terms)} candidate terms from "
+    parts = setup.candidates.parts
+    rows = (f"{setup.dataset.n} rows" if parts is None else
+            f"{parts.n_rows} rows in {parts.n_parts} part{'s' if parts.n_parts != 1 else ''}"
+            + (f" (checks on a sample of {parts.sample_rows})" if parts.sample_rows < parts.n_used else ""))
+    _say(f"read {rows}; {len(setup.candidates.terms)} candidate terms from "
          f"{len(setup.candidates.families)} variables; running: {', '.join(r.name for r in setup.runs)}",
          quiet=args.quiet)
     result, paths = _search_and_write(setup, out=s["output"], workers=s["workers"], backend=s["backend"],

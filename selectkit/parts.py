@@ -831,10 +831,9 @@ def prepare_in_parts(data, s, *, build_options, check_folds):
             surveys, merged, offsets, dataset, cands, sample_rows = _survey_and_sample(table, s, build_options,
                                                                                      client)
             n_total = int(offsets[-1])
-            if check_folds:
-                from .api import _check_folds_fit
-
-                _check_folds_fit(s["folds"], s["honest_folds"], n_total, s["seed"])
+            if check_folds and scheme.k > n_total:  # (the fold draw itself, of every row, is never made here)
+                raise InputError(f"{scheme.k} folds need at least {scheme.k} rows; the table has {n_total}; "
+                                 f"use fewer {spell('folds')}")
             in_use = (s["response"],) + tuple(dataset.predictors) + ((s["row_weights"],) if s["row_weights"] else ())
             light = _terms_only(cands)
         else:

@@ -57,7 +57,7 @@ def _parsers(parser):
 
 def test_every_parser_and_subparser_refuses_abbreviations():
     parsers = list(_parsers(build_parser()))
-    assert len(parsers) == 9  # selectkit, search, forms, demo, job, job new/run/resume/status
+    assert len(parsers) == 10  # selectkit, search, forms, demo, job, job new/run/resume/extend/status
     assert all(p.allow_abbrev is False for p in parsers)
 
 

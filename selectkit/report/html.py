@@ -344,8 +344,9 @@ def _model_section(position, fit, diagnosis, row, candidates=None, *, figures=Tr
                                                     "ci_high": "95% high"})
     robust = getattr(diagnosis, "robust_se", None) if diagnosis is not None else None
     spread = next((c for c in diagnosis.checks if c.name == "breusch_pagan"), None) if diagnosis is not None else None
+    sampled = diagnosis is not None and diagnosis.n < fit.n  # a table read in parts: checks on its sample
     if robust is not None and spread is not None and spread.level not in ("fine", None, "not assessed") \
-            and len(robust) == len(coefficients):
+            and len(robust) == len(coefficients) and not sampled:
         # the spread of the errors changes: intervals from the HC3 standard errors (MacKinnon & White 1985)
         from ..diagnostics import robust_intervals
 
@@ -354,7 +355,15 @@ def _model_section(position, fit, diagnosis, row, candidates=None, *, figures=Tr
     parts.append('<p class="note">The intervals and p-values treat this model as chosen in advance; '
                  "because the data chose it, they are optimistic.</p>")
     if diagnosis is not None:
-        parts.append("<h3>Assumption checks</h3>" + _checks_table(diagnosis))
+        parts.append("<h3>Assumption checks</h3>")
+        if sampled:
+            parts.append(f'<p class="note">The table was read in parts: these checks, the rows named and the '
+                         f'figures use a seeded sample of {diagnosis.n:,} of its {fit.n:,} rows, refitted there; '
+                         f'the coefficients above use every row'
+                         + (" (HC3 intervals, which need every row, are not shown)" if robust is not None
+                            and spread is not None and spread.level not in ("fine", None, "not assessed") else "")
+                         + '.</p>')
+        parts.append(_checks_table(diagnosis))
         if len(diagnosis.flagged_rows):
             # The diagnosis keeps every row above a screening cut-off, largest Cook's distance first;
             # the page shows the first ten (the screening cut-offs flag about 5 % of clean rows).

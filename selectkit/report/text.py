@@ -136,7 +136,9 @@ def summary(*, shortlist, settings=None, founds=(), diagnoses=(), paths=None, to
         lines.append("Best model: " + shortlist.fits[0].equation)
     if diagnoses:
         best = diagnoses[0]
-        lines.append("Checks of the best model:")
+        fitted_on = shortlist.fits[0].n if shortlist.fits else best.n
+        lines.append("Checks of the best model:" if best.n >= fitted_on else
+                     f"Checks of the best model (on a seeded sample of {best.n} of its {fitted_on} rows):")
         for check in best.checks:
             lines.append(f"  {_mark(check)} {check.aspect}: {check.verdict}")
     if honest is not None:
