@@ -851,7 +851,12 @@ class Result:
         return tuple(self.candidates.terms[j].name for j in self._subset(i))
 
     def model(self, i: int = 0):
-        """statsmodels results of the QR refit of shortlisted model ``i``."""
+        """statsmodels results of the QR refit of shortlisted model ``i``.
+
+        For a table read in parts the refit is on the checks' sample of rows
+        (``self.candidates``); the shortlist's coefficients, and
+        :meth:`predict`, use every row.
+        """
         from .rank import refit
 
         if i not in self._models:
@@ -871,7 +876,12 @@ class Result:
         """Predictions of model ``i`` for new rows (on the scale of the searched response)."""
         cols = [c for j in self._subset(i) for c in self.candidates.terms[j].columns]
         X = self.candidates.transform(frame)[:, cols]
-        params = np.asarray(self.model(i).params)
+        if self.candidates.parts is not None:  # the all-row fit, from the moments
+            from .rank import moment_fit
+
+            params = np.asarray(moment_fit(self._setup.moments, cols).coef, dtype=float)
+        else:
+            params = np.asarray(self.model(i).params)
         return params[0] + X @ params[1:]
 
     def honest_error(self, *, folds: int = 5, n_jobs: int = 1, backend: str = "loky", scheduler: str | None = None,
@@ -894,6 +904,10 @@ class Result:
         """
         from .searches.crossval import procedure_cv_error
 
+        if self.candidates.parts is not None:
+            raise OptionError("the honest error repeats the searches on the rows of each outer fold, which a table "
+                              "read in parts does not hold; search it with read_in_parts='no' (if it fits in "
+                              "memory) to get it")
         criterion = self._ranked.criterion
         if criterion in ("press", "cv_mse", "holdout_mse"):
             criterion = "aicc"  # the repeated choice needs an rss-based criterion

@@ -369,3 +369,17 @@ def test_a_job_extended_with_new_files_reads_only_them_and_ranks_on_every_row(tm
     first.iloc[:10].to_parquet(tmp_path / "bays" / "part-00.parquet", index=False)
     with pytest.raises(selectkit.errors.StoreError, match="changed or went away"):
         extend_job(tmp_path / "results")
+
+
+def test_predictions_of_a_sampled_table_use_the_all_row_fit(tmp_path):
+    import statsmodels.api as sm
+
+    frame = _table(9000, seed=8)
+    folder = _write_parts(frame, tmp_path / "predict", 3)
+    result = selectkit.search(folder, response=RESPONSE, check_sample_rows=2000)
+    cols = [c for i in result._subset(0) for c in result.candidates.terms[i].columns]
+    X = result.candidates.transform(frame)[:, cols]
+    fit = sm.OLS(frame[RESPONSE].to_numpy(), sm.add_constant(X)).fit()  # statsmodels on all 9000 rows
+    np.testing.assert_allclose(result.predict(frame.iloc[:50]), fit.predict(sm.add_constant(X)[:50]), rtol=1e-9)
+    with pytest.raises(OptionError, match="outer fold"):
+        result.honest_error()
