@@ -49,13 +49,12 @@ from __future__ import annotations
 import glob as _glob
 import os
 from collections import Counter
-from contextlib import contextmanager
-from contextvars import ContextVar
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
 
+from . import _kept
 from .errors import DataFileError, InputError, OptionError
 from .settings import spell
 
@@ -101,18 +100,20 @@ class PartedTable:
     dask_frame: object = None
 
     def run(self, task, args_of, *, client=None, stage=None, basis_of=None, only=None) -> list:
-        """``task(frame_of_part, *args_of(i))`` for every part, results in part order.
+        """``task(frame_of_part, *args_of(i))`` for every part (or the parts ``only``), results in part order.
 
-        With ``stage`` and ``basis_of`` and a keeper installed (:func:`kept_in`,
-        as a job's run store does), a part whose result is kept under
-        ``(f"{stage}/{i}", basis_of(i))`` is not read again, and every other
+        With ``stage`` and ``basis_of`` and a keeper installed
+        (:func:`selectkit._kept.kept_in`, as a job's run store does), a part
+        whose result is kept under its own name (``stage/ident@first``: its
+        file and first row, so that it keeps its result when other files join
+        the table) and ``basis_of(i)`` is not read again, and every other
         part's result is kept as soon as it arrives.
         """
-        keeper = _KEEPER.get() if stage is not None else None
+        keeper = _kept.current() if stage is not None else None
         results: list = [None] * len(self.parts)
         todo = list(range(len(self.parts))) if only is None else list(only)
 
-        def name(i):  # a part's own name, so that it keeps its results when other files join the table
+        def name(i):
             return f"{stage}/{self.parts[i].ident}@{self.parts[i].first}"
 
         if keeper is not None:
@@ -128,13 +129,17 @@ class PartedTable:
             if keeper is not None:
                 keeper.put(name(i), bases[i], value)
 
-        if not todo:
-            return results if only is None else [results[i] for i in only]
+        if todo:
+            self._compute(task, args_of, todo, client, arrived)
+        return results if only is None else [results[i] for i in only]
+
+    def _compute(self, task, args_of, todo, client, arrived) -> None:
+        """Run the parts ``todo`` here, on dask's local scheduler or on a distributed client."""
         if self.dask_frame is None and client is None:
             for i in todo:
                 part = self.parts[i]
                 arrived(i, _on_frame(task, part.label, _load(part, self.frame), args_of(i)))
-            return results if only is None else [results[i] for i in only]
+            return
         import dask
 
         if self.dask_frame is not None:
@@ -146,14 +151,13 @@ class PartedTable:
         if client is None:  # a Dask DataFrame on dask's local scheduler
             for i, value in zip(todo, dask.compute(*tasks)):
                 arrived(i, value)
-            return results if only is None else [results[i] for i in only]
+            return
         from distributed import as_completed
 
         futures = client.compute(tasks)
         where = {f.key: i for f, i in zip(futures, todo)}
         for future, value in as_completed(futures, with_results=True):
             arrived(where[future.key], value)
-        return results if only is None else [results[i] for i in only]
 
 
 def _current_client():
@@ -165,32 +169,8 @@ def _current_client():
         return None
 
 
-_KEEPER: ContextVar = ContextVar("selectkit_parts_keeper", default=None)
-
-
-@contextmanager
-def kept_in(keeper):
-    """Keep the per-part results of the passes with ``keeper`` (``get(stage, basis)``, ``put(stage, basis,
-    value)``) while the block runs: a job's run store, so that a killed job resumes without rereading the
-    parts it had finished."""
-    token = _KEEPER.set(keeper)
-    try:
-        yield keeper
-    finally:
-        _KEEPER.reset(token)
-
-
-def _basis(*items) -> str:
-    import hashlib
-
-    digest = hashlib.sha256()
-    for item in items:
-        if isinstance(item, np.ndarray):
-            digest.update(np.ascontiguousarray(item).tobytes())
-        else:
-            digest.update(repr(item).encode("utf-8"))
-        digest.update(b"\0")
-    return digest.hexdigest()
+kept_in = _kept.kept_in
+_basis = _kept.basis
 
 
 def _on_part(task, part, args):
@@ -394,16 +374,13 @@ def _survey(frame, offset=None, take=None):
             info.update(nonpositive=int(bad.sum()), first_nonpositive=int(np.argmax(bad)) if bad.any() else -1)
         else:
             info["kind"] = "text"
-            values = s[~missing]
-            levels: dict = {}
-            counts = Counter(values.tolist()) if values.nunique() <= LEVEL_CAP else None
-            if counts is not None:
-                first = {}
-                for i, v in zip(np.flatnonzero(~missing), values.tolist()):
-                    if v not in first:
-                        first[v] = int(i)
-                levels = {v: (c, first[v]) for v, c in counts.items()}
-            info["levels"] = None if counts is None else levels
+            values = pd.Series(s.to_numpy()[~missing], index=np.flatnonzero(~missing), dtype=object)
+            levels = None
+            if values.nunique() <= LEVEL_CAP:
+                counts = Counter(values.tolist())
+                first = values.drop_duplicates()  # its index: the row where each level first appears
+                levels = {v: (counts[v], int(i)) for i, v in zip(first.index, first.tolist())}
+            info["levels"] = levels
         out["cols"][name] = info
     if take is not None:
         local = set()
@@ -822,7 +799,7 @@ def prepare_in_parts(data, s, *, build_options, check_folds):
                           f"{spell('read_in_parts', 'no')}")
     uses_dask = s["backend"] == "dask" or s["scheduler"] is not None
     table = open_parts(data)
-    keeper = _KEEPER.get()
+    keeper = _kept.current()
     setup_basis = _basis(sorted((k, repr(v)) for k, v in s.items() if k in _SETUP_SETTINGS), build_options)
     kept = keeper.get("parts-setup", setup_basis) if keeper is not None else None
     stub = PartsInfo("", (), 0, 0, 0, 0, {}, table=table, scheduler=s["scheduler"], uses_dask=uses_dask)

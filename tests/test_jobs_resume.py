@@ -336,3 +336,41 @@ def test_a_changed_ranking_setting_computes_the_ranking_stage_again(tmp_path):
         _run(load_job(tmp_path / "job.toml"), resume=True, progress=False, engine=_NoFinish())
     again = _run(load_job(tmp_path / "job.toml"), resume=True, progress=False, engine=TablesEngine())
     assert len(again.result.shortlist) <= 2
+
+
+def test_a_job_killed_during_the_honest_error_resumes_with_the_outer_folds_it_had_finished(tmp_path, monkeypatch):
+    """The outer folds of the honest error are pieces the run store keeps (selectkit._kept)."""
+    from selectkit.jobs.store import RunStore
+    from selectkit.searches import crossval
+
+    write_positive_table(tmp_path / "bays.csv")
+    (tmp_path / "job.toml").write_text(REAL_JOB.replace("folds = 3", "folds = 3\nhonest_folds = 4"))
+    straight_folder = tmp_path / "straight"
+    straight_folder.mkdir()
+    write_positive_table(straight_folder / "bays.csv")
+    (straight_folder / "job.toml").write_text((tmp_path / "job.toml").read_text())
+    straight = _run(load_job(straight_folder / "job.toml"), resume=True, progress=False, engine=TablesEngine())
+
+    original = RunStore.record_finished
+    kept = []
+
+    def record(self, stage, basis, value, **kw):  # "killed" once two outer folds are kept
+        original(self, stage, basis, value, **kw)
+        if stage.startswith("honest-fold/"):
+            kept.append(stage)
+            if len(kept) == 2:
+                raise KeyboardInterrupt
+
+    monkeypatch.setattr(RunStore, "record_finished", record)
+    with pytest.raises(KeyboardInterrupt):
+        _run(load_job(tmp_path / "job.toml"), resume=True, progress=False, engine=TablesEngine())
+    monkeypatch.setattr(RunStore, "record_finished", original)
+
+    ran = []
+    unit = crossval._procedure_unit
+    monkeypatch.setattr(crossval, "_procedure_unit", lambda payload: ran.append(payload[-1]) or unit(payload))
+    again = _run(load_job(tmp_path / "job.toml"), resume=True, progress=False, engine=TablesEngine())
+    assert again.complete
+    assert len(ran) == 2  # the two folds not kept; the kept two came from the store
+    a, b = again.result.honest, straight.result.honest
+    assert a.error == pytest.approx(b.error, rel=1e-12) and list(a.folds["terms"]) == list(b.folds["terms"])

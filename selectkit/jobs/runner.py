@@ -18,6 +18,7 @@ import signal
 import sqlite3
 import threading
 import time
+from contextlib import contextmanager
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Mapping
@@ -110,17 +111,19 @@ class JobOutcome:
 
 
 # --------------------------------------------------------------------------- the api seams
-class _PartsKeeper:
-    """The run store as the keeper of a table's per-part results (:func:`selectkit.parts.kept_in`)."""
+class _StoreKeeper:
+    """The run store as the keeper of pieces of a stage (:mod:`selectkit._kept`): each part of a table
+    read in parts, each outer fold of the honest error.  ``salt`` joins every basis (the pooled results
+    and settings, for what is computed from them)."""
 
-    def __init__(self, store):
-        self.store = store
+    def __init__(self, store, salt: str = ""):
+        self.store, self.salt = store, salt
 
     def get(self, stage, basis):
-        return self.store.finished(stage, basis)
+        return self.store.finished(stage, self.salt + basis)
 
     def put(self, stage, basis, value):
-        self.store.record_finished(stage, basis, value)
+        self.store.record_finished(stage, self.salt + basis, value)
 
 
 
@@ -428,11 +431,11 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
     if recorded is not None:
         notes += _check_same_job(spec, store, fingerprint)
 
-    from ..parts import kept_in
+    from .._kept import kept_in
 
     try:
         # a table read in parts keeps each part's survey and moments in the store as they arrive
-        with speaking(JOB), kept_in(_PartsKeeper(store)):  # a hint names the job file's key
+        with speaking(JOB), kept_in(_StoreKeeper(store)):  # a hint names the job file's key
             setup = engine.prepare(spec)
     except OptionError as err:
         where = spec.source or spec.name
@@ -581,11 +584,20 @@ def _finish_checkpointed(engine, store, spec, setup, founds, *, complete, deadli
     store.log("ranking and checking the best models"
               + ("; then the bootstrap resamples and the honest error, if asked for" if complete else ""))
     began = time.monotonic()
-    result = engine.finish(setup, founds, deadline=deadline, **run_options)
+    from .._kept import kept_in
+
+    # the outer folds of the honest error are kept as they finish, against the pooled results and settings
+    with kept_in(_StoreKeeper(store, salt=basis or "")) if basis is not None else _no_keeper():
+        result = engine.finish(setup, founds, deadline=deadline, **run_options)
     value = keep(result) if basis is not None and keep is not None and not _budget_notes(result) else None
     if value is not None:
         store.record_finished("ranking", basis, value, seconds=time.monotonic() - began)
     return result
+
+
+@contextmanager
+def _no_keeper():
+    yield None
 
 
 def _record_failure(store: RunStore, err: BaseException, *, after_units: bool = False) -> None:

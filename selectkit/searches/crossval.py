@@ -52,6 +52,7 @@ from typing import Any, Sequence
 import numpy as np
 import pandas as pd
 
+from .. import _kept
 from ..errors import InputError, OptionError, SearchError, TooManyCandidatesError
 from ..moments import compute_moments, heldout_sse, moments_of
 from ..parallel import WorkUnit, run_units, spawn_seeds
@@ -842,8 +843,29 @@ def procedure_cv_error(candidates, runner, *, criterion="bic", convention="sigma
     outer = make_folds(folds, int(candidates.y.shape[0]), seed)
     payloads = [(candidates, moments, runner, fold.test_rows, criterion, convention, fold.repeat, fold.index)
                 for fold in outer]
-    rows = run_units(_procedure_unit, payloads, n_jobs=n_jobs, backend=backend, scheduler=scheduler,
-                     should_stop=deadline)
+    # Each outer fold is a piece a job keeps as it finishes (selectkit._kept): a job killed during the
+    # honest error resumes with the folds it had finished.
+    keeper = _kept.current()
+    names = [f"honest-fold/{fold.repeat:02d}-{fold.index:03d}" for fold in outer]
+    rows: list = [None] * len(outer)
+    todo = list(range(len(outer)))
+    if keeper is not None:
+        base = _kept.basis(moments.mean, moments.cross, criterion, convention, repr(_as_scheme(folds)), seed,
+                           [t.name for t in candidates.terms])
+        for i in list(todo):
+            kept = keeper.get(names[i], base)
+            if kept is not None:
+                rows[i] = kept
+                todo.remove(i)
+
+    def arrived(j, row):
+        if keeper is not None and row is not None:
+            keeper.put(names[todo[j]], base, row)
+
+    done = run_units(_procedure_unit, [payloads[i] for i in todo], n_jobs=n_jobs, backend=backend,
+                     scheduler=scheduler, should_stop=deadline, on_result=arrived)
+    for i, row in zip(todo, done):
+        rows[i] = row
     rows = [row for row in rows if row is not None]
     notes = ()
     if len(rows) < len(outer):
