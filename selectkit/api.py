@@ -207,20 +207,14 @@ def _in_parts(data, s):
 
     if not _parts.wants_parts(data, s["read_in_parts"]):
         return None
-    if s["decimal_mark"] is not None:
-        raise OptionError(f"{_settings_spell('decimal_mark')} applies to one CSV file read whole; the parts of a "
-                          f"table are read with the mark each file shows — leave it out")
     from . import settings as _settings
 
+    if s["decimal_mark"] is not None:
+        raise OptionError(f"{_settings.spell('decimal_mark')} applies to one CSV file read whole; the parts of a "
+                          f"table are read with the mark each file shows — leave it out")
     full = {x.name: x.default for x in _settings.SETTINGS if not x.required}
     full.update(s)
     return _parts.prepare_in_parts(data, full, build_options=_build_options(s), check_folds=True)
-
-
-def _settings_spell(name, value=None):
-    from . import settings as _settings
-
-    return _settings.spell(name) if value is None else _settings.spell(name, value)
 
 
 def _intake_and_candidates(data, s, *, check_folds):
@@ -595,7 +589,7 @@ def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: st
     """
     from . import rank as _rank_module
 
-    from .searches.crossval import press, score_subsets
+    from .searches.crossval import press_of, score_subsets
 
     s = setup.settings
     pooled = sorted({sub for f in founds for sub in f.subsets})
@@ -613,14 +607,9 @@ def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: st
     shortlist = _rank(scores)
     if scores is not None and not press_ranks:
         shown = set(shortlist.subsets) | set(shortlist.model_subsets)
-        if setup.candidates.parts is not None:  # one pass over the parts for every shown model
-            wanted = {sub: [c for i in sub for c in setup.candidates.terms[i].columns]
-                      for sub, rss in zip(scores["subset"], scores["rss"]) if sub in shown and np.isfinite(rss)}
-            found = setup.candidates.parts.press(setup.moments, wanted)
-            scores["press"] = [found.get(sub, np.nan) for sub in scores["subset"]]
-        else:
-            scores["press"] = [press(setup.candidates, sub) if sub in shown and np.isfinite(rss) else np.nan
-                               for sub, rss in zip(scores["subset"], scores["rss"])]
+        found = press_of(setup.candidates, setup.moments,
+                         [sub for sub, rss in zip(scores["subset"], scores["rss"]) if sub in shown and np.isfinite(rss)])
+        scores["press"] = [found.get(sub, np.nan) for sub in scores["subset"]]
         shortlist = _rank(scores)  # same order (PRESS does not rank): now with PRESS shown
     deadline = setup.deadline if deadline is None else deadline
     stability = None

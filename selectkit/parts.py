@@ -558,13 +558,19 @@ def fold_labels(positions, scheme, n_total: int, key: int) -> np.ndarray:
         return (_splitmix(positions + np.uint64(key)) % np.uint64(scheme.k)).astype(np.int64)
 
 
+def _complete(frame, pool) -> np.ndarray:
+    """Rows of a part with a value in every column in use (the others are dropped, as intake drops them)."""
+    keep = np.ones(len(frame), dtype=bool)
+    for c in pool:
+        keep &= ~frame[c].isna().to_numpy()
+    return keep
+
+
 def _part_moments(frame, offset, light, pool, weights, schemes, n_total, part):
     """Moments of one part's rows and of each fold's rows among them."""
     from .moments import _candidate_chunks, _chunk_moments, _empty
 
-    keep = np.ones(len(frame), dtype=bool)
-    for c in pool:
-        keep &= ~frame[c].isna().to_numpy()
+    keep = _complete(frame, pool)
     local = np.flatnonzero(keep)
     positions, ids = offset + local, row_ids(part, local)
     frame = frame.loc[keep].reset_index(drop=True) if not keep.all() else frame
@@ -612,9 +618,7 @@ def _part_press(frame, offset, light, pool, weights, plan):
     from .moments import _candidate_chunks
 
     used, means, ybar, weight_sum, B, L, starts = plan
-    keep = np.ones(len(frame), dtype=bool)
-    for c in pool:
-        keep &= ~frame[c].isna().to_numpy()
+    keep = _complete(frame, pool)
     frame = frame.loc[keep].reset_index(drop=True) if not keep.all() else frame
     chunk = _candidate_chunks(light, weights, terms=plan_terms(light, used))
     models = B.shape[1]
@@ -716,7 +720,7 @@ class PartsInfo:
         for subset, cols in columns_of.items():
             try:
                 fits[subset] = (list(cols), moment_fit(moments, list(cols)))
-            except Exception:  # noqa: BLE001 - a rank-deficient model gets NaN, as in memory
+            except ValueError:  # moment_fit: a rank-deficient model; it gets NaN, as in memory
                 out[subset] = float("nan")
         if not fits:
             return out

@@ -282,6 +282,17 @@ def press(candidates, subset) -> float:
     return float(loo @ loo)
 
 
+def press_of(candidates, moments, subsets) -> dict:
+    """PRESS of each model of ``subsets`` (``subset → value``): one QR per model over the rows held here
+    (:func:`press`), or, for a table read in parts, one pass over its parts for all of them
+    (:meth:`selectkit.parts.PartsInfo.press`)."""
+    subsets = list(dict.fromkeys(tuple(s) for s in subsets))
+    parts = getattr(candidates, "parts", None)
+    if parts is not None:
+        return parts.press(moments, {s: _columns(candidates, s) for s in subsets}) if subsets else {}
+    return {s: press(candidates, s) for s in subsets}
+
+
 def score_subsets(candidates, subsets, *, folds=5, seed=0, moments=None, holdout=None,
                   press_for=None) -> pd.DataFrame:
     """PRESS, K-fold CV error and held-out error of given models.
@@ -343,10 +354,6 @@ def score_subsets(candidates, subsets, *, folds=5, seed=0, moments=None, holdout
     repeats = np.array([f.repeat for f in fold_list])
     hold_pair = None
     parts = getattr(candidates, "parts", None)
-    parted_press = {}
-    if parts is not None:  # PRESS of a table in parts: one pass over its parts for every model asked
-        wanted = [s for s in subsets if press_for is None or s in press_for]
-        parted_press = parts.press(moments, {s: _columns(candidates, s) for s in wanted}) if wanted else {}
     if holdout is not None and parts is not None:
         raise OptionError("a held-out part needs the rows in memory; a table read in parts has its CV errors")
     if holdout is not None:
@@ -377,15 +384,16 @@ def score_subsets(candidates, subsets, *, folds=5, seed=0, moments=None, holdout
             except SearchError:
                 pass
         records.append({
-            "subset": s, "k": 1 + len(cols), "rss": rss,
-            "press": float("nan") if not (np.isfinite(rss) and (press_for is None or s in press_for))
-            else parted_press.get(s, float("nan")) if parts is not None else press(candidates, s),
+            "subset": s, "k": 1 + len(cols), "rss": rss, "press": float("nan"),
             "cv_mse": float("nan") if bad else float(errors.mean()),
             "cv_se": float("nan") if bad else _se_by_repeat(errors, repeats),
             "n_folds": len(fold_list), "holdout_mse": hold,
         })
     columns = ["subset", "k", "rss", "press", "cv_mse", "cv_se", "n_folds", "holdout_mse"]
     table = pd.DataFrame.from_records(records, columns=columns)
+    wanted = [r["subset"] for r in records if np.isfinite(r["rss"]) and (press_for is None or r["subset"] in press_for)]
+    found = press_of(candidates, moments, wanted)
+    table["press"] = [found.get(s, float("nan")) for s in table["subset"]]
     if holdout is None and _as_scheme(folds).kind == "holdout":
         table["holdout_mse"] = table["cv_mse"]  # the one fold is the held-out part
     return table
