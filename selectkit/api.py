@@ -591,8 +591,11 @@ def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: st
 
     from .searches.crossval import press_of, score_subsets
 
+    from . import _stages
+
     s = setup.settings
     pooled = sorted({sub for f in founds for sub in f.subsets})
+    _stages.step("ranking the pooled models", 0, 1)
     # CV errors come from moments (cheap) for every pooled model; PRESS needs a pass over the rows per
     # model, so unless it ranks the models it is computed for the shortlisted ones only.
     press_ranks = s["criterion"] == "press"
@@ -611,6 +614,7 @@ def finish(setup: SearchSetup, founds: Sequence, *, n_jobs: int = 1, backend: st
                          [sub for sub, rss in zip(scores["subset"], scores["rss"]) if sub in shown and np.isfinite(rss)])
         scores["press"] = [found.get(sub, np.nan) for sub in scores["subset"]]
         shortlist = _rank(scores)  # same order (PRESS does not rank): now with PRESS shown
+    _stages.step("ranking the pooled models", 1, 1)
     deadline = setup.deadline if deadline is None else deadline
     stability = None
     if s["resamples"] > 0:
@@ -933,16 +937,16 @@ class Result:
 
     # -- plots --------------------------------------------------------------------------------------
     def plot_criterion(self):
-        """Figure: best criterion value against model size."""
+        """matplotlib Figure: best criterion value against model size (``plots.criterion_by_size`` draws it)."""
         from .report import plots
 
-        return plots.criterion_by_size(self._ranked)
+        return plots.criterion_by_size(self._ranked).to_matplotlib()
 
     def plot_support(self):
-        """Figure: summed Akaike weight of each variable across the pooled models."""
+        """matplotlib Figure: summed model weight of each variable across the pooled models."""
         from .report import plots
 
-        return plots.variable_support(self._ranked)
+        return plots.variable_support(self._ranked).to_matplotlib()
 
     def plot_residuals(self, i: int = 0):
         """Figures of the checks of model ``i``, one per question, each titled with its check's level.
@@ -972,11 +976,13 @@ class Result:
         JSON document and the summary show; the other models are checked and
         reported as usual, so one such model never stops the run.
         """
+        from . import _stages
         from .errors import SearchError
 
         count = len(self._ranked.subsets) if count is None else min(count, len(self._ranked.subsets))
         out = []
         for i in range(count):
+            _stages.step("checking the shortlisted models", i, count)
             fit = self._ranked.fits[i] if i < len(self._ranked.fits) else None
             problem = getattr(fit, "problem", None)
             if problem is None:
@@ -992,6 +998,7 @@ class Result:
                 import dataclasses
 
                 self._ranked = dataclasses.replace(self._ranked, notes=tuple(self._ranked.notes) + (note,))
+        _stages.step("checking the shortlisted models", count, count)
         return out
 
     def _report_contents(self) -> dict:

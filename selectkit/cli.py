@@ -253,15 +253,17 @@ def _search_and_write(setup, *, out, workers=1, backend="loky", scheduler=None, 
     founds = api.run_methods(setup, n_jobs=workers, backend=backend, scheduler=scheduler,
                              on_unit=lambda key, result: bar.update(1))
     bar.close()
-    extra = [what for what, wanted in (("bootstrap resamples", setup.settings["resamples"]),
-                                       ("outer folds for the honest error", setup.settings["honest_folds"]),
-                                       ("the searches on a split of the rows", setup.settings["split_fraction"]))
-             if wanted]
-    if show:
-        print("ranking and checking the best models" + (f"; then {' and '.join(extra)}" if extra else ""),
-              file=sys.stderr, flush=True)
-    result = api.finish(setup, founds, n_jobs=workers, backend=backend, scheduler=scheduler)
-    return result, result.write(out)
+    # the stages after the search (ranking, resamples, outer folds, checks, report) get a bar each
+    from . import _stages
+    from .jobs.progress import StageShow
+
+    stages = StageShow("bar" if show else None)
+    try:
+        with _stages.heard_by(stages):
+            result = api.finish(setup, founds, n_jobs=workers, backend=backend, scheduler=scheduler)
+            return result, result.write(out)
+    finally:
+        stages.close()
 
 
 def _run_search(args) -> int:

@@ -27,6 +27,7 @@ from . import criteria as _criteria
 from ._budget import BudgetSpent
 from .errors import InputError, OptionError, SearchError, SelectkitError
 from .moments import moments_of
+from . import _stages
 from .parallel import run_units, spawn_seeds
 
 __all__ = [
@@ -1431,7 +1432,14 @@ def stability(
     full_best = full.subsets[_best_of(full, criterion, convention=convention, tss=moments.tss,
                                       log_jacobian=0.0, names=names, candidates=candidates)]
     units = [(candidates, runner, child, criterion, convention) for child in spawn_seeds(seed, n_boot)]
-    results = run_units(_replicate, units, n_jobs=n_jobs, backend=backend, should_stop=deadline)
+    arrived = [0]
+
+    def heard(index, result):
+        arrived[0] += 1
+        _stages.step("bootstrap resamples", arrived[0], len(units))
+
+    _stages.step("bootstrap resamples", 0, len(units))
+    results = run_units(_replicate, units, n_jobs=n_jobs, backend=backend, should_stop=deadline, on_result=heard)
     finished = [r for r in results if r[0] is not _CUT]
     if deadline is not None and len(finished) < asked:
         notes.append(f"The {deadline.describe()} ran out during the bootstrap: {len(finished)} of {asked} "

@@ -3,12 +3,13 @@
 External checks: the component-plus-residual values drawn are compared with an
 independent statsmodels OLS / WLS fit on the same candidate columns; the
 normal-sample band is compared with order statistics of simulated normal
-samples (numpy); the PNG text is decoded and its signature read.
+samples (numpy); the SVG text is parsed by the standard library's XML parser
+and the matplotlib drawing of the same chart is rendered to PNG by matplotlib.
 """
 
 from __future__ import annotations
 
-import base64
+import xml.etree.ElementTree as ET
 
 import numpy as np
 import pandas as pd
@@ -50,16 +51,17 @@ def _subset(cands, names):
     return tuple(index[name] for name in names)
 
 
-def _all_text(figure):
-    """Every piece of text a figure shows: title, axes titles, labels, legends, notes."""
-    texts = [figure._suptitle.get_text() if figure._suptitle is not None else ""]
-    for ax in figure.axes:
-        texts += [ax.get_title(), ax.get_xlabel(), ax.get_ylabel()]
-        texts += [t.get_text() for t in ax.texts]
-        legend = ax.get_legend()
-        if legend is not None:
-            texts += [t.get_text() for t in legend.get_texts()]
-    return texts
+def _all_text(chart):
+    """Every piece of text a chart shows, read back from its SVG: title, axes titles, labels, legends, notes."""
+    return ["".join(node.itertext()) for node in ET.fromstring(chart.to_svg()).iter("{http://www.w3.org/2000/svg}text")]
+
+
+def _panel(chart, title):
+    return next(p for p in chart.panels if p.title == title)
+
+
+def _layers(panel, kind):
+    return [layer for layer in panel.layers if layer.kind == kind]
 
 
 @pytest.fixture(scope="module")
@@ -87,7 +89,8 @@ def test_each_figure_carries_the_level_and_verdicts_of_its_check(fitted, model):
     for item in items:
         level = _worst(d, aspects[item.key])
         assert item.level == level
-        assert item.figure._suptitle.get_text().endswith(f"check: {level}")
+        assert item.chart.title.endswith(f"check: {level}")
+        assert any(text.endswith(f"check: {level}") for text in _all_text(item.chart))  # drawn in the SVG
         assert item.caption.startswith(f"{item.title} Check: {level}.")
         for check in d.checks:
             if check.aspect == aspects[item.key]:
@@ -116,30 +119,32 @@ def test_component_plus_residual_values_match_statsmodels(fitted, model, term, s
     if source_form is not None:  # the candidate column is the form of the raw source variable
         np.testing.assert_allclose(f, source_form(frame["light"].to_numpy()), rtol=1e-12)
 
-    figure = plots.term_forms(d, cands)
-    titles = [ax.get_title() for ax in figure.axes]
+    chart = plots.term_forms(d, cands)
+    titles = [p.title for p in chart.panels]
     assert "cultivar" not in titles  # blocks are not drawn
-    ax = figure.axes[titles.index(term)]
-    points = ax.collections[0].get_offsets()
-    np.testing.assert_allclose(points[:, 0], frame["light"].to_numpy())  # x on the source's own scale
-    np.testing.assert_allclose(points[:, 1], expected, rtol=1e-9, atol=1e-12)
-    assert ax.get_xlabel() == "light"
-    form, smoother = ax.get_lines()[0], ax.get_lines()[1]
+    panel = _panel(chart, term)
+    points = _layers(panel, "points")[0]
+    np.testing.assert_allclose(points.x, frame["light"].to_numpy())  # x on the source's own scale
+    np.testing.assert_allclose(points.y, expected, rtol=1e-9, atol=1e-12)
+    assert panel.xlabel == "light"
+    form, smoother = _layers(panel, "line")
     order = np.argsort(frame["light"].to_numpy(), kind="stable")
-    np.testing.assert_allclose(form.get_xdata(), frame["light"].to_numpy()[order])
-    np.testing.assert_allclose(form.get_ydata(), (b * f)[order], rtol=1e-9, atol=1e-12)
-    assert smoother.get_linestyle() == "--" and len(smoother.get_xdata()) > 10
+    np.testing.assert_allclose(form.x, frame["light"].to_numpy()[order])
+    np.testing.assert_allclose(form.y, (b * f)[order], rtol=1e-9, atol=1e-12)
+    assert smoother.dash == "--" and len(smoother.x) > 10
+    # the matplotlib drawing of the same chart holds the same points (one description, two renderers)
+    figure = chart.to_matplotlib()
+    ax = figure.axes[titles.index(term)]
+    np.testing.assert_allclose(ax.collections[0].get_offsets()[:, 1], expected, rtol=1e-9, atol=1e-12)
 
 
 def test_the_smoother_leaves_the_line_only_for_the_wrong_form(fitted):
     # The point of the panels: for raw light (truth log) the lowess bends away from the straight fitted
     # line; for log(light) it follows the fitted curve.  Compared by the mean squared gap on the line's x.
     def gap(model, term):
-        figure = plots.term_forms(fitted[model], fitted["candidates"])
-        ax = figure.axes[[a.get_title() for a in figure.axes].index(term)]
-        form, smoother = ax.get_lines()[0], ax.get_lines()[1]
-        on_form = np.interp(smoother.get_xdata(), form.get_xdata(), form.get_ydata())
-        return float(np.mean((smoother.get_ydata() - on_form) ** 2))
+        form, smoother = _layers(_panel(plots.term_forms(fitted[model], fitted["candidates"]), term), "line")
+        on_form = np.interp(smoother.x, form.x, form.y)
+        return float(np.mean((smoother.y - on_form) ** 2))
 
     assert gap("wrong", "light") > 5 * gap("right", "log(light)")  # about 11 times here
 
@@ -168,19 +173,17 @@ def test_skipped_terms_are_named_in_the_caption(fitted):
 def test_normal_band_covers_simulated_normal_order_statistics(fitted):
     # Check of the band's formula against simulation: 95 % pointwise limits of the i-th smallest of n
     # standard normal values, from 4000 simulated samples (numpy), agree with the drawn band.
-    figure = plots.error_shape(fitted["right"])
-    band = figure.axes[1].collections[0]
-    path = band.get_paths()[0].vertices
+    chart = plots.error_shape(fitted["right"])
+    band = _layers(chart.panels[1], "band")[0]
     n = int(np.isfinite(fitted["right"].studentized).sum())
+    assert n <= plots.LINE_POINTS  # every order statistic is a vertex of the band here
     expected = plots._blom_quantiles(n)
     simulated = np.sort(np.random.default_rng(0).normal(size=(4000, n)), axis=1)
     low = np.quantile(simulated, 0.025, axis=0) - expected
     high = np.quantile(simulated, 0.975, axis=0) - expected
-    lower_edge = path[1:n + 1]  # fill_between: start point, the lower edge left to right, then back
-    np.testing.assert_allclose(lower_edge[:, 0], expected)
-    np.testing.assert_allclose(lower_edge[:, 1], low, atol=0.05)
-    upper_edge = path[n + 2:2 * n + 2][::-1]
-    np.testing.assert_allclose(upper_edge[:, 1], high, atol=0.05)
+    np.testing.assert_allclose(band.x, expected)
+    np.testing.assert_allclose(band.low, low, atol=0.05)
+    np.testing.assert_allclose(band.high, high, atol=0.05)
 
 
 def test_influence_figure_names_rows_as_the_verdicts_do():
@@ -189,22 +192,26 @@ def test_influence_figure_names_rows_as_the_verdicts_do():
     frame.loc[7, "light"] = 39.0
     cands = _candidates(frame)
     d = diagnose(cands, _subset(cands, ["log(light)", "co2"]))
-    figure = plots.row_influence(d)
-    named = {t.get_text() for t in figure.axes[0].texts}
+    chart = plots.row_influence(d)
+    named = set(_layers(chart.panels[0], "labels")[0].texts)
     assert d.check("cooks_distance").level != "fine"
     assert d.check("cooks_distance").rows[0] in named  # the row the verdict names first is labelled
-    legend = [t.get_text() for t in figure.axes[0].get_legend().get_texts()]
-    assert any("median" in text for text in legend) or "median" in figure.axes[0].get_xlabel()
+    assert d.check("cooks_distance").rows[0] in _all_text(chart)  # and drawn in the SVG
+    legend = [layer.label for layer in chart.panels[0].layers if layer.label]
+    assert any("median" in text for text in legend)
 
 
-def test_no_copied_title_appears_and_every_figure_renders_to_png(fitted):
+def test_no_copied_title_appears_and_every_figure_renders_in_both_ways(fitted):
+    import io
+
     for model in ("right", "wrong"):
         for item in plots.check_figures(fitted[model], fitted["candidates"]):
-            shown = " | ".join(_all_text(item.figure) + [item.caption, item.title]).lower()
+            shown = " | ".join(_all_text(item.chart) + [item.caption, item.title]).lower()
             for banned in BANNED:
                 assert banned not in shown, (item.key, banned)
-            png = base64.b64decode(plots.to_png_base64(item.figure, dpi=30))
-            assert png[:8] == b"\x89PNG\r\n\x1a\n"
+            buffer = io.BytesIO()
+            item.figure.savefig(buffer, format="png", dpi=30)  # the matplotlib drawing, by matplotlib
+            assert buffer.getvalue()[:8] == b"\x89PNG\r\n\x1a\n"
 
 
 def test_the_report_page_embeds_the_check_figures_with_their_verdicts(fitted):
@@ -215,7 +222,7 @@ def test_the_report_page_embeds_the_check_figures_with_their_verdicts(fitted):
     page = report_html.render_html(shortlist=short, candidates=cands, diagnoses=diagnoses)
     for item in plots.check_figures(diagnoses[0], cands):
         assert report_html._e(item.caption) in page
-    assert page.count("data:image/png;base64,iVBOR") >= 2 + 5 * len(diagnoses) - 1
+    assert page.count("<figure><svg ") >= 2 + 5 * len(diagnoses) - 1
     for banned in BANNED:
         assert banned not in page.lower()
 
@@ -235,5 +242,19 @@ def test_result_plot_residuals_gives_one_figure_per_question():
     assert set(figures) <= {"mean", "forms", "shape", "spread", "influence"}
     assert {"mean", "shape", "spread", "influence"} <= set(figures)
     levels = {i.key: i.level for i in plots.check_figures(result.checks(0), result.candidates)}
-    for key, figure in figures.items():
+    for key, figure in figures.items():  # matplotlib figures, for a notebook
         assert figure._suptitle.get_text().endswith(f"check: {levels[key]}")
+
+
+def test_result_plots_of_the_shortlist_are_matplotlib_drawings_of_the_report_charts():
+    import selectkit
+
+    frame = _greenhouse(n=60, seed=11)
+    result = selectkit.search(frame[["yield_kg", "light", "co2", "cultivar"]], response="yield_kg",
+                              methods=("exhaustive",), forms=("identity", "log"))
+    figure = result.plot_criterion()
+    best = [ln for ln in figure.axes[0].get_lines() if ln.get_marker() == "o"][0]
+    expected = result._ranked.scored.groupby("n_terms")[result._ranked.criterion].min()  # pandas, independently
+    np.testing.assert_allclose(best.get_ydata(), expected.to_numpy())
+    bars = result.plot_support().axes[0].patches
+    assert sorted(b.get_width() for b in bars) == pytest.approx(sorted(result._ranked.variable_support["support"]))

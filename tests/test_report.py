@@ -126,9 +126,9 @@ def test_html_is_self_contained_and_escapes_user_strings(run):
     assert "<script" not in page.lower()
     assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page
     assert "http://" not in page and "https://" not in page
-    assert not re.search(r"""(src|href)\s*=\s*["'](?!#|data:image/png;base64,)""", page)
+    assert not re.search(r"""(src|href)\s*=\s*["'](?!#)""", page)  # nothing loaded: figures are inline SVG
     # criterion-by-size and support charts, plus a residual panel and a term panel per model
-    assert page.count("data:image/png;base64,") >= 2 + 2 * len(run["shortlist"].fits)
+    assert page.count("<figure><svg ") >= 2 + 2 * len(run["shortlist"].fits)
     for heading in ("What was asked", "Candidate terms", "How the searches went", "The shortlist",
                     "Does the choice survive resampling?", "Before you rely on these models"):
         assert heading in page
@@ -146,22 +146,31 @@ def test_html_without_checks_or_stability_still_renders(run):
 
 def test_criterion_by_size_plots_the_best_of_each_size(run):
     short = run["shortlist"]
-    figure = plots.criterion_by_size(short)
-    line = [ln for ln in figure.axes[0].get_lines() if ln.get_marker() == "o"][0]
-    expected = short.scored.groupby("n_terms")["bic"].min()
-    np.testing.assert_allclose(line.get_xdata(), expected.index.to_numpy())
-    np.testing.assert_allclose(line.get_ydata(), expected.to_numpy())
+    chart = plots.criterion_by_size(short)
+    line = [layer for layer in chart.panels[0].layers if layer.kind == "line" and layer.marker == "o"][0]
+    expected = short.scored.groupby("n_terms")["bic"].min()  # pandas, independently of the figure's loop
+    np.testing.assert_allclose(line.x, expected.index.to_numpy())
+    np.testing.assert_allclose(line.y, expected.to_numpy())
+    drawn = chart.to_matplotlib().axes[0].get_lines()  # and the matplotlib drawing of it
+    np.testing.assert_allclose([ln for ln in drawn if ln.get_marker() == "o"][0].get_ydata(), expected.to_numpy())
 
 
 def test_every_figure_draws(run):
     d = run["diagnoses"][0]
     short = run["shortlist"]
-    figures = [plots.criterion_by_size(short), plots.variable_support(short), plots.residuals_vs_terms(d)]
-    figures += [item.figure for item in plots.check_figures(d, run["candidates"])]
-    for figure in figures:
-        assert figure is not None and figure.axes
-        assert plots.to_png_base64(figure, dpi=30).startswith("iVBOR")  # PNG signature in base64
-    bars = plots.variable_support(short).axes[0].patches
+    import io
+    import xml.etree.ElementTree as ET
+
+    charts = [plots.criterion_by_size(short), plots.variable_support(short), plots.residuals_vs_terms(d)]
+    charts += [item.chart for item in plots.check_figures(d, run["candidates"])]
+    for chart in charts:
+        assert chart is not None and chart.panels
+        root = ET.fromstring(chart.to_svg())  # well-formed XML, by the standard library's parser
+        assert root.tag == "{http://www.w3.org/2000/svg}svg" and float(root.get("width")) > 0
+        buffer = io.BytesIO()
+        chart.to_matplotlib().savefig(buffer, format="png", dpi=30)
+        assert buffer.getvalue()[:8] == b"\x89PNG\r\n\x1a\n"
+    bars = plots.variable_support(short).to_matplotlib().axes[0].patches
     assert sorted(b.get_width() for b in bars) == pytest.approx(sorted(short.variable_support["support"]))
 
 
@@ -190,11 +199,13 @@ def test_large_data_are_thinned_in_the_plots():
     n = 12_000
     X = rng.normal(size=(n, 2))
     d = diagnose(make_candidates(X, X @ [1.0, -1.0] + rng.normal(size=n)), (0, 1))
-    figure = plots.mean_follows_terms(d)
-    points = figure.axes[0].collections[0].get_offsets()
-    assert len(points) <= plots.MAX_POINTS
-    np.testing.assert_allclose(points[:, 0], d.fitted[:: int(np.ceil(n / plots.MAX_POINTS))])
-    assert any("row shown" in t.get_text() for t in figure.axes[0].texts)
+    chart = plots.mean_follows_terms(d)
+    points = [layer for layer in chart.panels[0].layers if layer.kind == "points"][0]
+    assert len(points.x) <= plots.MAX_POINTS
+    np.testing.assert_allclose(points.x, d.fitted[:: int(np.ceil(n / plots.MAX_POINTS))])
+    assert any("row shown" in note for note in chart.panels[0].notes) and "row shown" in chart.to_svg()
+    svg = chart.to_svg()  # the SVG draws each kept point once: one "h0" dot per row shown
+    assert svg.count("h0") == len(points.x)
 
 
 def test_dollar_signs_in_names_do_not_break_the_figures():
@@ -202,9 +213,12 @@ def test_dollar_signs_in_names_do_not_break_the_figures():
     X = rng.normal(size=(40, 2))
     cands = make_candidates(X, X[:, 0] + rng.normal(size=40), names=["a$^$b", "price$"])
     short = rank([brute_force(cands)], cands, compute_moments(X, cands.y), scores=False)
-    for figure in (plots.variable_support(short), plots.residuals_vs_terms(diagnose(cands, (0, 1)))):
-        assert plots.to_png_base64(figure, dpi=30)
-    labels = [t.get_text() for t in plots.variable_support(short).axes[0].get_yticklabels()]
+    import io
+
+    for chart in (plots.variable_support(short), plots.residuals_vs_terms(diagnose(cands, (0, 1)))):
+        chart.to_matplotlib().savefig(io.BytesIO(), format="png", dpi=30)  # "$" would start math mode
+        assert "a$^$b" in chart.to_svg() or "price$" in chart.to_svg()
+    labels = [t.get_text() for t in plots.variable_support(short).to_matplotlib().axes[0].get_yticklabels()]
     assert r"a\$^\$b" in labels
 
 

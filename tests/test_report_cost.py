@@ -37,10 +37,10 @@ def test_only_the_first_answers_get_figures(tmp_path):
     assert len(result.shortlist) >= 2
     html = (result.write(tmp_path)["report_html"]).read_text(encoding="utf-8")
     sections = _sections(html)
-    assert "<img" in sections["model-1"]
+    assert "<svg" in sections["model-1"]
     for key, body in sections.items():
         if key != "model-1":
-            assert "<img" not in body and "detailed_answers" in body
+            assert "<svg" not in body and "detailed_answers" in body
             assert "Assumption checks" in body and "Coefficients" in body  # the tables stay for every answer
 
 
@@ -50,28 +50,28 @@ def test_the_influence_panel_draws_only_rows_above_the_screening_cut_off():
     x = rng.uniform(1, 100, size=(n, 2))
     y = 1 + 0.1 * x[:, 0] + rng.normal(0, 1, n)
     d = diagnose(make_candidates(x, y), (0, 1))
-    figure = plots.row_influence(d)
-    left, right = figure.axes[:2]
-    for axes, values, limit in ((left, d.cooks_distance, 4.0 / n), (right, d.leverage, 2.0 * d.k / n)):
+    chart = plots.row_influence(d)
+    figure = chart.to_matplotlib()
+    for panel, axes, values, limit in ((chart.panels[0], figure.axes[0], d.cooks_distance, 4.0 / n),
+                                       (chart.panels[1], figure.axes[1], d.leverage, 2.0 * d.k / n)):
         above = int(np.sum(np.asarray(values) > limit))
-        stems = [c for c in axes.collections if c.__class__.__name__ == "LineCollection"][0]
-        assert len(stems.get_segments()) == min(above, plots.MAX_STEMS)  # one stem per row worth naming
+        stems = [layer for layer in panel.layers if layer.kind == "stems"][0]
+        assert len(stems.x) == min(above, plots.MAX_STEMS)  # one stem per row worth naming
+        drawn = [c for c in axes.collections if c.__class__.__name__ == "LineCollection"][0]
+        assert len(drawn.get_segments()) == len(stems.x)
         assert 0 < above < n // 4
 
 
 def test_the_smoother_is_the_mean_of_groups_of_rows():
-    import matplotlib
-
-    matplotlib.use("Agg")
-    from matplotlib.figure import Figure
+    from selectkit.report.chart import Panel
 
     x = np.arange(100.0)
     y = (x // 10) ** 2.0
-    axes = Figure().add_subplot()
-    plots._smooth_line(axes, x, y, bins=10)
-    line = axes.get_lines()[0]
-    np.testing.assert_allclose(line.get_xdata(), [x[i:i + 10].mean() for i in range(0, 100, 10)])
-    np.testing.assert_allclose(line.get_ydata(), [float(k * k) for k in range(10)])
+    panel = Panel()
+    plots._smooth_line(panel, x, y, bins=10)
+    line = panel.layers[0]
+    np.testing.assert_allclose(line.x, [x[i:i + 10].mean() for i in range(0, 100, 10)])
+    np.testing.assert_allclose(line.y, [float(k * k) for k in range(10)])
 
 
 def test_importing_the_command_line_loads_no_numerical_library():

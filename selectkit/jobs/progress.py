@@ -9,7 +9,7 @@ from dataclasses import dataclass
 
 from ..errors import OptionError
 
-__all__ = ["JobProgress", "format_seconds", "make_reporter"]
+__all__ = ["JobProgress", "StageShow", "format_seconds", "make_reporter", "stage_show_for"]
 
 
 @dataclass(frozen=True)
@@ -158,3 +158,70 @@ def _stderr_is_terminal() -> bool:
         return sys.stderr.isatty()
     except (AttributeError, ValueError):
         return False
+
+
+class StageShow:
+    """Shows the stages after the search as :mod:`selectkit._stages` reports them.
+
+    ``mode`` ``"bar"``: one tqdm bar per stage (ranking, resamples, outer
+    folds, checks, report), closed when the next starts; ``"lines"``: a
+    line when a stage starts, at most one per ``interval`` seconds while it
+    runs, and one when it ends; ``None``: nothing shown.  ``log`` (a
+    callable taking a line) also hears each stage's start and end, as a job
+    writes them in its log.
+    """
+
+    def __init__(self, mode=None, *, prefix: str = "", stream=None, interval: float = 30.0, log=None):
+        self.mode = mode
+        self.prefix = prefix
+        self.stream = stream if stream is not None else sys.stderr
+        self.interval = interval
+        self.log = log
+        self.stage = None
+        self.bar = None
+        self.began = self.last = 0.0
+
+    def __call__(self, stage: str, done: int, total: int) -> None:
+        if stage != self.stage:
+            self.close()
+            self.stage, self.began, self.last = stage, time.monotonic(), time.monotonic()
+            if self.log is not None:
+                self.log(f"{stage}: {done} of {total}")
+            if self.mode == "bar":
+                from tqdm.auto import tqdm
+
+                self.bar = tqdm(total=total, initial=done, desc=f"{self.prefix}{stage}", file=self.stream,
+                                leave=False, dynamic_ncols=True)
+            elif self.mode == "lines":
+                self._line(f"{stage}: {done} of {total}")
+            if done < total:
+                return
+        if self.bar is not None:
+            self.bar.n = done
+            self.bar.refresh()
+        elif self.mode == "lines" and done < total and time.monotonic() - self.last >= self.interval:
+            self._line(f"{stage}: {done} of {total}")
+        if done >= total:
+            seconds = time.monotonic() - self.began
+            if self.log is not None:
+                self.log(f"{stage}: done in {format_seconds(seconds)}")
+            if self.mode == "lines":
+                self._line(f"{stage}: done ({total}) in {format_seconds(seconds)}")
+
+    def _line(self, text: str) -> None:
+        self.last = time.monotonic()
+        self.stream.write(f"[{time.strftime('%H:%M:%S')}] {self.prefix}{text}\n")
+        self.stream.flush()
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
+            self.bar = None
+
+
+def stage_show_for(progress, *, prefix: str = "", log=None) -> StageShow:
+    """The :class:`StageShow` matching a job's ``progress`` option (a callable hears units only)."""
+    if progress is None:
+        progress = "bar" if _stderr_is_terminal() else "lines"
+    mode = progress if progress in ("bar", "lines") else None
+    return StageShow(mode, prefix=prefix, log=log)

@@ -23,9 +23,10 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Mapping
 
+from .. import _stages
 from .._io import atomic_write_text
 from ..errors import JobFileError, OptionError, SelectkitError, StoreError
-from .progress import JobProgress, format_seconds, make_reporter
+from .progress import JobProgress, format_seconds, make_reporter, stage_show_for
 from ..settings import JOB, speaking
 from .spec import JobSpec, load_job
 from .store import STORE_NAME, RunStore, StoreLock, damaged_store_error, data_fingerprint, find_store, move_aside
@@ -527,10 +528,15 @@ def _run_locked(spec, store: RunStore, *, resume, progress, engine, started) -> 
             store.log(f"pooling the finished units failed: {type(pooling_error).__name__}: {pooling_error}",
                       level="warning")
         elif any(len(f) for f in founds):
-            result = _finish_checkpointed(engine, store, spec, setup, founds, complete=complete,
-                                          deadline=deadline, run_options=run_options)
-            store.log("writing the shortlist and the report")
-            outputs = engine.write(result, store.path.parent)
+            stages = stage_show_for(progress, prefix=f"job {spec.name}: ", log=store.log)
+            try:
+                with _stages.heard_by(stages):
+                    result = _finish_checkpointed(engine, store, spec, setup, founds, complete=complete,
+                                                  deadline=deadline, run_options=run_options)
+                    store.log("writing the shortlist and the report")
+                    outputs = engine.write(result, store.path.parent)
+            finally:
+                stages.close()
             store.record_shortlist(engine.shortlist_rows(result))
             cut = _budget_notes(result)
             if cut:

@@ -1,7 +1,8 @@
 """One self-contained HTML page: settings, candidates, searches, shortlist, checks, cautions.
 
 The page has no script and loads nothing: styles are inline and every figure
-is an embedded PNG (``data:image/png;base64``).  Every string that comes from
+is inline SVG (:meth:`selectkit.report.chart.Chart.to_svg`), drawn without a
+plotting library in a few milliseconds each.  Every string that comes from
 the user or the data (column names, levels, file names, settings) passes
 through :func:`html.escape`.
 """
@@ -15,6 +16,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from .. import _stages
 from .._io import atomic_write_text
 from . import plots
 from .text import CAUTIONS
@@ -39,7 +41,7 @@ td.num{text-align:right;font-variant-numeric:tabular-nums}
 .ok{color:#1d7a3a;font-weight:600}.look{color:#9a6700;font-weight:600}.fail{color:#b03a2e;font-weight:600}.na{color:#7b8189}
 .caution{border-left:4px solid #c0392b;background:#fdf3f1;padding:.6rem .9rem;margin:.6rem 0}
 .note{color:#55606b;font-size:.88rem}
-figure{margin:.6rem 0}figure img{max-width:100%;height:auto;border:1px solid #e3e1da}
+figure{margin:.6rem 0}figure svg{max-width:100%;height:auto;border:1px solid #e3e1da}
 figcaption{font-size:.82rem;color:#55606b}
 nav ol{columns:2;font-size:.9rem}
 """
@@ -84,12 +86,10 @@ def _table(frame: pd.DataFrame, *, headers=None) -> str:
     return f'<div class="scroll"><table><thead><tr>{head}</tr></thead><tbody>{"".join(rows)}</tbody></table></div>'
 
 
-def _figure(figure, caption: str) -> str:
-    if figure is None:
+def _figure(chart, caption: str) -> str:
+    if chart is None:
         return ""
-    data = plots.to_png_base64(figure)
-    return (f'<figure><img alt="{_e(caption)}" src="data:image/png;base64,{data}">'
-            f"<figcaption>{_e(caption)}</figcaption></figure>")
+    return f"<figure>{chart.to_svg(namespace=False)}<figcaption>{_e(caption)}</figcaption></figure>"
 
 
 def _section(anchor: str, title: str, body: str) -> str:
@@ -387,7 +387,7 @@ def _model_section(position, fit, diagnosis, row, candidates=None, *, figures=Tr
         parts.append("<h3>What the checks look like</h3>")
         shown = plots.check_figures(diagnosis, candidates)
         for item in shown:
-            parts.append(_figure(item.figure, item.caption))
+            parts.append(_figure(item.chart, item.caption))
         if candidates is None or not any(item.key == "forms" for item in shown):
             parts.append(_figure(plots.residuals_vs_terms(diagnosis),
                                  "Residuals against each numeric column of the model: a bend suggests another "
@@ -502,9 +502,11 @@ def render_html(*, shortlist, settings=None, candidates=None, founds=(), diagnos
     detailed = settings.get("detailed_answers", 3)
     detailed = len(shortlist.fits) if detailed is None else int(detailed)
     for i, fit in enumerate(shortlist.fits):
+        _stages.step("writing the report", i, len(shortlist.fits))
         row = shortlist.table.iloc[i]
         body.append(_model_section(i + 1, fit, diagnoses[i] if i < len(diagnoses) else None, row,
                                    candidates, figures=i < detailed, scale=(scales or {}).get(i)))
+    _stages.step("writing the report", len(shortlist.fits), len(shortlist.fits))
     if stability is not None:
         body.append(_section("stability", "Does the choice survive resampling?", _stability_section(stability)))
     if honest is not None:

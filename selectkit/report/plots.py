@@ -1,20 +1,23 @@
-"""Figures of the report, drawn with matplotlib's object API (no pyplot, no global state).
+"""Figures of the report, described as :class:`~selectkit.report.chart.Chart` objects.
 
-Every function returns a :class:`matplotlib.figure.Figure` backed by the Agg
-canvas, so it works without a display (:func:`check_figures` a list of them,
-each with its question and its check's verdict); :func:`to_png_base64` turns a figure
-into the text of a ``data:image/png`` URI for the self-contained HTML report.
+Every function returns a chart (:func:`check_figures` a list of
+:class:`CheckFigure`, each with its question and its check's verdict).  The
+report draws them as inline SVG (:meth:`Chart.to_svg`, a few milliseconds each
+at any number of rows); :meth:`Chart.to_matplotlib` gives the same figure as a
+matplotlib one for a notebook.  Scatters hold at most :data:`MAX_POINTS` rows
+(every k-th row, said in the panel) and smoothers are binned means, so a
+figure costs the same at any n.
 """
 
 from __future__ import annotations
 
-import base64
-import io
 from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
 from scipy import stats
+
+from .chart import Chart
 
 __all__ = [
     "criterion_by_size",
@@ -30,7 +33,6 @@ __all__ = [
     "spread_by_fitted",
     "row_influence",
     "residuals_vs_terms",
-    "to_png_base64",
 ]
 
 _INK = "#24507a"
@@ -38,40 +40,12 @@ _ACCENT = "#c0392b"
 _MUTED = "#8a8f98"
 
 
-def _plain(text) -> str:
-    """A user string shown as typed: ``$`` would otherwise start matplotlib's math mode."""
-    return str(text).replace("$", r"\$")
-
-
-#: Fixed margins of every figure (fractions of its size).  A layout engine ("constrained", "tight")
-#: measures every text box on each draw and doubled the cost of a figure; fixed margins cost nothing.
-_MARGINS = dict(left=0.1, right=0.97, bottom=0.15, top=0.84, wspace=0.32, hspace=0.55)
-
-
-def _figure(width=6.0, height=4.0, **margins):
-    """A figure on the Agg canvas with fixed margins (``margins`` override :data:`_MARGINS`)."""
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
-    figure = Figure(figsize=(width, height))
-    FigureCanvasAgg(figure)
-    figure.subplots_adjust(**{**_MARGINS, **margins})
-    return figure
-
-
-def to_png_base64(figure, *, dpi=80) -> str:
-    """The figure as base64 PNG text (for ``<img src="data:image/png;base64,...">``)."""
-    buffer = io.BytesIO()
-    figure.savefig(buffer, format="png", dpi=dpi, metadata={"Software": None})
-    return base64.b64encode(buffer.getvalue()).decode("ascii")
-
-
 def _label(criterion: str) -> str:
     return {"adj_r2": "adjusted R²", "cv_mse": "CV mean squared error", "holdout_mse": "held-out MSE",
             "press": "PRESS", "cp": "Mallows' Cp"}.get(criterion, criterion.upper())
 
 
-def criterion_by_size(shortlist, *, criterion=None):
+def criterion_by_size(shortlist, *, criterion=None) -> Chart:
     """Best value of the criterion among pooled models of each size (number of terms).
 
     Parameters
@@ -87,8 +61,10 @@ def criterion_by_size(shortlist, *, criterion=None):
     lower = LOWER_IS_BETTER.get(criterion, True)
     values = scored[criterion].to_numpy(dtype=float)
     sizes = scored["n_terms"].to_numpy()
-    figure = _figure(6.0, 4.0, left=0.14, top=0.92, bottom=0.12)
-    axes = figure.add_subplot()
+    chart = Chart(6.0, 4.0)
+    panel = chart.panel(title=f"Best {_label(criterion)} at each model size", title_size=10, integer_x=True,
+                        xlabel="number of terms (intercept not counted)", legend=True, legend_size=8,
+                        ylabel=_label(criterion) + (" (lower is better)" if lower else " (higher is better)"))
     by_size = {}
     for size, value in zip(sizes, values):
         if np.isfinite(value):
@@ -98,46 +74,42 @@ def criterion_by_size(shortlist, *, criterion=None):
     if by_size:
         xs = sorted(by_size)
         ys = [by_size[x] for x in xs]
-        axes.scatter(sizes[np.isfinite(values)], values[np.isfinite(values)], s=10, color=_MUTED,
-                     alpha=0.5, label="every pooled model")
-        axes.plot(xs, ys, marker="o", color=_INK, label="best of each size")
+        finite = np.isfinite(values)
+        panel.points(sizes[finite], values[finite], color=_MUTED, alpha=0.5, label="every pooled model")
+        panel.line(xs, ys, marker="o", label="best of each size")
         best = int(np.argmin(ys) if lower else np.argmax(ys))
-        axes.scatter([xs[best]], [ys[best]], s=90, facecolors="none", edgecolors=_ACCENT, linewidths=2,
-                     label="best overall", zorder=3)
-        axes.legend(frameon=False, fontsize=8)
+        panel.points([xs[best]], [ys[best]], color=_ACCENT, size=10.0, hollow=True, line_width=2.0,
+                     label="best overall")
     else:
-        axes.text(0.5, 0.5, f"no model has a {_label(criterion)} value", ha="center", va="center",
-                  transform=axes.transAxes)
-    from matplotlib.ticker import MaxNLocator
-
-    axes.xaxis.set_major_locator(MaxNLocator(integer=True))
-    axes.set_xlabel("number of terms (intercept not counted)")
-    axes.set_ylabel(_label(criterion) + (" (lower is better)" if lower else " (higher is better)"))
-    axes.set_title(f"Best {_label(criterion)} at each model size", fontsize=10)
-    return figure
+        panel.notes.append(f"no model has a {_label(criterion)} value")
+    return chart
 
 
-def variable_support(shortlist, *, top=25):
+def variable_support(shortlist, *, top=25) -> Chart:
     """Horizontal bars: summed model weight of the pooled models holding each variable."""
     support = shortlist.variable_support.head(top)
-    names = [_plain(v) for v in support["variable"]][::-1]
+    names = [str(v) for v in support["variable"]][::-1]
     height = max(2.0, 0.28 * len(support) + 1.0)
-    # room on the left for the longest name (about 0.075 in per character at 8 pt), at most half the width
-    left = min(0.5, (0.2 + 0.075 * max((len(v) for v in names), default=4)) / 6.0)
-    figure = _figure(6.0, height, left=left, bottom=0.55 / height, top=1.0 - 0.35 / height)
-    axes = figure.add_subplot()
     values = support["support"].to_numpy(dtype=float)[::-1]
-    axes.barh(range(len(names)), values, color=[_INK if v >= 0.5 else _MUTED for v in values])
-    axes.set_yticks(range(len(names)), names, fontsize=8)
-    axes.set_xlim(0, 1)
-    axes.axvline(0.5, color=_MUTED, linewidth=0.8, linestyle=":")
-    axes.set_xlabel(f"summed {shortlist.weight_criterion.upper()} weight of models holding the variable")
-    axes.set_title("Support for each variable across the pooled models", fontsize=10)
-    return figure
+    chart = Chart(6.0, height)
+    panel = chart.panel(title="Support for each variable across the pooled models", title_size=10,
+                        categories=names, xlim=(0.0, 1.0),
+                        xlabel=f"summed {shortlist.weight_criterion.upper()} weight of models holding the variable")
+    panel.hbars(values, colors=[_INK if v >= 0.5 else _MUTED for v in values])
+    panel.vline(0.5, color=_MUTED, dash=":")
+    return chart
 
 
-#: Most points drawn in one scatter; larger data are thinned to every k-th row (deterministic).
-MAX_POINTS = 5000
+#: Most points drawn in one scatter; larger data are thinned to every k-th row (deterministic).  Two
+#: thousand dots show a cloud's shape as well as more do, and keep an SVG panel near 25 kB (our choice).
+MAX_POINTS = 2000
+
+
+#: Most vertices of a smooth curve or band (a fitted form, a normal band): they bend slowly, so a few
+#: hundred vertices draw them as well as one per row (our choice).
+LINE_POINTS = 250
+
+
 def _thin(count: int, cap: int) -> np.ndarray:
     """Row positions kept when at most ``cap`` of ``count`` points are drawn: every k-th row."""
     if count <= cap:
@@ -145,31 +117,34 @@ def _thin(count: int, cap: int) -> np.ndarray:
     return np.arange(0, count, int(np.ceil(count / cap)))
 
 
-def _scatter(axes, x, y, **style):
+def _scatter(panel, x, y, *, color=_INK, alpha=0.7, label=None):
+    """The points ``(x, y)``, thinned to :data:`MAX_POINTS` with a note saying so."""
     keep = _thin(len(x), MAX_POINTS)
-    axes.scatter(np.asarray(x)[keep], np.asarray(y)[keep], s=10, color=_INK, alpha=0.7, **style)
+    panel.points(np.asarray(x, float)[keep], np.asarray(y, float)[keep], color=color, alpha=alpha, label=label)
     if len(keep) < len(x):
-        axes.text(0.99, 0.01, f"every {int(np.ceil(len(x) / MAX_POINTS))}th row shown", ha="right",
-                  va="bottom", fontsize=7, color=_MUTED, transform=axes.transAxes)
+        panel.notes.append(f"every {int(np.ceil(len(x) / MAX_POINTS))}th row shown")
 
 
-def _smooth_line(axes, x, y, *, bins=None):
+def _smooth_line(panel, x, y, *, bins=None, dash="-", label=None):
     """A smoother of the points: the mean of ``y`` in groups of about equal size by increasing ``x``.
 
     Binned means (a regressogram; common practice, our choice over a local
     regression smoother) cost one sort whatever the number of rows.  The
     number of groups is ``bins`` or, by default, about one per 8 rows between
-    5 and :data:`SMOOTHER_BINS`.
+    5 and :data:`SMOOTHER_BINS`.  Returns the ``(x, y)`` of the means drawn
+    (None when too few points).
     """
     x = np.asarray(x, dtype=float)
     y = np.asarray(y, dtype=float)
     ok = np.isfinite(x) & np.isfinite(y)
     x, y = x[ok], y[ok]
     if len(x) < 10 or np.ptp(x) <= 0:
-        return
+        return None
     count = bins or int(min(SMOOTHER_BINS, max(5, len(x) // 8)))
     groups = [g for g in np.array_split(np.argsort(x, kind="stable"), count) if g.size]
-    axes.plot([x[g].mean() for g in groups], [y[g].mean() for g in groups], color=_ACCENT, linewidth=1.2)
+    xs, ys = np.array([x[g].mean() for g in groups]), np.array([y[g].mean() for g in groups])
+    panel.line(xs, ys, color=_ACCENT, line_width=1.2, dash=dash, label=label)
+    return xs, ys
 
 
 # --------------------------------------------------------------------------- figures of the checks
@@ -211,19 +186,21 @@ class CheckFigure:
         ``"worth a look"``, ``"fine"`` or ``"not assessed"``.
     caption : str
         Title, level, each check's verdict sentence and how to read the figure.
+    chart : selectkit.report.chart.Chart
+        The figure's description (``chart.to_svg()`` for a page).
     figure : matplotlib.figure.Figure
+        The same figure drawn by matplotlib, built on first use.
     """
 
     key: str
     title: str
     level: str
     caption: str
-    figure: object
+    chart: Chart
 
-
-def _legend(axes, fontsize=7, loc="upper left"):
-    """A legend on a light box, readable over dense points."""
-    axes.legend(fontsize=fontsize, loc=loc, frameon=True, facecolor="white", framealpha=0.85, edgecolor="none")
+    @property
+    def figure(self):
+        return self.chart.to_matplotlib()
 
 
 def _aspect_verdict(diagnosis, aspect):
@@ -236,11 +213,12 @@ def _aspect_verdict(diagnosis, aspect):
     return level, text
 
 
-def _titled(figure, diagnosis, key):
-    """Put the question and its check's level on top of the figure; returns the level."""
+def _titled(chart, diagnosis, key):
+    """Put the question and its check's level on top of the chart; returns the level."""
     title, aspect = CHECK_FIGURES[key]
     level, _ = _aspect_verdict(diagnosis, aspect)
-    figure.suptitle(f"{title}   check: {level}", fontsize=10, color=_LEVEL_INK.get(level, _INK))
+    chart.title = f"{title}   check: {level}"
+    chart.title_color = _LEVEL_INK.get(level, _INK)
     return level
 
 
@@ -264,26 +242,22 @@ def mean_follows_terms(diagnosis):
     run of bars on one side, or a bend, is the curvature that RESET (Ramsey
     1969) tests for.  With row weights the values are on the √w scale.
     """
-    figure = _figure(6.0, 3.8)
-    axes = figure.add_subplot()
+    chart = Chart(6.0, 3.8)
+    panel = chart.panel(xlabel="fitted value", ylabel="residual (observed − fitted)", legend=True)
     fitted, resid = np.asarray(diagnosis.fitted, float), np.asarray(diagnosis.residuals, float)
-    _scatter(axes, fitted, resid, label="a row")
-    axes.collections[0].set_color(_MUTED)
-    axes.collections[0].set_alpha(0.45)
-    axes.axhline(0.0, color=_INK, linewidth=0.8)
+    _scatter(panel, fitted, resid, color=_MUTED, alpha=0.45, label="a row")
+    panel.hline(0.0, color=_INK)
     centres, means, spans = [], [], []
     for group in _bins(fitted, _bin_count(len(fitted))):
         centres.append(float(np.mean(fitted[group])))
         means.append(float(np.mean(resid[group])))
         spans.append(2.0 * float(np.std(resid[group], ddof=1)) / np.sqrt(group.size))
     if centres:
-        axes.errorbar(centres, means, yerr=spans, fmt="s", color=_ACCENT, markersize=5, capsize=3,
-                      linewidth=1.2, label="mean residual of a group, ±2 standard errors")
-        _legend(axes, fontsize=7, loc="upper left")
-    axes.set_xlabel("fitted value")
-    axes.set_ylabel("residual (observed − fitted)")
-    _titled(figure, diagnosis, "mean")
-    return figure
+        means, spans = np.array(means), np.array(spans)
+        panel.errorbar(centres, means, means - spans, means + spans, marker="s",
+                       label="mean residual of a group, ±2 standard errors")
+    _titled(chart, diagnosis, "mean")
+    return chart
 
 
 def _blom_quantiles(n):
@@ -302,34 +276,29 @@ def error_shape(diagnosis):
     the band is Φ⁻¹ of that Beta's 2.5 % and 97.5 % points.  Points leaving
     the band at the ends are heavy or light tails; a tilt is skewness.
     """
-    figure = _figure(8.0, 3.6, bottom=0.2)
-    left, right = figure.subplots(1, 2)
+    chart = Chart(8.0, 3.6, columns=2)
+    left = chart.panel(title="Their histogram and the normal curve", xlabel="studentised residual",
+                       ylabel="density", legend=True)
+    right = chart.panel(title="Each ordered residual against its normal expectation", legend=True,
+                        xlabel="expected value for a normal sample", ylabel="ordered residual − expected value")
     r = np.sort(np.asarray(diagnosis.studentized, float)[np.isfinite(diagnosis.studentized)])
     n = r.shape[0]
     if n:
         edges = np.histogram_bin_edges(r, bins=int(np.clip(np.sqrt(n), 5, 40)))
-        left.hist(r, bins=edges, density=True, color=_INK, alpha=0.55, edgecolor="white", linewidth=0.5)
+        counts, _ = np.histogram(r, bins=edges, density=True)
+        left.bars(edges[:-1], np.diff(edges), counts)
         grid = np.linspace(min(edges[0], -3.5), max(edges[-1], 3.5), 200)
-        left.plot(grid, stats.norm.pdf(grid), color=_ACCENT, linewidth=1.4, label="standard normal density")
-        _legend(left, fontsize=7, loc="upper left")
+        left.line(grid, stats.norm.pdf(grid), color=_ACCENT, line_width=1.4, label="standard normal density")
         expected = _blom_quantiles(n)
-        keep = _thin(n, MAX_POINTS)
+        keep = _thin(n, LINE_POINTS)
         position = np.arange(1, n + 1)[keep]
         low = stats.norm.ppf(stats.beta.ppf(0.025, position, n - position + 1)) - expected[keep]
         high = stats.norm.ppf(stats.beta.ppf(0.975, position, n - position + 1)) - expected[keep]
-        right.fill_between(expected[keep], low, high, color=_MUTED, alpha=0.25, linewidth=0,
-                           label="95 % band of a normal sample")
-        right.axhline(0.0, color=_MUTED, linewidth=0.8)
+        right.band(expected[keep], low, high, label="95 % band of a normal sample")
+        right.hline(0.0)
         _scatter(right, expected, r - expected)
-        _legend(right, fontsize=7, loc="upper left")
-    left.set_xlabel("studentised residual")
-    left.set_ylabel("density")
-    left.set_title("Their histogram and the normal curve", fontsize=9)
-    right.set_xlabel("expected value for a normal sample")
-    right.set_ylabel("ordered residual − expected value")
-    right.set_title("Each ordered residual against its normal expectation", fontsize=9)
-    _titled(figure, diagnosis, "shape")
-    return figure
+    _titled(chart, diagnosis, "shape")
+    return chart
 
 
 def spread_by_fitted(diagnosis):
@@ -342,16 +311,14 @@ def spread_by_fitted(diagnosis):
     common variance).  Constant variance puts every group near 1 (the dotted
     line); a trend is what the Breusch-Pagan test (Koenker 1981 form) detects.
     """
-    figure = _figure(6.0, 3.8)
-    axes = figure.add_subplot()
+    chart = Chart(6.0, 3.8)
+    panel = chart.panel(xlabel="fitted value", ylabel="|studentised residual|", ylim=(0.0, None), legend=True)
     fitted = np.asarray(diagnosis.fitted, float)
     r = np.asarray(diagnosis.studentized, float)
     finite = np.isfinite(r)
     fitted, r = fitted[finite], r[finite]
-    _scatter(axes, fitted, np.abs(r))
-    axes.collections[0].set_color(_MUTED)
-    axes.collections[0].set_alpha(0.45)
-    axes.axhline(1.0, color=_INK, linewidth=0.8, linestyle=":", label="the same spread everywhere")
+    _scatter(panel, fitted, np.abs(r), color=_MUTED, alpha=0.45)
+    panel.hline(1.0, color=_INK, dash=":", label="the same spread everywhere")
     centres, sizes, lows, highs = [], [], [], []
     for group in _bins(fitted, _bin_count(len(fitted))):
         total, m = float(np.sum(r[group] ** 2)), group.size
@@ -360,22 +327,16 @@ def spread_by_fitted(diagnosis):
         lows.append(np.sqrt(total / stats.chi2.ppf(0.975, m)))
         highs.append(np.sqrt(total / stats.chi2.ppf(0.025, m)))
     if centres:
-        sizes, lows, highs = np.array(sizes), np.array(lows), np.array(highs)
-        axes.errorbar(centres, sizes, yerr=[sizes - lows, highs - sizes], fmt="D", color=_ACCENT, markersize=5,
-                      capsize=3, linewidth=1.2, label="root mean square of a group, 95 % interval")
-    _legend(axes, fontsize=7, loc="upper left")
-    axes.set_ylim(bottom=0)
-    axes.set_xlabel("fitted value")
-    axes.set_ylabel("|studentised residual|")
-    _titled(figure, diagnosis, "spread")
-    return figure
+        panel.errorbar(centres, sizes, lows, highs, marker="D", label="root mean square of a group, 95 % interval")
+    _titled(chart, diagnosis, "spread")
+    return chart
 
 
 #: Most rows drawn as stems in an influence panel: the largest of those above the screening cut-off.
 MAX_STEMS = 300
 
 
-def _stems(axes, values, limit, names, what):
+def _stems(panel, values, limit, names, what):
     """Stems from zero for the rows above ``limit`` (the largest :data:`MAX_STEMS`); names the largest.
 
     The rows below the screening cut-off are not drawn one by one (at 10⁶ rows
@@ -391,34 +352,31 @@ def _stems(axes, values, limit, names, what):
     keep = np.sort(ranked[:MAX_STEMS])
     below = values[finite & (values <= limit)]
     if below.size:
-        axes.fill_between([1, n], 0, float(below.max()), color=_MUTED, alpha=0.25, linewidth=0,
-                          label=f"{below.size} rows below the screening cut-off")
-    axes.vlines(keep + 1, 0, shown[keep], color=_ACCENT, linewidth=0.9)
-    axes.scatter(keep + 1, shown[keep], s=6, color=_ACCENT)
-    for row in ranked[:8]:
-        axes.annotate(_plain(names.get(int(row), int(row) + 1)), (row + 1, shown[row]), fontsize=7,
-                      color=_ACCENT, xytext=(2, 2), textcoords="offset points")
-    axes.set_xlim(0, n + 1)
-    axes.set_xlabel("row, in the order used (counting from 1)"
+        panel.band([1, n], [0.0, 0.0], [float(below.max())] * 2, label=f"{below.size} rows below the screening cut-off")
+    panel.stems(keep + 1, shown[keep])
+    named = ranked[:8]
+    panel.labels(named + 1, shown[named], [names.get(int(row), int(row) + 1) for row in named])
+    panel.xlim = (0, n + 1)
+    panel.xlabel = ("row, in the order used (counting from 1)"
                     + (f"; the {MAX_STEMS} largest of {above.size} above the cut-off drawn"
                        if above.size > MAX_STEMS else ""))
-    axes.set_ylabel(what)
+    panel.ylabel = what
     return max(top, 0.0)
 
 
-def _cut_lines(axes, top, lines):
-    """Draw the horizontal cut-offs below ``1.25·top``; list the others in a note."""
+def _cut_lines(panel, top, lines):
+    """Draw the horizontal cut-offs below ``1.25·top``; list the others in the legend."""
     ceiling = max(top * 1.25, min(value for value, _, _ in lines) * 1.2)
     beyond = []
     for value, style, label in lines:
         if np.isfinite(value) and value <= ceiling:
-            axes.axhline(value, color=style[0], linestyle=style[1], linewidth=0.9, label=label)
+            panel.hline(value, color=style[0], dash=style[1], line_width=0.9, label=label)
         elif np.isfinite(value):
             beyond.append(label if ":" in label else f"{label} = {value:.3g}")
-    axes.set_ylim(0, ceiling)
+    panel.ylim = (0.0, ceiling)
     for label in beyond:  # a legend entry without a mark: the cut-off is above every row, not drawn
-        axes.plot([], [], " ", label=f"above every row, not drawn: {label}")
-    _legend(axes, fontsize=6.5, loc="upper left")
+        panel.key(f"above every row, not drawn: {label}")
+    panel.legend, panel.legend_size = True, 6.5
 
 
 def row_influence(diagnosis):
@@ -442,8 +400,9 @@ def row_influence(diagnosis):
     flagged = diagnosis.flagged_rows
     names = (dict(zip(flagged["row"].astype(int), flagged["name"].astype(str)))
              if flagged is not None and "name" in flagged else {})
-    figure = _figure(8.0, 3.6, bottom=0.2)
-    left, right = figure.subplots(1, 2)
+    chart = Chart(8.0, 3.6, columns=2)
+    left = chart.panel(title="How much each row moves the fit")
+    right = chart.panel(title="How far each row sits from the others in the terms")
     cooks = np.asarray(diagnosis.cooks_distance, float)
     top = _stems(left, cooks, 4.0 / n, names, "Cook's distance")
     lines = [(4.0 / n, (_MUTED, ":"), f"4/n = {4.0 / n:.3g} (screening)")]
@@ -453,15 +412,13 @@ def row_influence(diagnosis):
                   (float(stats.f.ppf(COOKS_PROBLEM_PERCENTILE, k, n - k)), (_ACCENT, "-"),
                    f"F({k}, {n - k}) median")]
     _cut_lines(left, top, lines)
-    left.set_title("How much each row moves the fit", fontsize=9)
     hat = np.asarray(diagnosis.leverage, float)
     top = _stems(right, hat, 2.0 * k / n, names, "leverage")
     _cut_lines(right, min(top, 1.0), [(2.0 * k / n, (_MUTED, ":"), f"2k/n = {2.0 * k / n:.3g} (screening)"),
                                       (LEVERAGE_LOOK, ("#b9770e", "--"), f"Huber (1981): {LEVERAGE_LOOK:g}"),
                                       (LEVERAGE_PROBLEM, (_ACCENT, "-"), f"Huber (1981): {LEVERAGE_PROBLEM:g}")])
-    right.set_title("How far each row sits from the others in the terms", fontsize=9)
-    _titled(figure, diagnosis, "influence")
-    return figure
+    _titled(chart, diagnosis, "influence")
+    return chart
 
 
 @dataclass(frozen=True, eq=False)
@@ -585,7 +542,7 @@ def term_forms(diagnosis, candidates, *, columns=3):
 
     Returns
     -------
-    matplotlib.figure.Figure or None
+    Chart or None
         None when the model has no numeric term.
     """
     components, _ = term_components(diagnosis, candidates)
@@ -594,33 +551,21 @@ def term_forms(diagnosis, candidates, *, columns=3):
     count = len(components)
     ncols = min(columns, count)
     nrows = int(np.ceil(count / ncols))
-    figure = _figure(3.3 * ncols, 2.9 * nrows + 0.4, left=0.1 if ncols > 1 else 0.16,
-                     top=1.0 - 0.5 / (2.9 * nrows + 0.4), bottom=0.5 / (2.9 * nrows + 0.4))
-    axes = np.atleast_1d(figure.subplots(nrows, ncols)).reshape(-1)
-    for ax, part in zip(axes, components):
-        _scatter(ax, part.x, part.partial)
-        ax.collections[0].set_alpha(0.45)
+    chart = Chart(3.3 * ncols, 2.9 * nrows + 0.4, columns=ncols)
+    for i, part in enumerate(components):
+        panel = chart.panel(title=part.term, label_size=8, legend=i == 0, ylabel="residual + term's part",
+                            xlabel=part.source if part.on_source_scale else f"{part.term} (the term's own scale)")
+        _scatter(panel, part.x, part.partial, alpha=0.45)
         order = np.argsort(part.x, kind="stable")
-        line = order[_thin(order.size, MAX_POINTS)]
-        ax.plot(part.x[line], part.component[line], color=_INK, linewidth=1.8, label="fitted form")
+        line = order[_thin(order.size, LINE_POINTS)]
+        panel.line(part.x[line], part.component[line], line_width=1.8, label="fitted form")
         if part.band is not None and np.all(np.isfinite(part.band[line])):
-            ax.fill_between(part.x[line], part.component[line] - 2 * part.band[line],
-                            part.component[line] + 2 * part.band[line], color=_INK, alpha=0.15, linewidth=0,
-                            label="±2 standard errors")
-        before = len(ax.get_lines())
-        _smooth_line(ax, part.x, part.partial)
-        for smooth in ax.get_lines()[before:]:
-            smooth.set_linestyle("--")
-            smooth.set_label("smoother of the points")
-        ax.set_title(_plain(part.term), fontsize=9)
-        ax.set_xlabel(_plain(part.source if part.on_source_scale else f"{part.term} (the term's own scale)"),
-                      fontsize=8)
-        ax.set_ylabel("residual + term's part", fontsize=8)
-    _legend(axes[0])
-    for ax in axes[count:]:
-        ax.set_visible(False)
-    _titled(figure, diagnosis, "forms")
-    return figure
+            panel.band(part.x[line], part.component[line] - 2 * part.band[line],
+                       part.component[line] + 2 * part.band[line], color=_INK, alpha=0.15,
+                       label="±2 standard errors")
+        _smooth_line(panel, part.x, part.partial, dash="--", label="smoother of the points")
+    _titled(chart, diagnosis, "forms")
+    return chart
 
 
 _READING = {
@@ -695,7 +640,7 @@ def check_figures(diagnosis, candidates=None):
         weighted = (" With row weights, residuals and fitted values are on the √w scale."
                     if candidates is not None and candidates.weights is not None and key != "forms" else "")
         caption = f"{title} Check: {level}. {verdicts} {_READING[key]}{extra}{weighted}"
-        out.append(CheckFigure(key=key, title=title, level=level, caption=caption, figure=figure))
+        out.append(CheckFigure(key=key, title=title, level=level, caption=caption, chart=figure))
     return out
 
 
@@ -709,16 +654,11 @@ def residuals_vs_terms(diagnosis, *, columns=3):
         return None
     count = frame.shape[1]
     ncols = min(columns, count)
-    nrows = int(np.ceil(count / ncols))
-    figure = _figure(3.0 * ncols, 2.6 * nrows, top=1.0 - 0.2 / (2.6 * nrows), bottom=0.45 / (2.6 * nrows))
-    axes = np.atleast_1d(figure.subplots(nrows, ncols)).reshape(-1)
-    for ax, name in zip(axes, frame.columns):
+    chart = Chart(3.0 * ncols, 2.6 * int(np.ceil(count / ncols)), columns=ncols)
+    for name in frame.columns:
+        panel = chart.panel(xlabel=str(name), ylabel="residual", label_size=8)
         x = frame[name].to_numpy(dtype=float)
-        _scatter(ax, x, diagnosis.residuals)
-        ax.axhline(0.0, color=_MUTED, linewidth=0.8)
-        _smooth_line(ax, x, diagnosis.residuals)
-        ax.set_xlabel(_plain(name), fontsize=8)
-        ax.set_ylabel("residual", fontsize=8)
-    for ax in axes[count:]:
-        ax.set_visible(False)
-    return figure
+        _scatter(panel, x, diagnosis.residuals)
+        panel.hline(0.0)
+        _smooth_line(panel, x, diagnosis.residuals)
+    return chart

@@ -52,7 +52,7 @@ from typing import Any, Sequence
 import numpy as np
 import pandas as pd
 
-from .. import _kept
+from .. import _kept, _stages
 from ..errors import InputError, OptionError, SearchError, TooManyCandidatesError
 from ..moments import compute_moments, heldout_sse, moments_of
 from ..parallel import WorkUnit, run_units, spawn_seeds
@@ -866,10 +866,15 @@ def procedure_cv_error(candidates, runner, *, criterion="bic", convention="sigma
                 rows[i] = kept
                 todo.remove(i)
 
+    finished = [len(outer) - len(todo)]
+
     def arrived(j, row):
         if keeper is not None and row is not None:
             keeper.put(names[todo[j]], base, row)
+        finished[0] += 1
+        _stages.step("outer folds of the honest error", finished[0], len(outer))
 
+    _stages.step("outer folds of the honest error", finished[0], len(outer))
     done = run_units(_procedure_unit, [payloads[i] for i in todo], n_jobs=n_jobs, backend=backend,
                      scheduler=scheduler, should_stop=deadline, on_result=arrived)
     for i, row in zip(todo, done):
