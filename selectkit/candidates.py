@@ -947,6 +947,7 @@ def build_candidates(
     response_transform=None,
     box_tidwell_adjust=False,
     curvature_test=True,
+    rows_represented=None,
 ) -> CandidateSet:
     """Build every candidate form of every predictor of a dataset.
 
@@ -1038,6 +1039,13 @@ def build_candidates(
         predictor without that evidence gets its raw form only, with a
         refusal naming t for each curved form.  Applies when the identity
         form is asked; False offers every form of every predictor.
+    rows_represented : int, optional
+        When ``dataset`` is a sample of a larger table (a table read in
+        parts), that table's row count N.  The curvature test's t grows as the
+        square root of the rows for a fixed bend, so the sample's t (on n rows)
+        is scaled to the table's, t·√(N/n), and compared with log N: a bend
+        the search on all N rows would see is not ruled out because the sample
+        is small.
 
     Returns
     -------
@@ -1094,7 +1102,8 @@ def build_candidates(
                              f"run); the searches and every fit use all rows")
     straight = {}
     if curvature_test and ("identity", None) in plan and len(plan) > 1:
-        straight = _straight_families(dataset, y, weights, shift_map, builder.notes)
+        straight = _straight_families(dataset, y, weights, shift_map, builder.notes,
+                                      represented=rows_represented)
     others = None
     if box_tidwell_adjust and any(form == "boxtidwell" for form, _ in plan):
         others = _raw_columns(dataset)

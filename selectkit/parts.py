@@ -943,7 +943,8 @@ def _survey_and_sample(table, s, build_options, client):
     _exact_refusals(table, offsets, merged, response=s["response"], weights=s["row_weights"],
                     pool=tuple(dataset.predictors), missing_policy=policy)
     dataset = _with_full_levels(dataset, merged)
-    cands = _candidates.build_candidates(dataset, **build_options)
+    # the curvature screen runs on the sample, with its evidence scaled to the rows the search will use
+    cands = _candidates.build_candidates(dataset, **build_options, rows_represented=n_total)
     # the checks' rows: the random sample, without the rows added for the extremes and the levels
     global_rows = positions[np.asarray(dataset.source_rows)]
     chosen = np.flatnonzero(np.isin(global_rows, random))

@@ -179,6 +179,32 @@ def test_a_sampled_table_checks_on_the_sample_and_ranks_on_every_row(tmp_path):
     assert "seeded sample of 4000 rows" in notes
 
 
+def test_a_bend_too_weak_for_the_sample_but_clear_on_every_row_keeps_its_curved_form(tmp_path):
+    # Invented bays: yield follows 0.12·log(light), a bend the 5,000-row checks sample cannot show on its own
+    # (t² ≤ log n there) but 200,000 rows show plainly.  The curvature screen scales the sample's evidence to
+    # the table (t·√(N/n) against log N), so the log form reaches the search, which picks it on every row.
+    import statsmodels.api as sm
+
+    from selectkit.candidates import build_candidates
+    from selectkit.data import prepare
+
+    rng = np.random.default_rng(0)
+    n = 200_000
+    frame = pd.DataFrame({"light": rng.uniform(1, 10, n), "heat": rng.uniform(0, 1, n)})
+    frame[RESPONSE] = 0.12 * np.log(frame.light) + frame.heat + rng.normal(0, 1, n)
+    folder = _write_parts(frame, tmp_path / "weak", 4)
+    result = selectkit.search(folder, response=RESPONSE, forms=("identity", "log"), check_sample_rows=5000)
+    assert result.terms(0) == ("log(light)", "heat")
+    # the sample alone, screened as a table of its own rows, has no evidence of the bend: the old refusal
+    sample = result.dataset.frame.assign(**{RESPONSE: result.dataset.y})
+    alone = build_candidates(prepare(sample, response=RESPONSE), forms=("identity", "log"))
+    assert "log(light)" not in [t.name for t in alone.terms]
+    # external check (statsmodels on all 200,000 rows): BIC prefers the log form by far
+    bic = {name: sm.OLS(frame[RESPONSE], sm.add_constant(np.column_stack([f(frame.light), frame.heat]))).fit().bic
+           for name, f in (("log", np.log), ("raw", lambda v: v))}
+    assert bic["log"] < bic["raw"] - 10
+
+
 def test_a_zero_in_one_part_outside_the_sample_still_rules_out_the_log(tmp_path):
     frame = _table(12_000, seed=4)
     frame.loc[11_500, "heat"] = 0.0  # one row, in the last part
