@@ -217,6 +217,30 @@ def added_column_t(design, y, probes, weights=None):
     return t if df > 0 else np.full(probes.shape[1], np.nan)
 
 
+def _t_after(project, x, probe, y):
+    """t of ``probe`` added to the fit of y on [nuisance, x], the nuisance space factorised in ``project``.
+
+    The Frisch-Waugh-Lovell steps of :func:`added_column_t` with the design
+    [nuisance, x]: residualise on the nuisance space (its basis already held),
+    then on the residualised x (left out when it lies in the nuisance space).
+    NaN where the probe lies in that span.
+    """
+    xr, r, e = project(x), project(probe), project(y)
+    rank = project.rank
+    xx = float(xr @ xr)
+    own = x if project.scale is None else x * project.scale
+    if xx > 1e-24 * float(own @ own):
+        r = r - xr * (float(xr @ r) / xx)
+        e = e - xr * (float(xr @ e) / xx)
+        rank += 1
+    rr, re = float(r @ r), float(r @ e)
+    df = x.shape[0] - rank - 1
+    if df <= 0 or not rr > 1e-24 * float(probe @ probe):
+        return np.nan
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return float(re / np.sqrt((float(e @ e) - re * re / rr) / df * rr))
+
+
 def _straight_families(dataset, y, weights, shift_map, notes, represented=None):
     """Numeric predictors with no evidence of curvature once the other predictors are in the fit.
 
@@ -238,10 +262,13 @@ def _straight_families(dataset, y, weights, shift_map, notes, represented=None):
     one always fits the noise a little better than the raw form, which BIC
     does not charge for.
 
-    When the dataset is a sample of n rows standing for a table of
-    ``represented`` = N > n rows (a table read in parts), t is scaled to the
-    table, t·√(N/n) (the t of a fixed bend grows as √n), and compared with
-    log N: the forms the search on all N rows could tell apart are offered.
+    The test runs on at most :data:`selectkit.transforms.PARAMETER_SAMPLE_ROWS`
+    rows (the seeded sample the Box-Tidwell powers are fitted on; each cycle
+    costs several least-squares fits over the rows).  When those n rows stand
+    for a table of N > n rows (a larger table, or the sample of a table read
+    in parts, ``represented`` = N), t is scaled to the table, t·√(N/n) (the t
+    of a fixed bend grows as √n), and compared with log N: the forms the
+    search on all N rows could tell apart are offered.
     A straight variable then passes more often than on a table of N rows
     (|t| > √(n·log N / N) on the sample), which the search on all rows,
     where the raw form fits best, mostly undoes.  ``benchmarks/bench_false_curvature.py`` measures
@@ -253,8 +280,13 @@ def _straight_families(dataset, y, weights, shift_map, notes, represented=None):
         ``{column: reason}`` for the predictors offered in their raw form only.
     """
     raw = _raw_columns(dataset)
-    n = dataset.n
-    big = max(n, int(represented or n))  # the rows the evidence stands for
+    big = max(dataset.n, int(represented or dataset.n))  # the rows the evidence stands for
+    rows = tf.parameter_rows(dataset.n)  # above 50,000 rows: the seeded sample the powers are fitted on
+    if rows is not None:
+        raw = {name: v[rows] for name, v in raw.items()}
+        y = np.asarray(y)[rows]
+        weights = None if weights is None else np.asarray(weights)[rows]
+    n = dataset.n if rows is None else rows.size
     scale = big / n  # t² on the sample times N/n: the t² the table would show for the same bend
     names = sorted(c for c in dataset.numeric if c in raw and np.ptp(raw[c]) > 0)  # by name: order-free
     if not names:
@@ -291,9 +323,11 @@ def _straight_families(dataset, y, weights, shift_map, notes, represented=None):
         before = dict(power)
         if held:
             t = added_column_t(design(before), y, probes, weights)
+            nuisance = {}  # per predictor: the others in their current forms, factorised once for two uses
             for j, col in enumerate(names):
                 if col in before:  # its own column is curved in that design: test it against its raw form
-                    t[j] = added_column_t(design(before, raw_for=col), y, probes[:, [j]], weights)[0]
+                    nuisance[col] = tf._Residualiser(n, weights, design(before, exclude=col)[:, 1:])
+                    t[j] = _t_after(nuisance[col], raw[col][:, 0], probes[:, j], y)
         else:
             t = np.array([added_column_t(np.column_stack([np.ones(n), raw[c]]), y, probes[:, [j]], weights)[0]
                           for j, c in enumerate(names)])
@@ -304,9 +338,9 @@ def _straight_families(dataset, y, weights, shift_map, notes, represented=None):
                 continue
             power[col] = 1.0
             if positive[col] and held:
-                rest = design(before, exclude=col)[:, 1:]
-                fitted = tf.box_tidwell(values[col], y, weights=weights,
-                                        covariates=rest if rest.shape[1] else None).power
+                project = nuisance.get(col) or tf._Residualiser(n, weights, design(before, exclude=col)[:, 1:])
+                with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+                    fitted = tf._box_tidwell(values[col], y, weights, None, 3.0, 1e-7, 50, project=project).power
                 power[col] = fitted if fitted is not None else 1.0
             elif positive[col] and not held:
                 fitted = tf.box_tidwell(values[col], y, weights=weights).power

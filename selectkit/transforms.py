@@ -457,10 +457,12 @@ def box_tidwell(x, y, *, weights=None, covariates=None, max_power=3.0, tol=1e-7,
         return _box_tidwell(x, y, w, Z, max_power, tol, max_iter)
 
 
-def _box_tidwell(x, y, w, Z, max_power, tol, max_iter):
+def _box_tidwell(x, y, w, Z, max_power, tol, max_iter, project=None):
+    """The iteration of :func:`box_tidwell` on rows already sampled; ``project``: a prebuilt
+    :class:`_Residualiser` of ``[1, Z]`` (then ``Z`` is not used), shared with other fits on those rows."""
     n = x.shape[0]
     logu = np.log(x) - np.log(x).mean()
-    project = _Residualiser(n, w, Z)
+    project = _Residualiser(n, w, Z) if project is None else project
     yr = project(y)
 
     # Test of α = 1: t statistic of x·log x added to the straight line.

@@ -786,3 +786,26 @@ def test_the_gate_keeps_domain_reasons_for_forms_undefined_on_the_data():
     report = cands.describe().set_index("form")
     assert "crosses zero" in report.loc["reciprocal", "reason"]  # its domain, not the gate
     assert "no evidence that night_temp_c bends" in report.loc["square", "reason"]  # defined, but straight
+
+
+@pytest.mark.parametrize("weighted", [False, True])
+def test_the_curvature_t_with_a_shared_factorisation_is_the_statsmodels_t(weighted):
+    # The screen factorises the other predictors once and adds x then the probe (Frisch-Waugh-Lovell);
+    # the t must be the one of the probe's coefficient in the full OLS / WLS fit (statsmodels).
+    import statsmodels.api as sm
+
+    from selectkit import transforms as tf
+    from selectkit._vetting import _probe, _t_after
+
+    rng = np.random.default_rng(12)
+    n = 400
+    Z = rng.normal(size=(n, 3))
+    x = rng.uniform(1, 20, n) + Z[:, 0]
+    x = x - x.min() + 1.0
+    y = 1 + np.log(x) + Z @ [0.5, -0.2, 0.1] + rng.normal(0, 0.3, n)
+    w = rng.uniform(0.5, 2.0, n) if weighted else None
+    probe = _probe(x, True)
+    got = _t_after(tf._Residualiser(n, w, Z), x, probe, y)
+    X = sm.add_constant(np.column_stack([Z, x, probe]))
+    fit = sm.WLS(y, X, weights=w).fit() if weighted else sm.OLS(y, X).fit()
+    assert got == pytest.approx(fit.tvalues[-1], rel=1e-8)
