@@ -206,6 +206,8 @@ def test_large_data_are_thinned_in_the_plots():
     assert any("row shown" in note for note in chart.panels[0].notes) and "row shown" in chart.to_svg()
     svg = chart.to_svg()  # the SVG draws each kept point once: one "h0" dot per row shown
     assert svg.count("h0") == len(points.x)
+    captions = {item.key: item.caption for item in plots.check_figures(d)}
+    assert "every 6th of the 12,000 rows" in captions["mean"] and "every 6th" not in captions["influence"]
 
 
 def test_dollar_signs_in_names_do_not_break_the_figures():

@@ -639,7 +639,11 @@ def check_figures(diagnosis, candidates=None):
         level, verdicts = _aspect_verdict(diagnosis, aspect)
         weighted = (" With row weights, residuals and fitted values are on the √w scale."
                     if candidates is not None and candidates.weights is not None and key != "forms" else "")
-        caption = f"{title} Check: {level}. {verdicts} {_READING[key]}{extra}{weighted}"
+        step = int(np.ceil(diagnosis.n / MAX_POINTS))
+        thinned = (f" The points are every {step}th of the {diagnosis.n:,} rows (at most {MAX_POINTS:,} drawn); "
+                   "the group means, bands and checks use every row."
+                   if step > 1 and key in ("mean", "forms", "shape", "spread") else "")
+        caption = f"{title} Check: {level}. {verdicts} {_READING[key]}{extra}{weighted}{thinned}"
         out.append(CheckFigure(key=key, title=title, level=level, caption=caption, chart=figure))
     return out
 
