@@ -11,10 +11,11 @@ nothing is kept.
 from __future__ import annotations
 
 import hashlib
-from contextlib import contextmanager
 from contextvars import ContextVar
 
 import numpy as np
+
+from ._context import holding
 
 __all__ = ["current", "kept_in", "basis"]
 
@@ -26,14 +27,9 @@ def current():
     return _KEEPER.get()
 
 
-@contextmanager
 def kept_in(keeper):
-    """Keep the pieces' results with ``keeper`` while the block runs."""
-    token = _KEEPER.set(keeper)
-    try:
-        yield keeper
-    finally:
-        _KEEPER.reset(token)
+    """Keep the pieces' results with ``keeper`` while the block runs (a context manager)."""
+    return holding(_KEEPER, keeper)
 
 
 def basis(*items) -> str:

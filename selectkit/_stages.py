@@ -12,8 +12,9 @@ workers are reported when their results come back).
 
 from __future__ import annotations
 
-from contextlib import contextmanager
 from contextvars import ContextVar
+
+from ._context import holding
 
 __all__ = ["step", "heard_by"]
 
@@ -27,11 +28,6 @@ def step(stage: str, done: int, total: int) -> None:
         listener(stage, done, total)
 
 
-@contextmanager
 def heard_by(listener):
-    """Call ``listener(stage, done, total)`` on every :func:`step` while the block runs."""
-    token = _LISTENER.set(listener)
-    try:
-        yield listener
-    finally:
-        _LISTENER.reset(token)
+    """Call ``listener(stage, done, total)`` on every :func:`step` while the block runs (a context manager)."""
+    return holding(_LISTENER, listener)

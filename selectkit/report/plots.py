@@ -189,7 +189,7 @@ class CheckFigure:
     chart : selectkit.report.chart.Chart
         The figure's description (``chart.to_svg()`` for a page).
     figure : matplotlib.figure.Figure
-        The same figure drawn by matplotlib, built on first use.
+        The same figure drawn by matplotlib (imported then), a new one at each access.
     """
 
     key: str
