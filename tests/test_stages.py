@@ -81,3 +81,24 @@ def test_a_job_log_records_the_stages_of_its_finishing(tmp_path):
     for stage in ("ranking the pooled models", "bootstrap resamples", "checking the shortlisted models",
                   "writing the report"):
         assert f"{stage}: done in" in text, stage
+
+
+def test_on_a_terminal_the_command_line_shows_a_bar_for_each_stage_after_the_search(tmp_path, monkeypatch):
+    import sys
+
+    from selectkit import cli
+
+    class Terminal(io.StringIO):
+        def isatty(self):
+            return True
+
+    _bays().to_csv(tmp_path / "bays.csv", index=False)
+    screen = Terminal()
+    monkeypatch.setattr(sys, "stderr", screen)
+    assert cli.main(["search", str(tmp_path / "bays.csv"), "-r", "yield_kg_m2", "--forms", "identity,log",
+                     "--resamples", "3", "--output", str(tmp_path / "out")]) == 0
+    shown = screen.getvalue()
+    for stage in ("searching", "ranking the pooled models", "bootstrap resamples", "checking the shortlisted models",
+                  "writing the report"):
+        assert stage in shown, stage
+    assert "3/3" in shown  # the resamples' bar reached its total
