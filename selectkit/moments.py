@@ -210,9 +210,8 @@ def _check_range(Z: np.ndarray, D: np.ndarray, C: np.ndarray, mean: np.ndarray, 
     algorithm, so this is an input error whose fix is to rescale the column.
     """
     rows, width = Z.shape
-    with np.errstate(over="ignore", invalid="ignore"):
-        size = np.abs(D)
-        spread = np.max(size, axis=0) if rows else np.zeros(width)
+    with np.errstate(over="ignore", invalid="ignore"):  # max |d| as two reductions: no n × p temporary
+        spread = np.maximum(D.max(axis=0), -D.min(axis=0)) if rows else np.zeros(width)
     bad_big = ~np.isfinite(mean) | ~np.isfinite(np.diag(C)) | ~(spread <= LARGEST_SPREAD)
     bad_small = (spread > 0) & (spread < SMALLEST_SPREAD)
     where = f"rows {first_row}..{first_row + rows - 1}"
@@ -229,7 +228,7 @@ def _check_range(Z: np.ndarray, D: np.ndarray, C: np.ndarray, mean: np.ndarray, 
                 column=column, column_index=j, count=count,
             )
         if bad_big[j]:
-            values = size[:, j] if np.isfinite(mean[j]) else np.abs(Z[:, j])
+            values = np.abs(D[:, j]) if np.isfinite(mean[j]) else np.abs(Z[:, j])
             count = int(np.count_nonzero(~(values <= LARGEST_SPREAD)))
             top = float(np.max(values))
             fix = (f"divide it by 1e{int(np.floor(np.log10(top)))} (or another power of ten)" if np.isfinite(top)
@@ -253,7 +252,18 @@ def _chunk_moments(X: np.ndarray, y: np.ndarray, w: np.ndarray | None, first_row
             f"the candidate matrix has {X.shape[0]} rows but the response has {y.shape[0]} "
             f"(chunk starting at row {first_row}); pass them with the same rows"
         )
-    Z = np.column_stack([X, y]).astype(np.float64, copy=False)
+    return stacked_moments(np.column_stack([X, y]).astype(np.float64, copy=False), w, first_row, names)
+
+
+def stacked_moments(Z: np.ndarray, w: np.ndarray | None, first_row: int, names=None) -> Moments:
+    """Two-pass centred moments of the rows of ``Z = [X, y]`` (the response its last column).
+
+    The mean over the rows, the deviations D = Z − mean and DᵀD (or
+    (D·w)ᵀD with weights), after the checks that every value and weight is
+    finite (weights non-negative) and every spread representable
+    (:func:`_check_range`).  A caller that already holds ``[X, y]`` in one
+    matrix (a table read in parts builds it in place) passes it without a copy.
+    """
     bad = ~np.isfinite(Z)
     if bad.any():
         counts = bad.sum(axis=0)
