@@ -164,11 +164,6 @@ class Chart:
         self.panels.append(item)
         return item
 
-    @property
-    def axes(self) -> list:
-        """The panels (the name matplotlib users look for)."""
-        return self.panels
-
     def to_svg(self, *, namespace: bool = True) -> str:
         """The chart as one ``<svg>`` element (no XML prolog), sized in px, escaped, with no script.
 
