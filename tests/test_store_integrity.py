@@ -75,6 +75,21 @@ def test_a_flipped_bit_in_a_complete_store_never_reaches_the_shortlist(tmp_path,
     assert (tmp_path / "results" / "shortlist.csv").read_bytes() == straight
 
 
+def test_status_counts_a_damaged_unit_out_and_names_it(tmp_path):
+    write_table(tmp_path / "bays.csv")
+    spec = load_job(write_job(tmp_path, exhaustive="chunks = 12\ndelay = 0.05", extra_run='time_budget = "0.3s"\n'))
+    first = run_fake(spec)
+    assert not first.complete and first.units_done >= 2
+    key = _flip_a_bit(tmp_path / "results" / STORE_NAME)
+    status = store_status(tmp_path / "results")
+    # the stored bytes of one finished unit changed: it is not finished any more, and the status says which
+    assert status.units_done == first.units_done - 1 and status.units_damaged == (key,)
+    assert f"{first.units_done - 1} of {status.units_total} finished" in status.render()
+    assert key in status.render() and "checksum" in status.render()
+    with RunStore.open_read_only(tmp_path / "results") as store:
+        assert store.unit_counts()[0] == first.units_done  # reading the status marked nothing
+
+
 def test_read_units_names_the_damaged_and_keeps_the_rest(tmp_path):
     store = RunStore.create_or_open(tmp_path)
     try:

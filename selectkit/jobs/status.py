@@ -45,6 +45,10 @@ class StoreStatus:
         The data file the store belongs to.
     eta : float or None
         While running: seconds left, from the pace of the units finished in this run.
+    units_damaged : tuple of str
+        Keys of the units recorded as finished whose stored bytes fail their
+        checksum: they are not counted in ``units_done``, and the next resume
+        runs them again.
     """
 
     store: Path
@@ -62,12 +66,18 @@ class StoreStatus:
     shortlist: tuple[dict, ...]
     data: str
     eta: float | None = None
+    units_damaged: tuple[str, ...] = ()
 
     def render(self) -> str:
         """Readable lines for a person."""
         lines = [f"job {self.name}: {self.state}"]
         share = f" ({100 * self.units_done / self.units_total:.0f}%)" if self.units_total else ""
         lines.append(f"  units: {self.units_done} of {self.units_total} finished{share}")
+        if self.units_damaged:
+            shown = ", ".join(self.units_damaged[:5]) + (f" and {len(self.units_damaged) - 5} more"
+                                                        if len(self.units_damaged) > 5 else "")
+            lines.append(f"  {len(self.units_damaged)} more recorded as finished fail their checksum (their stored "
+                         f"bytes changed) and are run again by the next resume: {shown}")
         lines.append(f"  models evaluated: {self.models_evaluated:,}")
         now = time.time()
         if self.started_at is not None:
@@ -134,6 +144,8 @@ def _read_status(path, *, log_lines: int, shortlist_rows: int) -> StoreStatus:
     with RunStore.open_read_only(path) as store:
         about = store.about()
         done, models = store.unit_counts()
+        damaged = tuple(store.verify_units())  # read-only: counted here, marked by the next run
+        done -= len(damaged)
         finished = [at for _, _, at in store.unit_times() if at is not None]
         updated = max(finished, default=None)
         started = about.get("run_started_at")
@@ -172,4 +184,5 @@ def _read_status(path, *, log_lines: int, shortlist_rows: int) -> StoreStatus:
         shortlist=shortlist if state != "running" else (),
         data=str((about.get("data") or {}).get("path", "")),
         eta=eta,
+        units_damaged=damaged,
     )
