@@ -241,6 +241,63 @@ def _t_after(project, x, probe, y):
         return float(re / np.sqrt((float(e @ e) - re * re / rr) / df * rr))
 
 
+class _LeaveOneOut:
+    """One QR factorisation of a full-rank design D, and from it the projection off the span of D without
+    one predictor's columns, for every predictor in turn.
+
+    With D = QR (columns scaled, rows by √w), the columns of Q·R⁻ᵀ·E_J
+    (E_J: the unit vectors of predictor J's columns) span the parts of D_J
+    orthogonal to the other columns, so the residual maker of the design
+    without J is M₋J v = v − Q(I − VVᵀ)Qᵀv, with V an orthonormal basis of
+    R⁻ᵀE_J: exact (up to round-off) and about one matrix-vector product per
+    use, where a factorisation per predictor costs one SVD of all rows each.
+    """
+
+    #: Largest ratio of R's largest to smallest diagonal entry (of the column-scaled design) taken as full
+    #: rank here; beyond it each predictor's nuisance space is factorised on its own (our choice).
+    CONDITION_LIMIT = 1e8
+
+    def __init__(self, q, r_inv_t, scale, blocks):
+        self.q, self.r_inv_t, self.scale, self.blocks = q, r_inv_t, scale, blocks
+
+    @classmethod
+    def of(cls, design, weights, blocks):
+        """The factorisation of ``design`` (its first column the intercept), or None when it is not of
+        full rank to within :data:`CONDITION_LIMIT`."""
+        from scipy.linalg import qr, solve_triangular
+
+        root = None if weights is None else np.sqrt(np.asarray(weights, dtype=float))
+        d = design if root is None else design * root[:, None]
+        top = np.max(np.abs(d), axis=0)
+        if not (np.all(top > 0) and np.all(np.isfinite(d))):
+            return None
+        q, r = qr(d / top, mode="economic", check_finite=False)
+        pivots = np.abs(np.diag(r))
+        if not pivots.min() * cls.CONDITION_LIMIT > pivots.max():
+            return None
+        r_inv_t = solve_triangular(r, np.eye(r.shape[0]), trans="T", check_finite=False)
+        return cls(q, r_inv_t, root, blocks)
+
+    def without(self, name):
+        """The residual maker of the design without ``name``'s columns (``__call__``, ``rank``, ``scale``:
+        what :func:`_t_after` and :func:`selectkit.transforms._box_tidwell` use)."""
+        v, _ = np.linalg.qr(self.r_inv_t[:, self.blocks[name]])
+        return _Without(self.q, v, self.q.shape[1] - v.shape[1], self.scale)
+
+
+class _Without:
+    """M₋J of :class:`_LeaveOneOut`: v ↦ v − Q(I − VVᵀ)Qᵀv, on √w-scaled v."""
+
+    def __init__(self, q, v, rank, scale):
+        self.q, self.v, self.rank, self.scale = q, v, rank, scale
+
+    def __call__(self, x):
+        if self.scale is not None:
+            x = x * self.scale
+        c = self.q.T @ x
+        return x - self.q @ (c - self.v @ (self.v.T @ c))
+
+
 def _straight_families(dataset, y, weights, shift_map, notes, represented=None):
     """Numeric predictors with no evidence of curvature once the other predictors are in the fit.
 
@@ -305,28 +362,43 @@ def _straight_families(dataset, y, weights, shift_map, notes, represented=None):
     statistic = dict.fromkeys(names, np.nan)
     order = sorted(raw)
 
-    def design(current, raw_for=None, exclude=None):
-        """[1, every predictor in its current form]; ``raw_for`` raw, ``exclude`` left out."""
+    def design(current, exclude=None, blocks=None):
+        """[1, every predictor in its current form], ``exclude`` left out; ``blocks`` (a dict) receives
+        each predictor's column positions."""
         columns = [np.ones((n, 1))]
+        at = 1
         for name in order:
             if name == exclude:
                 continue
-            if name == raw_for or name not in current:
+            if name not in current:
                 columns.append(raw[name])
             elif positive[name]:
                 columns.append(_bent(values[name], current[name])[:, None])
             else:  # curved, of both signs: held as x and x²
                 columns.append(np.column_stack([raw[name], _probe(values[name], False)]))
+            if blocks is not None:
+                blocks[name] = np.arange(at, at + columns[-1].shape[1])
+            at += columns[-1].shape[1]
         return np.column_stack(columns)
+
+    def held_out(current, col, everyone):
+        """The nuisance space of ``col`` (the others in their current forms): from the one factorisation
+        of the whole design when it has full rank, else factorised on its own."""
+        if everyone is not None:
+            return everyone.without(col)
+        return tf._Residualiser(n, weights, design(current, exclude=col)[:, 1:])
 
     for _cycle in range(_CURVATURE_CYCLES if held else 1):
         before = dict(power)
         if held:
-            t = added_column_t(design(before), y, probes, weights)
-            nuisance = {}  # per predictor: the others in their current forms, factorised once for two uses
+            blocks: dict = {}
+            whole = design(before, blocks=blocks)
+            t = added_column_t(whole, y, probes, weights)
+            everyone = _LeaveOneOut.of(whole, weights, blocks)  # None when the design is rank-deficient
+            nuisance = {}  # per predictor: the others in their current forms, for its test and its power
             for j, col in enumerate(names):
                 if col in before:  # its own column is curved in that design: test it against its raw form
-                    nuisance[col] = tf._Residualiser(n, weights, design(before, exclude=col)[:, 1:])
+                    nuisance[col] = held_out(before, col, everyone)
                     t[j] = _t_after(nuisance[col], raw[col][:, 0], probes[:, j], y)
         else:
             t = np.array([added_column_t(np.column_stack([np.ones(n), raw[c]]), y, probes[:, [j]], weights)[0]
@@ -338,7 +410,7 @@ def _straight_families(dataset, y, weights, shift_map, notes, represented=None):
                 continue
             power[col] = 1.0
             if positive[col] and held:
-                project = nuisance.get(col) or tf._Residualiser(n, weights, design(before, exclude=col)[:, 1:])
+                project = nuisance.get(col) or held_out(before, col, everyone)
                 with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
                     fitted = tf._box_tidwell(values[col], y, weights, None, 3.0, 1e-7, 50, project=project).power
                 power[col] = fitted if fitted is not None else 1.0

@@ -227,17 +227,27 @@ def boxcox_llf(x, lam):
     x : array_like, positive
     lam : float
     """
+    return _boxcox_profile(x)(lam)
+
+
+def _boxcox_profile(x):
+    """:func:`boxcox_llf` of ``x`` as a function of λ alone, log x computed once for every λ asked."""
     x = np.asarray(x, dtype=float)
     n = x.shape[0]
     logx = np.log(x)
     mean_log = logx.mean()
+    log_sum = logx.sum()
     u = logx - mean_log  # log of x / geometric mean
-    z = u if lam == 0 else np.expm1(lam * u) / lam
-    var = np.mean((z - z.mean()) ** 2)
-    if not np.isfinite(var) or var <= 0:
-        return -np.inf
-    # var(boxcox(x)) = g^(2λ) var(boxcox(x/g))
-    return float((lam - 1.0) * logx.sum() - 0.5 * n * (2.0 * lam * mean_log + np.log(var)))
+
+    def llf(lam):
+        z = u if lam == 0 else np.expm1(lam * u) / lam
+        var = np.mean((z - z.mean()) ** 2)
+        if not np.isfinite(var) or var <= 0:
+            return -np.inf
+        # var(boxcox(x)) = g^(2λ) var(boxcox(x/g))
+        return float((lam - 1.0) * log_sum - 0.5 * n * (2.0 * lam * mean_log + np.log(var)))
+
+    return llf
 
 
 def yeojohnson_llf(x, lam):
@@ -308,7 +318,7 @@ def boxcox_lambda(x):
     True
     """
     (x,) = _sampled(np.asarray(x, dtype=float))
-    return _maximise(lambda t: boxcox_llf(x, t))
+    return _maximise(_boxcox_profile(x))
 
 
 def yeojohnson_lambda(x):

@@ -809,3 +809,61 @@ def test_the_curvature_t_with_a_shared_factorisation_is_the_statsmodels_t(weight
     X = sm.add_constant(np.column_stack([Z, x, probe]))
     fit = sm.WLS(y, X, weights=w).fit() if weighted else sm.OLS(y, X).fit()
     assert got == pytest.approx(fit.tvalues[-1], rel=1e-8)
+
+
+@pytest.mark.parametrize("weighted", [False, True])
+def test_leaving_one_predictor_out_of_one_factorisation_gives_the_statsmodels_residuals(weighted):
+    # The screen factorises the whole design once and, for each predictor, projects off the design
+    # without that predictor's columns (one of them two columns wide): the residuals of a vector must be
+    # those of the OLS / WLS fit on that smaller design (statsmodels; √w-scaled for WLS, as selectkit uses).
+    import statsmodels.api as sm
+
+    from selectkit._vetting import _LeaveOneOut
+
+    rng = np.random.default_rng(31)
+    n = 500
+    common = rng.normal(size=n)
+    design = np.column_stack([np.ones(n), common + rng.normal(size=n), 1e3 * (common + rng.normal(size=n)),
+                              rng.normal(size=n), rng.normal(size=n) ** 2, rng.uniform(0, 1e-3, n)])
+    blocks = {"a": np.array([1]), "b": np.array([2]), "c": np.array([3, 4]), "d": np.array([5])}
+    w = rng.uniform(0.5, 2.0, n) if weighted else None
+    v = 3.0 * design[:, 1] - design[:, 3] + rng.normal(size=n)
+    everyone = _LeaveOneOut.of(design, w, blocks)
+    for name, cols in blocks.items():
+        keep = [j for j in range(design.shape[1]) if j not in cols]
+        fit = sm.WLS(v, design[:, keep], weights=w).fit() if weighted else sm.OLS(v, design[:, keep]).fit()
+        expected = fit.resid * (np.sqrt(w) if weighted else 1.0)
+        project = everyone.without(name)
+        assert project.rank == len(keep)
+        np.testing.assert_allclose(project(v), expected, rtol=0, atol=1e-9 * np.abs(v).max())
+
+
+def test_a_rank_deficient_design_is_not_factorised_once():
+    from selectkit._vetting import _LeaveOneOut
+
+    rng = np.random.default_rng(32)
+    x = rng.normal(size=100)
+    design = np.column_stack([np.ones(100), x, 2.0 * x])
+    assert _LeaveOneOut.of(design, None, {"a": np.array([1]), "b": np.array([2])}) is None
+
+
+def test_the_screen_decides_the_same_with_one_factorisation_or_one_per_predictor(monkeypatch):
+    # The shared factorisation only saves time: with it refused (every predictor factorised on its own,
+    # the path taken for a rank-deficient design) the screen keeps the same forms and fits the same powers.
+    from selectkit._vetting import _LeaveOneOut
+
+    rng = np.random.default_rng(33)
+    n = 600
+    common = rng.normal(size=n)
+    frame = {f"x{i}": np.exp(1.0 + 0.4 * (0.6 * common + 0.8 * rng.normal(size=n))) for i in range(6)}
+    frame["swing"] = rng.normal(0.0, 5.0, n)
+    y = (np.log(frame["x0"]) * 3 + 2.0 / frame["x1"] + 0.5 * frame["x2"] + 0.02 * frame["swing"] ** 2
+         + rng.normal(0, 0.3, n))
+    shared = build_candidates(small_dataset(frame, y))
+    monkeypatch.setattr(_LeaveOneOut, "CONDITION_LIMIT", 0.0)  # never full rank: one factorisation each
+    alone = build_candidates(small_dataset(frame, y))
+    assert shared.names == alone.names
+    assert [(r.family, r.form, r.reason) for r in shared.refused] == [(r.family, r.form, r.reason)
+                                                                       for r in alone.refused]
+    assert "log(x0)" in shared.names and not [r for r in shared.refused if r.family == "x0"
+                                               and "no evidence" in r.reason]
