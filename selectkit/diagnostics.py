@@ -891,8 +891,8 @@ def _outlier_rows(studentized, n, k, alpha, namer, how):
     with np.errstate(divide="ignore", invalid="ignore"):
         external = np.abs(studentized) * np.sqrt(dof / (n - k - r2))
     external = np.where(np.isfinite(external), external, 0.0)
-    bonferroni = np.minimum(1.0, n * 2.0 * stats.t.sf(external, dof))
-    far = np.flatnonzero(bonferroni < alpha)
+    # n·2·P(T > |tᵢ|) < alpha  ⇔  |tᵢ| > the upper alpha/(2n) point of t(dof) (one quantile, not n tail areas)
+    far = np.flatnonzero(external > stats.t.isf(alpha / (2.0 * n), dof))
     names, text, rest = _listed(far, external, namer)
     return names, (f"{how}: {text}" if text else ""), rest
 
@@ -927,8 +927,28 @@ def _row_namer(candidates, n):
     if source_rows is not None:
         report = getattr(dataset, "report", None)
         where = "data rows of the file" if getattr(report, "source", None) is not None else "rows of the table"
-        return f"{where}, counting from 1", lambda i: str(int(source_rows[i]) + 1)
-    return "rows, counting from 1", lambda i: str(int(i) + 1)
+        return f"{where}, counting from 1", _RowNumbers(np.asarray(source_rows, dtype=np.int64) + 1)
+    return "rows, counting from 1", _RowNumbers(None)
+
+
+class _RowNumbers:
+    """Names rows by a number counting from 1: ``numbers[i]``, or i + 1 when there are none."""
+
+    def __init__(self, numbers):
+        self.numbers = numbers
+
+    def __call__(self, i):
+        return str(int(self.numbers[i]) if self.numbers is not None else int(i) + 1)
+
+    def many(self, rows):
+        rows = np.asarray(rows, dtype=np.int64)
+        return (self.numbers[rows] if self.numbers is not None else rows + 1).astype(str).astype(object)
+
+
+def _names(namer, rows):
+    """The names of many rows (one array operation when the namer has one)."""
+    many = getattr(namer, "many", None)
+    return many(rows) if many is not None else [namer(int(i)) for i in rows]
 
 
 def _listed(indices, values, namer):
@@ -1010,16 +1030,15 @@ def _influence_checks(hat, cooks, studentized, n, k, rss, namer, how):
     rows = np.union1d(high_leverage, high_cooks).astype(np.int64)
     sort_key = np.where(np.isfinite(cooks[rows]), cooks[rows], np.inf)
     rows = rows[np.lexsort((-hat[rows], -sort_key))]
-    in_cooks, in_leverage = set(high_cooks.tolist()), set(high_leverage.tolist())
+    by_cooks, by_leverage = ~(cooks[rows] <= cooks_screen), hat[rows] > leverage_screen
     flagged = pd.DataFrame({
         "row": rows,
-        "name": [namer(int(i)) for i in rows],
+        "name": _names(namer, rows),
         "leverage": hat[rows],
         "cooks_distance": cooks[rows],
         "studentized_residual": studentized[rows],
-        "reason": [" and ".join(r for r, hit in (("Cook's distance", int(i) in in_cooks),
-                                                 ("leverage", int(i) in in_leverage)) if hit)
-                   for i in rows],
+        "reason": np.where(by_cooks & by_leverage, "Cook's distance and leverage",
+                           np.where(by_cooks, "Cook's distance", "leverage")).astype(object),
     })
     remedy = ("Check the named rows for recording or entry errors and for conditions unlike the rest; "
               "refit without them only to see how much the model moves, report both fits, and never "

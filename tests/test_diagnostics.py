@@ -469,3 +469,26 @@ def test_a_bend_names_the_term_along_which_the_mean_bends_and_the_forms_not_trie
     # with the log form offered the search takes it and the mean no longer bends: no pointer needed
     fixed = selectkit.search(frame, response="yield_kg_m2", forms=("identity", "log"), shortlist_size=1, seed=0)
     assert "log(light)" in fixed.terms(0) and fixed.checks(0).check("reset").level == "fine"
+
+
+@pytest.mark.parametrize("shift", [0.0, 12.0])
+def test_the_outlier_rows_are_those_of_the_statsmodels_bonferroni_test(shift):
+    # The mean-shift outlier test compares |tᵢ| with one quantile of t(n − k − 1) instead of n tail areas:
+    # the rows named must be exactly those whose Bonferroni p-value of statsmodels' outlier_test is below
+    # alpha (statsmodels.regression.linear_model.OLSResults.outlier_test, method="bonf").
+    from selectkit.diagnostics import _influence, _outlier_rows
+
+    rng = np.random.default_rng(41)
+    n = 300
+    X = sm.add_constant(rng.normal(size=(n, 3)))
+    y = X @ [1.0, 0.5, -0.3, 0.2] + rng.standard_t(3, n)
+    y[[7, 150]] += shift  # two planted far-off responses (none when shift is 0)
+    fit = sm.OLS(y, X).fit()
+    hat = OLSInfluence(fit).hat_matrix_diag
+    studentized, _ = _influence(fit.resid, hat, n, 4, float(fit.ssr))
+    for alpha in (0.05, 0.5):
+        names, _, rest = _outlier_rows(studentized, n, 4, alpha, lambda i: str(i), "rows")
+        expected = np.flatnonzero(np.asarray(fit.outlier_test(method="bonf"))[:, 2] < alpha)  # its columns: t, p, bonf(p)
+        assert sorted(int(v) for v in names) == sorted(expected.tolist()) and rest == 0
+    if shift:
+        assert {"7", "150"} <= set(_outlier_rows(studentized, n, 4, 0.05, lambda i: str(i), "rows")[0])

@@ -109,6 +109,8 @@ def test_json_validates_against_its_schema(run):
     lambda d: d["models"][0].__setitem__("position", 0),
     lambda d: d.__setitem__("stability", {"replicates": 3}),
     lambda d: d.__setitem__("cautions", []),
+    lambda d: d["models"][0]["terms"].append(3),  # a number in a list of strings (the one-loop path)
+    lambda d: d.__setitem__("notes", [None]),
 ])
 def test_own_validator_agrees_with_jsonschema_on_broken_documents(run, breakage):
     document = json.loads(run["paths"]["shortlist_json"].read_text(encoding="utf-8"))

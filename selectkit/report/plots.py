@@ -125,23 +125,27 @@ def _scatter(panel, x, y, *, color=_INK, alpha=0.7, label=None):
         panel.notes.append(f"every {int(np.ceil(len(x) / MAX_POINTS))}th row shown")
 
 
-def _smooth_line(panel, x, y, *, bins=None, dash="-", label=None):
+def _smooth_line(panel, x, y, *, bins=None, dash="-", label=None, order=None):
     """A smoother of the points: the mean of ``y`` in groups of about equal size by increasing ``x``.
 
     Binned means (a regressogram; common practice, our choice over a local
     regression smoother) cost one sort whatever the number of rows.  The
     number of groups is ``bins`` or, by default, about one per 8 rows between
-    5 and :data:`SMOOTHER_BINS`.  Returns the ``(x, y)`` of the means drawn
+    5 and :data:`SMOOTHER_BINS`.  ``order``: the stable sorting order of x,
+    when the caller holds it.  Returns the ``(x, y)`` of the means drawn
     (None when too few points).
     """
     x = np.asarray(x, dtype=float)
     y = np.asarray(y, dtype=float)
     ok = np.isfinite(x) & np.isfinite(y)
-    x, y = x[ok], y[ok]
+    if not ok.all():
+        order = None
+        x, y = x[ok], y[ok]
     if len(x) < 10 or np.ptp(x) <= 0:
         return None
     count = bins or int(min(SMOOTHER_BINS, max(5, len(x) // 8)))
-    groups = [g for g in np.array_split(np.argsort(x, kind="stable"), count) if g.size]
+    order = np.argsort(x, kind="stable") if order is None else order
+    groups = [g for g in np.array_split(order, count) if g.size]
     xs, ys = np.array([x[g].mean() for g in groups]), np.array([y[g].mean() for g in groups])
     panel.line(xs, ys, color=_ACCENT, line_width=1.2, dash=dash, label=label)
     return xs, ys
@@ -563,7 +567,7 @@ def term_forms(diagnosis, candidates, *, columns=3):
             panel.band(part.x[line], part.component[line] - 2 * part.band[line],
                        part.component[line] + 2 * part.band[line], color=_INK, alpha=0.15,
                        label="±2 standard errors")
-        _smooth_line(panel, part.x, part.partial, dash="--", label="smoother of the points")
+        _smooth_line(panel, part.x, part.partial, dash="--", label="smoother of the points", order=order)
     _titled(chart, diagnosis, "forms")
     return chart
 

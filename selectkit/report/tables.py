@@ -423,8 +423,16 @@ def _validate(value, schema, root, path, errors):
         if "minItems" in schema and len(value) < schema["minItems"]:
             errors.append(f"{path}: needs at least {schema['minItems']} item(s), got {len(value)}")
         if "items" in schema:
+            items = schema["items"]
+            if isinstance(items, dict) and items.keys() == {"type"}:  # a list of plain values: one loop, no paths
+                types = items["type"] if isinstance(items["type"], list) else [items["type"]]
+                tests = [_TYPES[t] for t in types]
+                for i, item in enumerate(value):
+                    if not any(test(item) for test in tests):
+                        errors.append(f"{path}/{i}: expected {' or '.join(types)}, got {type(item).__name__}")
+                return
             for i, item in enumerate(value):
-                _validate(item, schema["items"], root, f"{path}/{i}", errors)
+                _validate(item, items, root, f"{path}/{i}", errors)
 
 
 def _collect(value, schema, root, path):
