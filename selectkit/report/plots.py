@@ -522,7 +522,7 @@ def term_components(diagnosis, candidates):
     return components, skipped
 
 
-def term_forms(diagnosis, candidates, *, columns=3):
+def term_forms(diagnosis, candidates, *, columns=3, components=None):
     """Component-plus-residual panels: is each numeric term's form right?
 
     For each numeric term bⱼ·fⱼ(x) of the model, the panel plots the source
@@ -544,12 +544,16 @@ def term_forms(diagnosis, candidates, *, columns=3):
     Larsen, W. A. & McCleary, S. J. (1972). The use of partial residual plots
     in regression analysis. Technometrics 14(3), 781-790.
 
+    ``components``: what :func:`term_components` gives for this model, when
+    the caller holds it (the refit is not made again).
+
     Returns
     -------
     Chart or None
         None when the model has no numeric term.
     """
-    components, _ = term_components(diagnosis, candidates)
+    if components is None:
+        components, _ = term_components(diagnosis, candidates)
     if not components:
         return None
     count = len(components)
@@ -631,10 +635,10 @@ def check_figures(diagnosis, candidates=None):
         if key == "forms":
             if candidates is None:
                 continue
-            figure = term_forms(diagnosis, candidates)
+            components, skipped = term_components(diagnosis, candidates)
+            figure = term_forms(diagnosis, candidates, components=components)
             if figure is None:
                 continue
-            _, skipped = term_components(diagnosis, candidates)
             if skipped:
                 extra = (" Not drawn (categorical blocks and interactions have no single curve): "
                          + ", ".join(skipped) + ".")
