@@ -191,12 +191,9 @@ def added_column_t(design, y, probes, weights=None):
     if weights is not None:
         root = np.sqrt(weights)
         design, y, probes = design * root[:, None], y * root, probes * root[:, None]
-    spread = np.max(np.abs(y - y.mean())) if y.size else 0.0
-    if spread > 0 and np.isfinite(spread):
-        y = (y - y.mean()) / spread  # t statistics do not change; sums of squares cannot overflow
     scale = np.max(np.abs(design), axis=0)
     scale[~(scale > 0)] = 1.0
-    if not (np.all(np.isfinite(design)) and np.all(np.isfinite(probes)) and np.all(np.isfinite(y))):
+    if not np.all(np.isfinite(design)):
         return np.full(probes.shape[1], np.nan)
     from scipy.linalg import qr
 
@@ -204,12 +201,25 @@ def added_column_t(design, y, probes, weights=None):
     # relative tolerance are left out) at a fraction of its cost on many rows.
     q, r, _ = qr(design / scale, mode="economic", pivoting=True, check_finite=False)
     pivots = np.abs(np.diag(r))
-    basis = q[:, pivots > (pivots[0] if pivots.size else 0.0) * max(design.shape) * np.finfo(float).eps]
+    return _probe_t(q[:, pivots > (pivots[0] if pivots.size else 0.0) * max(design.shape) * np.finfo(float).eps],
+                    y, probes)
+
+
+def _probe_t(basis, y, probes):
+    """The t statistics of :func:`added_column_t` from an orthonormal basis of the design's span (y, probes
+    and the design all √w-scaled already)."""
+    if not (np.all(np.isfinite(probes)) and np.all(np.isfinite(y))):
+        return np.full(probes.shape[1], np.nan)
+    # scaled only: t statistics do not change and sums of squares cannot overflow (centring would add a
+    # constant, which lies outside the span of a √w-scaled design)
+    spread = np.max(np.abs(y)) if y.size else 0.0
+    if spread > 0 and np.isfinite(spread):
+        y = y / spread
     e = y - basis @ (basis.T @ y)
     r = probes - basis @ (basis.T @ probes)
     rr = np.einsum("ij,ij->j", r, r)
     re = r.T @ e
-    df = design.shape[0] - basis.shape[1] - 1
+    df = basis.shape[0] - basis.shape[1] - 1
     with np.errstate(divide="ignore", invalid="ignore"):
         s2 = (float(e @ e) - re * re / rr) / df
         t = re / np.sqrt(s2 * rr)
@@ -277,6 +287,12 @@ class _LeaveOneOut:
             return None
         r_inv_t = solve_triangular(r, np.eye(r.shape[0]), trans="T", check_finite=False)
         return cls(q, r_inv_t, root, blocks)
+
+    def added_t(self, y, probes):
+        """:func:`added_column_t` of ``probes`` on the whole design, from this factorisation."""
+        if self.scale is not None:
+            y, probes = y * self.scale, probes * self.scale[:, None]
+        return _probe_t(self.q, y, probes)
 
     def without(self, name):
         """The residual maker of the design without ``name``'s columns (``__call__``, ``rank``, ``scale``:
@@ -393,8 +409,8 @@ def _straight_families(dataset, y, weights, shift_map, notes, represented=None):
         if held:
             blocks: dict = {}
             whole = design(before, blocks=blocks)
-            t = added_column_t(whole, y, probes, weights)
             everyone = _LeaveOneOut.of(whole, weights, blocks)  # None when the design is rank-deficient
+            t = added_column_t(whole, y, probes, weights) if everyone is None else everyone.added_t(y, probes)
             nuisance = {}  # per predictor: the others in their current forms, for its test and its power
             for j, col in enumerate(names):
                 if col in before:  # its own column is curved in that design: test it against its raw form

@@ -836,6 +836,13 @@ def test_leaving_one_predictor_out_of_one_factorisation_gives_the_statsmodels_re
         project = everyone.without(name)
         assert project.rank == len(keep)
         np.testing.assert_allclose(project(v), expected, rtol=0, atol=1e-9 * np.abs(v).max())
+    # the same factorisation gives the t of each probe added to the whole design (statsmodels' t-value of it)
+    probes = np.column_stack([design[:, 1] * np.abs(design[:, 1]), np.sin(design[:, 3])])
+    got = everyone.added_t(v, probes)
+    for j in range(probes.shape[1]):
+        X = np.column_stack([design, probes[:, j]])
+        fit = sm.WLS(v, X, weights=w).fit() if weighted else sm.OLS(v, X).fit()
+        assert got[j] == pytest.approx(fit.tvalues[-1], rel=1e-8)
 
 
 def test_a_rank_deficient_design_is_not_factorised_once():
@@ -867,3 +874,20 @@ def test_the_screen_decides_the_same_with_one_factorisation_or_one_per_predictor
                                                                        for r in alone.refused]
     assert "log(x0)" in shared.names and not [r for r in shared.refused if r.family == "x0"
                                                and "no evidence" in r.reason]
+
+
+def test_the_weighted_curvature_t_is_the_statsmodels_wls_t():
+    # With row weights the fit is made on √w-scaled rows, where the intercept column is √w: y must not be
+    # centred there (a constant is outside that span). Reference: statsmodels WLS t-value of the probe.
+    import statsmodels.api as sm
+
+    from selectkit._vetting import added_column_t
+
+    rng = np.random.default_rng(34)
+    n = 300
+    X = np.column_stack([np.ones(n), rng.normal(size=n)])
+    w = rng.uniform(0.2, 3.0, n)
+    y = 5.0 + X[:, 1] + rng.normal(size=n) / np.sqrt(w)
+    probe = (X[:, 1] ** 2)[:, None]
+    expected = sm.WLS(y, np.column_stack([X, probe]), weights=w).fit().tvalues[-1]
+    assert added_column_t(X, y, probe, w)[0] == pytest.approx(expected, rel=1e-9)
